@@ -1,0 +1,83 @@
+"""The command line: parse, call one library function, render. Nothing else lives here.
+
+This module holds the command group, the shared options and the error handling; the commands
+live in one module per family (data, mining, lists, take-up).
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+import sys
+from collections.abc import Callable
+from typing import Any
+
+import click
+from rich.console import Console
+
+from reachlist.errors import ReachlistError
+from reachlist.schema import Mapping
+from reachlist.warehouse import Warehouse
+
+DEFAULT_WAREHOUSE = "garden.duckdb"
+
+def _console(stderr: bool = False) -> Console:
+    # Piped output gets 100 columns (rich would pick 80): tables are designed for 100.
+    probe = Console(stderr=stderr)
+    width = None if probe.is_terminal or "COLUMNS" in os.environ else 100
+    return Console(stderr=stderr, highlight=False, width=width)
+
+
+out = _console()
+err = _console(stderr=True)
+
+
+def _fail(exc: ReachlistError) -> None:
+    err.print(f"[bold red]Error:[/] {exc}", soft_wrap=True)
+    sys.exit(exc.exit_code)
+
+
+class _Group(click.Group):
+    def invoke(self, ctx: click.Context) -> Any:
+        try:
+            return super().invoke(ctx)
+        except ReachlistError as exc:
+            _fail(exc)
+
+
+def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    @click.option(
+        "--warehouse",
+        "-w",
+        envvar="REACHLIST_WAREHOUSE",
+        default=DEFAULT_WAREHOUSE,
+        show_default=True,
+        help="DuckDB file or SQLAlchemy URL (env REACHLIST_WAREHOUSE).",
+    )
+    @click.option(
+        "--mapping",
+        "-m",
+        envvar="REACHLIST_MAPPING",
+        default=None,
+        help="TOML file mapping the contract's tables and columns to the warehouse's names.",
+    )
+    @functools.wraps(fn)
+    def wrapper(*args: Any, warehouse: str, mapping: str | None, **kwargs: Any) -> Any:
+        m = Mapping.from_toml(mapping) if mapping else Mapping.identity()
+        with Warehouse.open(warehouse, m, read_only=kwargs.pop("_read_only", False)) as wh:
+            return fn(*args, wh=wh, **kwargs)
+
+    return wrapper
+
+
+@click.group(cls=_Group)
+@click.version_option(package_name="reachlist")
+def main() -> None:
+    """reachlist: from order history to targeted-offer customer lists."""
+
+
+# Command modules register themselves on `main`; imported last to avoid a cycle.
+from reachlist.cli import data  # noqa: E402,F401
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,48 @@
+"""Commands about the warehouse itself: sample, check, copy."""
+
+from __future__ import annotations
+
+import click
+
+from reachlist.cli import main, out, warehouse_options
+from reachlist.warehouse import Warehouse
+
+
+@main.command()
+@click.option("--out", "out_path", required=True, help="DuckDB file to write.")
+@click.option("--customers", default=20_000, show_default=True, type=click.IntRange(min=100))
+@click.option("--seed", default=7, show_default=True, type=int)
+@click.option("--force", is_flag=True, help="Overwrite an existing file.")
+def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
+    """Write the fictional garden-and-home retailer's warehouse (deterministic)."""
+    from reachlist.render.sample import sample_summary
+    from reachlist.sample import build_sample
+
+    summary = build_sample(out_path, customers=customers, seed=seed, overwrite=force)
+    out.print(summary.describe())
+
+
+@main.command()
+@warehouse_options
+def check(wh: Warehouse) -> None:
+    """Validate a warehouse against the contract and count its data quirks."""
+    from reachlist.check import check_warehouse
+    from reachlist.render.check import render_check
+
+    render_check(check_warehouse(wh), out)
+
+
+@main.command("copy")
+@click.argument("source")
+@click.option("--to", "dest", required=True, help="SQLAlchemy URL of the destination warehouse.")
+@click.option("--schema", default=None, help="Create the tables in this schema.")
+@click.option("--replace", is_flag=True, help="Drop and reload tables that already exist.")
+def copy_cmd(source: str, dest: str, schema: str | None, replace: bool) -> None:
+    """Copy the contract tables of SOURCE (a DuckDB file) into another warehouse."""
+    from reachlist.transfer import copy_warehouse
+
+    copied = copy_warehouse(source, dest, schema=schema, replace=replace)
+    for name, n in copied.items():
+        out.print(f"{name:<14} {n:>12,} rows")
+    if schema:
+        out.print(f'Map it with a mapping file holding: schema = "{schema}"')

@@ -1,0 +1,170 @@
+"""Building SQL, apart from running it.
+
+A :class:`Query` is SQL written against the logical contract (see ``reachlist.schema``) with
+``:name`` placeholders, plus the values to bind. Nothing here touches a database: ``render`` turns a
+query into the exact text and parameters one warehouse will run, and ``reachlist.warehouse`` runs
+it. Values are always bound, never spliced; identifiers are quoted only by :func:`quote_ident`.
+
+>>> q = Query("SELECT count(*) FROM orders WHERE customer_id = :cid", {"cid": 7})
+>>> render(q, DUCKDB, Mapping.identity()).sql
+'SELECT count(*) FROM orders WHERE customer_id = $cid'
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from datetime import date, datetime
+from importlib import resources
+from typing import Any
+
+from reachlist.errors import InputError
+from reachlist.schema import CONTRACT, Mapping
+
+_PARAM = re.compile(r"(?<![:\w]):([A-Za-z_]\w*)")
+
+
+def quote_ident(name: str) -> str:
+    """Quote one identifier (the only place identifiers are quoted)."""
+    if "\x00" in name:
+        raise InputError(f"Identifier {name!r} contains a NUL byte.", hint="fix the mapping file")
+    return '"' + name.replace('"', '""') + '"'
+
+
+def quote_qualified(parts: Sequence[str]) -> str:
+    return ".".join(quote_ident(p) for p in parts)
+
+
+@dataclass(frozen=True)
+class Dialect:
+    """What differs between warehouses, as data rather than branches."""
+
+    name: str
+    placeholder: str  # "dollar" ($name, DuckDB native) or "colon" (:name, SQLAlchemy)
+    cte_hint: str = ""  # e.g. "NOT MATERIALIZED" where a CTE would otherwise be materialised
+
+
+DUCKDB = Dialect("duckdb", placeholder="dollar")
+POSTGRES = Dialect("postgresql", placeholder="colon", cte_hint="NOT MATERIALIZED")
+GENERIC = Dialect("generic", placeholder="colon")
+
+
+def dialect_named(name: str) -> Dialect:
+    return {"duckdb": DUCKDB, "postgresql": POSTGRES}.get(name, GENERIC)
+
+
+@dataclass(frozen=True)
+class Query:
+    """SQL over the logical contract plus bound values. Lists expand to one placeholder each."""
+
+    sql: str
+    params: dict[str, Any] = field(default_factory=dict)
+    label: str = ""
+
+    @classmethod
+    def from_template(cls, name: str, params: dict[str, Any] | None = None, **fmt: str) -> Query:
+        """Load ``sql/<name>.sql``. ``fmt`` fills ``{slot}`` fragments that reachlist itself builds
+        (never user values): for example the list of antecedent conditions of a rule."""
+        text = template_text(name)
+        if fmt:
+            text = text.format(**fmt)
+        return cls(text, dict(params or {}), label=name)
+
+
+@dataclass(frozen=True)
+class Rendered:
+    sql: str
+    params: dict[str, Any]
+
+
+def template_text(name: str) -> str:
+    try:
+        return resources.files("reachlist.sql").joinpath(f"{name}.sql").read_text(encoding="utf-8")
+    except FileNotFoundError:  # pragma: no cover - packaging error
+        raise InputError(f"SQL template {name!r} is missing from the installation.") from None
+
+
+def _expand_lists(sql: str, params: dict[str, Any]) -> tuple[str, dict[str, Any]]:
+    out: dict[str, Any] = {}
+    for key, value in params.items():
+        if isinstance(value, (list, tuple, set, frozenset)):
+            values = list(value)
+            if not values:
+                # An empty IN list is not valid SQL; NULL matches nothing and keeps the shape.
+                values = [None]
+            names = [f"{key}_{i}" for i in range(len(values))]
+            sql = re.sub(rf"(?<![:\w]):{key}(?!\w)", ", ".join(f":{n}" for n in names), sql)
+            out.update(zip(names, values))
+        else:
+            out[key] = value
+    return sql, out
+
+
+def referenced_tables(sql: str) -> list[str]:
+    words = set(re.findall(r"\b([a-z_]+)\b", _strip_comments(sql)))
+    return [t for t in CONTRACT if t in words]
+
+
+def _strip_comments(sql: str) -> str:
+    return re.sub(r"--[^\n]*", "", sql)
+
+
+def views_sql(mapping: Mapping, tables: Iterable[str], dialect: Dialect) -> list[str]:
+    """CTEs that present mapped physical tables under their logical names."""
+    views = []
+    for name in tables:
+        tmap = mapping.table(name)
+        if tmap.is_identity:
+            continue
+        cols = ", ".join(
+            f"{quote_ident(tmap.column(c))} AS {c}" for c in CONTRACT[name].column_names
+        )
+        hint = f" {dialect.cte_hint}" if dialect.cte_hint else ""
+        views.append(
+            f"{name} AS{hint} (SELECT {cols} FROM {quote_qualified(tmap.physical)})"
+        )
+    return views
+
+
+_LEADING_WITH = re.compile(r"^(\s*(?:--[^\n]*\n\s*)*)WITH\s", re.IGNORECASE)
+
+
+def render(query: Query, dialect: Dialect, mapping: Mapping) -> Rendered:
+    """The exact SQL text and parameters one warehouse will run."""
+    sql, params = _expand_lists(query.sql.strip() + "\n", query.params)
+    views = views_sql(mapping, referenced_tables(sql), dialect)
+    if views:
+        prelude = ",\n     ".join(views)
+        m = _LEADING_WITH.match(sql)
+        if m:
+            sql = f"{m.group(1)}WITH {prelude},\n{sql[m.end():]}"
+        else:
+            sql = f"WITH {prelude}\n{sql}"
+    missing = [n for n in _PARAM.findall(_strip_comments(sql)) if n not in params]
+    if missing:
+        raise InputError(f"Query {query.label or '(inline)'} needs values for {missing}.")
+    if dialect.placeholder == "dollar":
+        sql = _PARAM.sub(lambda m: "$" + m.group(1), sql)
+    return Rendered(sql, params)
+
+
+def literal(value: Any) -> str:
+    """A SQL literal for display only (``reachlist sql --inline``); never used to run a query."""
+    if value is None:
+        return "NULL"
+    if isinstance(value, bool):
+        return "TRUE" if value else "FALSE"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, datetime):
+        return f"TIMESTAMP '{value.isoformat(sep=' ')}'"
+    if isinstance(value, date):
+        return f"DATE '{value.isoformat()}'"
+    return "'" + str(value).replace("'", "''") + "'"
+
+
+def inline(rendered: Rendered, dialect: Dialect) -> str:
+    """The rendered SQL with values written as literals, for review or for running elsewhere."""
+    pattern = r"\$([A-Za-z_]\w*)" if dialect.placeholder == "dollar" else _PARAM.pattern
+    return re.sub(pattern, lambda m: literal(rendered.params[m.group(1)]), rendered.sql)

@@ -1,0 +1,274 @@
+"""The warehouse contract (logical tables and columns) and the TOML mapping onto a real warehouse.
+
+A warehouse names things its own way. A mapping file says, per logical table, which physical table
+holds it and which physical column holds each logical column; anything not mapped keeps its logical
+name. Example::
+
+    # reachlist mapping: logical name = name in your warehouse
+    schema = "retail"               # optional: the schema of every table not qualified below
+
+    [customers]
+    table = "crm.shoppers"          # schema-qualified names are fine
+    customer_id = "shopper_no"
+    marketing_consent = "email_opt_in"
+
+    [order_lines]
+    table = "sales.basket_rows"
+    sku = "article"
+
+Every query reachlist runs is written against the logical names; ``views_sql`` turns the mapping
+into common table expressions so the same query runs on any mapped warehouse.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Literal
+
+from reachlist.errors import ContractError, InputError
+
+Kind = Literal["integer", "text", "boolean", "date", "timestamp", "number"]
+
+
+@dataclass(frozen=True)
+class Column:
+    name: str
+    kind: Kind
+    nullable: bool = False
+    doc: str = ""
+
+
+@dataclass(frozen=True)
+class Table:
+    name: str
+    columns: tuple[Column, ...]
+    owned: bool = False  # created and written by reachlist (the campaign log)
+    doc: str = ""
+
+    def column(self, name: str) -> Column:
+        for c in self.columns:
+            if c.name == name:
+                return c
+        raise KeyError(name)
+
+    @property
+    def column_names(self) -> tuple[str, ...]:
+        return tuple(c.name for c in self.columns)
+
+
+CONTRACT: dict[str, Table] = {
+    t.name: t
+    for t in (
+        Table(
+            "customers",
+            (
+                Column("customer_id", "integer"),
+                Column("email", "text", nullable=True),
+                Column("marketing_consent", "boolean", nullable=True, doc="NULL counts as no"),
+                Column("consent_date", "date", nullable=True),
+                Column("birth_date", "date", nullable=True, doc="NULL = age not known"),
+                Column("region", "text", nullable=True),
+            ),
+            doc="one row per customer",
+        ),
+        Table(
+            "products",
+            (
+                Column("sku", "text"),
+                Column("name", "text"),
+                Column("category", "text"),
+                Column("department", "text"),
+                Column("age_restricted", "boolean"),
+                Column("sensitive", "boolean", doc="true for items of a sensitive category"),
+                Column("launch_date", "date", nullable=True),
+                Column("stock_on_hand", "integer", nullable=True),
+            ),
+            doc="the product hierarchy sku -> category -> department",
+        ),
+        Table(
+            "orders",
+            (
+                Column("order_id", "integer"),
+                Column("customer_id", "integer"),
+                Column("ordered_at", "timestamp"),
+                Column("channel", "text", nullable=True),
+            ),
+            doc="one row per checkout (returns are orders too)",
+        ),
+        Table(
+            "order_lines",
+            (
+                Column("order_id", "integer"),
+                Column("sku", "text"),
+                Column("quantity", "number", doc="negative for returns"),
+                Column("net_amount", "number", nullable=True),
+            ),
+            doc="order lines; returns have negative quantity",
+        ),
+        Table(
+            "suppressions",
+            (
+                Column("customer_id", "integer"),
+                Column("reason", "text", nullable=True),
+                Column("suppressed_at", "date", nullable=True),
+            ),
+            doc="customers who must not be contacted",
+        ),
+        Table(
+            "campaigns",
+            (
+                Column("campaign_id", "text"),
+                Column("created_at", "timestamp"),
+                Column("target", "text"),
+                Column("purpose", "text"),
+                Column("parameters", "text", doc="JSON"),
+                Column("rules", "text", doc="JSON"),
+                Column("counts", "text", doc="JSON"),
+                Column("overrides", "text", nullable=True, doc="consent/suppression switched off"),
+            ),
+            owned=True,
+            doc="the campaign log (written by reachlist)",
+        ),
+        Table(
+            "campaign_contacts",
+            (
+                Column("campaign_id", "text"),
+                Column("customer_id", "integer"),
+                Column("contact_group", "text", doc="treatment or holdout"),
+                Column("score", "number", nullable=True),
+                Column("reason", "text", nullable=True),
+                Column("contacted_at", "timestamp"),
+            ),
+            owned=True,
+            doc="who was in treatment and who in holdout",
+        ),
+    )
+}
+
+SOURCE_TABLES = tuple(name for name, t in CONTRACT.items() if not t.owned)
+LOG_TABLES = tuple(name for name, t in CONTRACT.items() if t.owned)
+
+
+@dataclass(frozen=True)
+class TableMap:
+    logical: str
+    physical: tuple[str, ...]  # schema parts + table name, unquoted
+    columns: dict[str, str] = field(default_factory=dict)  # logical -> physical
+
+    def column(self, logical: str) -> str:
+        return self.columns.get(logical, logical)
+
+    @property
+    def is_identity(self) -> bool:
+        return self.physical == (self.logical,) and all(
+            self.column(c) == c for c in CONTRACT[self.logical].column_names
+        )
+
+    @property
+    def physical_name(self) -> str:
+        return ".".join(self.physical)
+
+
+@dataclass(frozen=True)
+class Mapping:
+    """Logical contract -> physical names. ``Mapping.identity()`` is the sample warehouse's."""
+
+    tables: dict[str, TableMap]
+    source: str = "(built-in identity mapping)"
+
+    @classmethod
+    def identity(cls) -> Mapping:
+        return cls({name: TableMap(name, (name,)) for name in CONTRACT})
+
+    @classmethod
+    def from_toml(cls, path: str | Path) -> Mapping:
+        p = Path(path)
+        try:
+            raw = tomllib.loads(p.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise InputError(
+                f"Mapping file {str(p)!r} was not found.",
+                hint="pass --mapping with the path of an existing TOML file",
+            ) from None
+        except tomllib.TOMLDecodeError as exc:
+            raise InputError(
+                f"Mapping file {str(p)!r} is not valid TOML: {exc}.",
+                hint="check the line named; see DEVELOPERS.md for the mapping format",
+            ) from None
+        return cls.from_dict(raw, source=str(p))
+
+    @classmethod
+    def from_dict(cls, raw: dict[str, object], source: str = "(mapping)") -> Mapping:
+        default_schema = raw.get("schema")
+        if default_schema is not None and (
+            not isinstance(default_schema, str) or not default_schema.strip()
+        ):
+            raise InputError(
+                f"Mapping {source}: schema must be a non-empty string, found {default_schema!r}.",
+                hint='write schema = "name_of_your_schema" at the top of the file',
+            )
+        base: tuple[str, ...] = (default_schema.strip(),) if default_schema else ()
+        tables = {name: TableMap(name, (*base, name)) for name in CONTRACT}
+        for key, section in raw.items():
+            if key == "schema":
+                continue
+            if key not in CONTRACT:
+                raise InputError(
+                    f"Mapping {source}: [{key}] is not a table of the contract "
+                    f"(expected one of {', '.join(CONTRACT)}).",
+                    hint=_suggest(key, list(CONTRACT)),
+                )
+            if not isinstance(section, dict):
+                raise InputError(
+                    f"Mapping {source}: [{key}] must be a table of name = \"value\" lines, "
+                    f"found {type(section).__name__}.",
+                    hint=f'write [{key}] on its own line, then table = "your_table"',
+                )
+            table = CONTRACT[key]
+            physical: tuple[str, ...] = (*base, key)
+            columns: dict[str, str] = {}
+            for col, value in section.items():
+                if not isinstance(value, str) or not value.strip():
+                    raise InputError(
+                        f"Mapping {source}: {key}.{col} must be a non-empty string, found {value!r}.",
+                        hint=f'write {col} = "name_in_your_warehouse"',
+                    )
+                if col == "table":
+                    parts = tuple(part.strip() for part in value.split("."))
+                    physical = parts if len(parts) > 1 else (*base, *parts)
+                elif col in table.column_names:
+                    columns[col] = value
+                else:
+                    raise InputError(
+                        f"Mapping {source}: {key}.{col} is not a column of {key} "
+                        f"(expected table or one of {', '.join(table.column_names)}).",
+                        hint=_suggest(col, ["table", *table.column_names]),
+                    )
+            tables[key] = TableMap(key, physical, columns)
+        return cls(tables, source=source)
+
+    def table(self, logical: str) -> TableMap:
+        return self.tables[logical]
+
+    def key_for(self, logical_table: str, logical_column: str | None = None) -> str:
+        """The mapping-file key that names a table or column (for error messages)."""
+        if logical_column is None:
+            return f"[{logical_table}] table"
+        return f"[{logical_table}] {logical_column}"
+
+
+def _suggest(word: str, choices: list[str]) -> str:
+    close = difflib.get_close_matches(word, choices, n=1)
+    if close:
+        return f"did you mean {close[0]!r}?"
+    return "use one of the names listed"
+
+
+def require_table(name: str) -> Table:
+    try:
+        return CONTRACT[name]
+    except KeyError:
+        raise ContractError(f"{name!r} is not a table of the contract.") from None

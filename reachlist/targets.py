@@ -1,0 +1,186 @@
+"""Targets, item levels and mining windows: what a rule or an audience is about.
+
+A target is a SKU (``HM-2041``), a category (``category:Heated mats``) or a department
+(``department:Garden``). Items of rules live at one item level: sku, category or department.
+
+>>> parse_target("category:Bird food")
+Target(level='category', name='Bird food')
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass
+from datetime import date, datetime, timedelta
+from typing import Literal
+
+from reachlist.errors import InputError
+from reachlist.query import Query
+from reachlist.warehouse import Warehouse
+
+Level = Literal["sku", "category", "department"]
+BasketKind = Literal["customer", "order"]
+LEVELS: tuple[Level, ...] = ("sku", "category", "department")
+BASKET_KINDS: tuple[BasketKind, ...] = ("customer", "order")
+# SQL fragments chosen from fixed lists, never from user text.
+BASKET_COLUMN = {"customer": "o.customer_id", "order": "o.order_id"}
+LEVEL_COLUMN = {"sku": "sku", "category": "category", "department": "department"}
+
+
+@dataclass(frozen=True)
+class Target:
+    level: Level
+    name: str
+
+    def __str__(self) -> str:
+        return self.name if self.level == "sku" else f"{self.level}:{self.name}"
+
+
+def parse_target(text: str) -> Target:
+    text = text.strip()
+    if not text:
+        raise InputError(
+            "Expected a target (a SKU, category:NAME or department:NAME), found an empty string.",
+            hint="run `reachlist rules` without a target to see the strongest rules and their items",
+        )
+    prefix, sep, rest = text.partition(":")
+    if sep and prefix.lower() in ("category", "department", "sku"):
+        if not rest.strip():
+            raise InputError(
+                f"Expected a name after {prefix}:, found nothing in {text!r}.",
+                hint=f"write {prefix}:NAME, for example {prefix}:\"Bird food\"",
+            )
+        return Target(prefix.lower(), rest.strip())  # type: ignore[arg-type]
+    return Target("sku", text)
+
+
+def check_level(level: str) -> Level:
+    if level not in LEVELS:
+        raise InputError(
+            f"Expected an item level of {', '.join(LEVELS)}, found {level!r}.",
+            hint="pass --level sku, --level category or --level department",
+        )
+    return level  # type: ignore[return-value]
+
+
+def check_basket(kind: str) -> BasketKind:
+    if kind not in BASKET_KINDS:
+        raise InputError(
+            f"Expected a basket of customer or order, found {kind!r}.",
+            hint="pass --basket customer (audiences) or --basket order (one checkout)",
+        )
+    return kind  # type: ignore[return-value]
+
+
+def item_names(wh: Warehouse, level: Level) -> list[str]:
+    col = LEVEL_COLUMN[level]
+    df = wh.fetch(Query(f"SELECT DISTINCT {col} AS item FROM products ORDER BY 1", label="items"))
+    return [str(v) for v in df["item"].to_list() if v is not None]
+
+
+def resolve_target(wh: Warehouse, target: Target) -> Target:
+    """Check that the target exists; suggest the closest names when it does not."""
+    known = item_names(wh, target.level)
+    if target.name in known:
+        return target
+    lowered = {k.lower(): k for k in known}
+    if target.name.lower() in lowered:
+        return Target(target.level, lowered[target.name.lower()])
+    pool = known
+    if target.level == "sku":
+        names = wh.fetch(Query("SELECT sku, name FROM products", label="product names"))
+        by_name = {str(n).lower(): str(s) for s, n in names.iter_rows()}
+        if target.name.lower() in by_name:
+            return Target("sku", by_name[target.name.lower()])
+        close_names = difflib.get_close_matches(target.name.lower(), list(by_name), n=3, cutoff=0.5)
+        close = [f"{by_name[n]} ({n})" for n in close_names]
+    else:
+        close = []
+    close += difflib.get_close_matches(target.name, pool, n=3, cutoff=0.5)
+    hint = (
+        f"did you mean {', '.join(repr(c) for c in close[:3])}?"
+        if close
+        else f"list them with `reachlist rules --level {target.level}`"
+    )
+    raise InputError(
+        f"Target {str(target)!r} is not a {target.level} in products ({len(known)} known).",
+        hint=hint,
+    )
+
+
+@dataclass(frozen=True)
+class Window:
+    """A half-open time window [since, until)."""
+
+    since: datetime
+    until: datetime
+
+    def __str__(self) -> str:
+        return f"{self.since:%Y-%m-%d} .. {(self.until - timedelta(days=1)):%Y-%m-%d}"
+
+
+def _as_datetime(value: date | datetime | str, what: str) -> datetime:
+    if isinstance(value, datetime):
+        return value
+    if isinstance(value, date):
+        return datetime(value.year, value.month, value.day)
+    try:
+        return datetime.fromisoformat(value)
+    except ValueError:
+        raise InputError(
+            f"Expected {what} as a date like 2026-01-31, found {value!r}.",
+            hint=f"write {what} as YYYY-MM-DD",
+        ) from None
+
+
+def last_order_day(wh: Warehouse) -> datetime:
+    last = wh.scalar(Query("SELECT max(ordered_at) AS last FROM orders", label="last order"))
+    if last is None:
+        raise InputError(
+            "Expected order history, found no orders in the warehouse.",
+            hint="load orders first; `reachlist check` shows what the warehouse holds",
+        )
+    last = _as_datetime(last, "the last order time")
+    return datetime(last.year, last.month, last.day) + timedelta(days=1)
+
+
+def mining_window(
+    wh: Warehouse,
+    since: date | datetime | str | None = None,
+    until: date | datetime | str | None = None,
+    *,
+    days: int = 365,
+) -> Window:
+    """``until`` defaults to the day after the last order; ``since`` to ``days`` before it."""
+    end = _as_datetime(until, "--until") if until is not None else last_order_day(wh)
+    start = _as_datetime(since, "--since") if since is not None else end - timedelta(days=days)
+    if start >= end:
+        raise InputError(
+            f"Expected --since before --until, found {start:%Y-%m-%d} >= {end:%Y-%m-%d}.",
+            hint="widen the window",
+        )
+    return Window(start, end)
+
+
+def held_items_query(
+    window: Window,
+    *,
+    level: Level = "sku",
+    basket: BasketKind = "customer",
+    only: str | None = None,
+) -> Query:
+    """Basket -> item pairs in the window (see sql/held_items.sql for the rules applied).
+
+    ``only`` keeps the pairs of one item (for example the target) and is bound as a value."""
+    params: dict[str, object] = {"since": window.since, "until": window.until}
+    only_item = ""
+    if only is not None:
+        params["only_item"] = only
+        only_item = f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
+    return Query.from_template(
+        "held_items",
+        params,
+        basket=BASKET_COLUMN[basket],
+        level=LEVEL_COLUMN[level],
+        only_item=only_item,
+    )

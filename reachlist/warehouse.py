@@ -1,0 +1,327 @@
+"""The only module that talks to a database.
+
+``Warehouse.open`` takes a DuckDB file path or any SQLAlchemy URL (``postgresql+psycopg://...``).
+It runs :class:`reachlist.query.Query` objects and returns polars DataFrames.
+
+>>> wh = Warehouse.open("sample.duckdb")                      # doctest: +SKIP
+>>> wh.fetch(Query("SELECT count(*) AS n FROM orders"))       # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import polars as pl
+
+from reachlist.errors import ContractError, InputError, WarehouseError
+from reachlist.query import (
+    DUCKDB,
+    Dialect,
+    Query,
+    Rendered,
+    dialect_named,
+    quote_ident,
+    quote_qualified,
+    render,
+)
+from reachlist.schema import Mapping
+
+
+def _is_url(target: str) -> bool:
+    return "://" in target
+
+
+@dataclass(frozen=True)
+class PhysicalColumn:
+    name: str
+    data_type: str
+
+
+class Warehouse:
+    """A connection to one warehouse plus the mapping that names its tables."""
+
+    def __init__(
+        self, target: str, dialect: Dialect, mapping: Mapping, conn: Any, engine: Any = None
+    ) -> None:
+        self.target = target
+        self.dialect = dialect
+        self.mapping = mapping
+        self._conn = conn
+        self._engine = engine
+
+    # -- opening ---------------------------------------------------------------------------------
+    @classmethod
+    def open(
+        cls,
+        target: str | os.PathLike[str],
+        mapping: Mapping | None = None,
+        *,
+        read_only: bool = False,
+        create: bool = False,
+    ) -> Warehouse:
+        """``create`` makes a missing DuckDB file (a local state database) instead of refusing."""
+        target = str(target)
+        mapping = mapping or Mapping.identity()
+        if _is_url(target):
+            return cls._open_url(target, mapping)
+        return cls._open_duckdb(target, mapping, read_only, create)
+
+    @classmethod
+    def _open_duckdb(
+        cls, path: str, mapping: Mapping, read_only: bool, create: bool = False
+    ) -> Warehouse:
+        import duckdb
+
+        if path != ":memory:" and not create and not Path(path).exists():
+            raise InputError(
+                f"Warehouse file {path!r} does not exist (expected a DuckDB file or a URL such as "
+                "postgresql+psycopg://host/db).",
+                hint="create the sample with `reachlist sample --out PATH`, or check the path",
+            )
+        try:
+            conn = duckdb.connect(path, read_only=read_only)
+        except duckdb.Error as exc:
+            raise WarehouseError(
+                f"Cannot open {path!r} as a DuckDB database: {_first_line(exc)}.",
+                hint="pass a DuckDB file, or close the program that holds it open",
+            ) from None
+        return cls(path, DUCKDB, mapping, conn)
+
+    @classmethod
+    def _open_url(cls, url: str, mapping: Mapping) -> Warehouse:
+        import sqlalchemy as sa
+
+        try:
+            engine = sa.create_engine(url)
+        except Exception as exc:  # bad URL or missing driver
+            raise WarehouseError(
+                f"Cannot use warehouse URL {_redact(url)!r}: {_first_line(exc)}.",
+                hint="use a SQLAlchemy URL such as postgresql+psycopg://user@host:5432/db and "
+                "install its driver (pip install 'reachlist[postgres]')",
+            ) from None
+        try:
+            conn = engine.connect()
+        except Exception as exc:
+            raise WarehouseError(
+                f"Cannot reach warehouse {_redact(url)!r}: {_first_line(exc)}.",
+                hint="check host, port, database name and credentials, and that the server runs",
+            ) from None
+        return cls(url, dialect_named(engine.dialect.name), mapping, conn, engine)
+
+    def close(self) -> None:
+        with contextlib.suppress(Exception):
+            self._conn.close()
+        if self._engine is not None:
+            self._engine.dispose()
+
+    def __enter__(self) -> Warehouse:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @property
+    def is_duckdb(self) -> bool:
+        return self.dialect is DUCKDB
+
+    @property
+    def display_name(self) -> str:
+        return _redact(self.target)
+
+    # -- running ---------------------------------------------------------------------------------
+    def render(self, query: Query) -> Rendered:
+        return render(query, self.dialect, self.mapping)
+
+    def fetch(self, query: Query) -> pl.DataFrame:
+        """Run a query and return its rows as a polars DataFrame."""
+        r = self.render(query)
+        try:
+            if self.is_duckdb:
+                return self._conn.sql(r.sql, params=r.params or None).pl()
+            import sqlalchemy as sa
+
+            result = self._conn.execute(sa.text(r.sql), r.params)
+            cols = list(result.keys())
+            rows = result.fetchall()
+            self._conn.commit()
+            if not rows:
+                return pl.DataFrame({c: [] for c in cols})
+            return pl.DataFrame([tuple(row) for row in rows], schema=cols, orient="row")
+        except Exception as exc:
+            self._rollback()
+            raise self._translate(exc, query) from None
+
+    def scalar(self, query: Query) -> Any:
+        df = self.fetch(query)
+        return None if df.height == 0 else df.row(0)[0]
+
+    def execute(self, query: Query) -> None:
+        r = self.render(query)
+        try:
+            if self.is_duckdb:
+                self._conn.execute(r.sql, r.params)
+            else:
+                import sqlalchemy as sa
+
+                self._conn.execute(sa.text(r.sql), r.params)
+        except Exception as exc:
+            raise self._translate(exc, query) from None
+
+    def executemany(self, sql: str, rows: list[dict[str, Any]]) -> None:
+        """Insert many rows with one statement shape (``:name`` placeholders, logical names)."""
+        if not rows:
+            return
+        r = self.render(Query(sql, dict(rows[0])))
+        try:
+            if self.is_duckdb:
+                self._conn.executemany(r.sql, rows)
+            else:
+                import sqlalchemy as sa
+
+                self._conn.execute(sa.text(r.sql), rows)
+        except Exception as exc:
+            raise self._translate(exc, Query(sql)) from None
+
+    @contextlib.contextmanager
+    def transaction(self) -> Iterator[Warehouse]:
+        """All or nothing: everything written inside is committed together or not at all."""
+        if self.is_duckdb:
+            self._conn.execute("BEGIN TRANSACTION")
+            try:
+                yield self
+            except BaseException:
+                self._conn.execute("ROLLBACK")
+                raise
+            self._conn.execute("COMMIT")
+        else:
+            self._rollback()
+            try:
+                yield self
+            except BaseException:
+                self._rollback()
+                raise
+            self._conn.commit()
+
+    def run_statement(self, stmt: str) -> None:
+        """Run a statement reachlist built itself with no values to bind (DDL)."""
+        try:
+            if self.is_duckdb:
+                self._conn.execute(stmt)
+            else:
+                import sqlalchemy as sa
+
+                self._conn.execute(sa.text(stmt))
+        except Exception as exc:
+            raise WarehouseError(
+                f"Could not change the warehouse {self.display_name}: {_first_line(exc)}.",
+                hint="check that this user may create and write tables there",
+            ) from None
+
+    def _rollback(self) -> None:
+        if not self.is_duckdb:
+            with contextlib.suppress(Exception):
+                self._conn.rollback()
+
+    def load_frame(self, table: str, frame: pl.DataFrame) -> None:
+        """Append a DataFrame to the table a logical table maps to (loaders, the campaign log).
+
+        The frame's columns carry logical names; they are mapped and quoted here."""
+        tmap = self.mapping.table(table)
+        target = quote_qualified(tmap.physical)
+        cols = ", ".join(quote_ident(tmap.column(c)) for c in frame.columns)
+        if self.is_duckdb:
+            self._conn.register("_reachlist_frame", frame.to_arrow())
+            try:
+                src = ", ".join(quote_ident(c) for c in frame.columns)
+                self._conn.execute(f"INSERT INTO {target} ({cols}) SELECT {src} FROM _reachlist_frame")
+            finally:
+                self._conn.unregister("_reachlist_frame")
+        elif self.dialect.name == "postgresql" and frame.height > 1000:
+            # COPY is an order of magnitude faster than INSERT for bulk loads.
+            cursor = self._conn.connection.driver_connection.cursor()
+            with cursor.copy(f"COPY {target} ({cols}) FROM STDIN") as copy:
+                for row in frame.iter_rows():
+                    copy.write_row(row)
+        else:
+            import sqlalchemy as sa
+
+            marks = ", ".join(f":{c}" for c in frame.columns)
+            stmt = sa.text(f"INSERT INTO {target} ({cols}) VALUES ({marks})")
+            self._conn.execute(stmt, frame.to_dicts())
+
+    # -- the contract ----------------------------------------------------------------------------
+    def physical_columns(self, logical_table: str) -> list[PhysicalColumn] | None:
+        """Columns of the table a logical table maps to, or None when the table is missing."""
+        parts = self.mapping.table(logical_table).physical
+        if len(parts) == 1:
+            where = "table_name = :t AND table_schema = current_schema()"
+            params: dict[str, Any] = {"t": parts[0]}
+        else:
+            where = "table_name = :t AND table_schema = :s"
+            params = {"t": parts[-1], "s": parts[-2]}
+        q = Query(
+            "SELECT column_name, data_type FROM information_schema.columns "
+            f"WHERE {where} ORDER BY ordinal_position",
+            params,
+            label="information_schema",
+        )
+        # information_schema is read directly: no logical table names are involved.
+        r = Rendered(*_raw(q, self.dialect))
+        try:
+            if self.is_duckdb:
+                rows = self._conn.execute(r.sql, r.params).fetchall()
+            else:
+                import sqlalchemy as sa
+
+                rows = self._conn.execute(sa.text(r.sql), r.params).fetchall()
+                self._conn.commit()
+        except Exception as exc:
+            self._rollback()
+            raise self._translate(exc, q) from None
+        if not rows:
+            return None
+        return [PhysicalColumn(str(name), str(dtype)) for name, dtype in rows]
+
+    def _translate(self, exc: Exception, query: Query) -> Exception:
+        text = _first_line(exc)
+        lowered = text.lower()
+        what = f" (query {query.label})" if query.label else ""
+        if any(k in lowered for k in ("does not exist", "not found", "no such", "undefined")):
+            return ContractError(
+                f"The warehouse {self.display_name} lacks something a query needs{what}: {text}.",
+                hint="run `reachlist check` to see which table or column is missing and which "
+                "mapping key fixes it",
+            )
+        return WarehouseError(
+            f"Query{what} failed on {self.dialect.name}: {text}.",
+            hint="run `reachlist check`; if it passes, report this with `reachlist sql` output",
+        )
+
+
+def _raw(query: Query, dialect: Dialect) -> tuple[str, dict[str, Any]]:
+    sql = query.sql
+    if dialect.placeholder == "dollar":
+        import re
+
+        sql = re.sub(r"(?<![:\w]):([A-Za-z_]\w*)", r"$\1", sql)
+    return sql, dict(query.params)
+
+
+def _first_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return text[0].rstrip(".") if text else type(exc).__name__
+
+
+def _redact(target: str) -> str:
+    """Hide a password in a URL before it is printed."""
+    if "://" not in target or "@" not in target:
+        return target
+    scheme, rest = target.split("://", 1)
+    creds, host = rest.rsplit("@", 1)
+    user = creds.split(":", 1)[0]
+    return f"{scheme}://{user}:***@{host}" if ":" in creds else target

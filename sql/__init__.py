@@ -1,0 +1,1 @@
+"""Readable SQL templates, written against the logical warehouse contract."""

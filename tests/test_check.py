@@ -1,0 +1,170 @@
+"""The warehouse contract: check, mapping files and every bad-input case."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import duckdb
+import pytest
+from click.testing import CliRunner
+
+from reachlist.check import check_warehouse
+from reachlist.cli import main
+from reachlist.errors import ContractError, InputError, WarehouseError
+from reachlist.schema import Mapping
+from reachlist.warehouse import Warehouse
+from tests import handmade as hm
+
+PRODUCTS = [hm.product("A"), hm.product("B"), hm.product("C", age_restricted=True)]
+CUSTOMERS = [hm.customer(1), hm.customer(2, consent=False), hm.customer(3, birth=None)]
+PURCHASES = [
+    (1, "2025-01-05", "A", 1),
+    (1, "2025-01-05", "A", 1),  # exact duplicate line
+    (1, "2025-02-01", "A", -1),  # a return
+    (2, "2025-03-01", "B", 2),
+    (3, "2025-04-01", "ZZZ-UNKNOWN", 1),  # SKU missing from products
+]
+
+
+@pytest.fixture
+def tiny(tmp_path: Path) -> Path:
+    return hm.build(
+        tmp_path / "tiny.duckdb",
+        customers=CUSTOMERS,
+        products=PRODUCTS,
+        purchases=PURCHASES,
+        suppressions=[(3, "asked", None)],
+    )
+
+
+def test_check_counts_rows_and_quirks(tiny: Path) -> None:
+    with Warehouse.open(tiny) as wh:
+        c = check_warehouse(wh).counts
+    assert (c["customers"], c["products"], c["orders"], c["order_lines"]) == (3, 3, 4, 5)
+    assert c["return_lines"] == 1
+    assert c["duplicate_lines"] == 1
+    assert (c["unknown_sku_lines"], c["unknown_skus"]) == (1, 1)
+    assert c["customers_without_consent"] == 1
+    assert c["customers_age_unknown"] == 1
+    assert c["customers_suppressed"] == 1
+    assert c["age_restricted_products"] == 1
+    assert c["products_never_sold"] == 1  # C
+    assert str(c["first_order_at"]).startswith("2025-01-05")
+
+
+def test_foreign_names_pass_through_a_mapping_file(tmp_path: Path) -> None:
+    names = {"customers": "shopper", "orders": "till_receipt", "order_lines": "receipt_row"}
+    path = hm.build(
+        tmp_path / "foreign.duckdb",
+        customers=CUSTOMERS,
+        products=PRODUCTS,
+        purchases=PURCHASES,
+        names=names,
+    )
+    con = duckdb.connect(str(path))
+    con.execute("CREATE SCHEMA crm")
+    con.execute("ALTER TABLE shopper RENAME COLUMN marketing_consent TO opt_in")
+    con.execute("CREATE TABLE crm.shopper AS SELECT * FROM shopper")
+    con.execute("DROP TABLE shopper")
+    con.execute("ALTER TABLE receipt_row RENAME COLUMN sku TO article_code")
+    con.close()
+    mapping = tmp_path / "map.toml"
+    mapping.write_text(
+        '[customers]\ntable = "crm.shopper"\nmarketing_consent = "opt_in"\n\n'
+        '[orders]\ntable = "till_receipt"\n\n'
+        '[order_lines]\ntable = "receipt_row"\nsku = "article_code"\n'
+    )
+    with Warehouse.open(path, Mapping.from_toml(mapping)) as wh:
+        c = check_warehouse(wh).counts
+    assert (c["customers"], c["order_lines"], c["unknown_sku_lines"]) == (3, 5, 1)
+    assert c["customers_without_consent"] == 1
+    result = CliRunner().invoke(main, ["check", "-w", str(path), "-m", str(mapping)])
+    assert result.exit_code == 0, result.output
+    assert "crm.shopper" in result.output
+
+
+def _error_of(path: Path, mapping: Mapping | None = None) -> ContractError:
+    with Warehouse.open(path, mapping) as wh, pytest.raises(ContractError) as info:
+        check_warehouse(wh)
+    return info.value
+
+
+def test_missing_table_names_table_and_mapping_key(tiny: Path) -> None:
+    con = duckdb.connect(str(tiny))
+    con.execute("DROP TABLE suppressions")
+    con.close()
+    msg = str(_error_of(tiny))
+    assert "'suppressions'" in msg and "[suppressions] table" in msg
+
+
+def test_missing_column_names_column_and_mapping_key(tiny: Path) -> None:
+    con = duckdb.connect(str(tiny))
+    con.execute("ALTER TABLE orders RENAME COLUMN ordered_at TO placed")
+    con.close()
+    msg = str(_error_of(tiny))
+    assert "orders.ordered_at" in msg and "[orders] ordered_at" in msg and "placed" in msg
+
+
+def test_wrong_type_names_expected_and_found(tiny: Path) -> None:
+    con = duckdb.connect(str(tiny))
+    con.execute("ALTER TABLE customers ALTER customer_id TYPE VARCHAR")
+    con.close()
+    msg = str(_error_of(tiny))
+    assert "customers.customer_id" in msg and "integer" in msg and "VARCHAR" in msg
+
+
+def test_missing_file_and_unreachable_url() -> None:
+    with pytest.raises(InputError, match="does not exist"):
+        Warehouse.open("/nonexistent/dir/w.duckdb")
+    with pytest.raises(WarehouseError, match="Cannot reach"):
+        Warehouse.open("postgresql+psycopg://nobody@127.0.0.1:1/none?connect_timeout=2")
+    with pytest.raises(WarehouseError, match="Cannot use"):
+        Warehouse.open("nosuchdriver://x/y")
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("[custmers]\ntable='x'\n", "did you mean 'customers'"),
+        ("[orders]\norderd_at='x'\n", "did you mean 'ordered_at'"),
+        ("[orders]\ntable=3\n", "non-empty string"),
+        ("[orders\n", "not valid TOML"),
+        ("orders = 'x'\n", "must be a table"),
+    ],
+)
+def test_bad_mapping_files(tmp_path: Path, text: str, expected: str) -> None:
+    p = tmp_path / "m.toml"
+    p.write_text(text)
+    with pytest.raises(InputError, match=expected):
+        Mapping.from_toml(p)
+
+
+def test_cli_prints_one_error_line_and_no_traceback(tiny: Path) -> None:
+    con = duckdb.connect(str(tiny))
+    con.execute("DROP TABLE products")
+    con.close()
+    result = CliRunner().invoke(main, ["check", "-w", str(tiny)])
+    assert result.exit_code == 2
+    lines = [ln for ln in result.output.splitlines() if ln.strip()]
+    assert len(lines) == 1 and lines[0].startswith("Error:"), result.output
+    assert "Traceback" not in result.output
+
+
+@pytest.mark.postgres
+def test_postgres_gives_the_same_counts(tiny: Path, pg_url: str, pg_schema: str, tmp_path: Path) -> None:
+    from reachlist.transfer import copy_warehouse
+
+    copied = copy_warehouse(str(tiny), pg_url, schema=pg_schema)
+    assert copied["order_lines"] == 5
+    with Warehouse.open(tiny) as wh:
+        expected = check_warehouse(wh).counts
+    with Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as wh:
+        got = check_warehouse(wh).counts
+    assert {k: v for k, v in got.items() if "order_at" not in k} == {
+        k: v for k, v in expected.items() if "order_at" not in k
+    }
+    assert str(got["first_order_at"]) == str(expected["first_order_at"])
+    from reachlist.errors import StateError
+
+    with pytest.raises(StateError, match="--replace"):
+        copy_warehouse(str(tiny), pg_url, schema=pg_schema)
