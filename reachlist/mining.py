@@ -1,0 +1,1044 @@
+"""In-memory mining: baskets -> frequent itemsets -> rules X -> y with every measure.
+
+Baskets are held twice, once per access pattern:
+
+- vertical bitmaps, one row of packed ``uint64`` words per item (bit ``b`` of a row is set when
+  basket ``b`` holds the item); counting a set of items is an AND of rows plus a popcount;
+- a basket-major index (CSR: ``indptr``, ``indices``) used to cut out the baskets that hold one
+  item (a *projection*), which is much cheaper than gathering bits from every item's row.
+
+Mining is Eclat (depth-first, vertical) on those bitmaps: every node of the search ANDs the
+prefix's row into the rows of all candidate extensions at once (one numpy call per node) and keeps
+the extensions that reach the minimum count. ``target_rules`` mines antecedents X only inside the
+projection of the target y (so every count found there is n(X+y)) and then counts n(X) on the full
+bitmaps, one numpy call per search node.
+
+Measures (DESIGN.md), with N baskets and n(.) the number of baskets holding all of a set:
+support = n(X+y)/N, coverage = n(X)/N, confidence = n(X+y)/n(X), lift = confidence/(n(y)/N),
+leverage = support - coverage*n(y)/N, conviction = (1 - n(y)/N)/(1 - confidence) (+inf when
+confidence is 1 and n(y) < N; NaN when both are 1), p_value = one-sided Fisher exact test for
+positive association, P(n(X+y) >= observed) under the hypergeometric null with all margins fixed.
+
+A rule is *productive* when its confidence is strictly greater than the confidence of every rule
+X' -> y with X' a proper subset of X, the empty antecedent included (whose confidence is n(y)/N);
+so a one-item rule is productive iff its lift is > 1.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from collections.abc import Iterable, Sequence
+from fractions import Fraction
+from typing import Any
+
+import numpy as np
+import polars as pl
+import pyarrow as pa
+from scipy.stats import hypergeom
+
+from reachlist.errors import InputError
+
+__all__ = [
+    "Baskets",
+    "CORRECTIONS",
+    "MEASURES",
+    "RULE_COLUMNS",
+    "ITEMSET_COLUMNS",
+    "adjust_p_values",
+    "frequent_itemsets",
+    "rule_id",
+    "rule_measures",
+    "rules_from_counts",
+    "rules_from_itemsets",
+    "target_rules",
+    "top_rules",
+]
+
+CORRECTIONS = ("holm", "bonferroni", "none")
+"""Multiple-testing corrections for ``p_adjusted`` (family: every rule that met min support)."""
+
+MEASURES = (
+    "support",
+    "coverage",
+    "confidence",
+    "lift",
+    "leverage",
+    "conviction",
+    "p_value",
+    "p_adjusted",
+    "n_both",
+    "n_antecedent",
+)
+"""Columns a rule table can be sorted by (descending; p-values ascending)."""
+
+RULE_COLUMNS = {
+    "rule_id": pl.String,
+    "antecedent": pl.List(pl.String),
+    "consequent": pl.String,
+    "n_baskets": pl.Int64,
+    "n_antecedent": pl.Int64,
+    "n_consequent": pl.Int64,
+    "n_both": pl.Int64,
+    "support": pl.Float64,
+    "coverage": pl.Float64,
+    "confidence": pl.Float64,
+    "lift": pl.Float64,
+    "leverage": pl.Float64,
+    "conviction": pl.Float64,
+    "p_value": pl.Float64,
+    "p_adjusted": pl.Float64,
+    "correction": pl.String,
+    "n_tested": pl.Int64,
+    "significant": pl.Boolean,
+    "productive": pl.Boolean,
+}
+"""Schema of every rule table this module returns."""
+
+ITEMSET_COLUMNS = {
+    "items": pl.List(pl.String),
+    "size": pl.Int64,
+    "count": pl.Int64,
+    "support": pl.Float64,
+}
+"""Schema of ``frequent_itemsets``."""
+
+_U64 = np.dtype("<u8")
+_NO_LIMIT = 1 << 30
+_PROJECT_FACTOR = 4.0
+_PAIR_BLOCK = 1 << 18  # words of the AND buffer in _frequent_pairs
+_PACK_BUFFER = 1 << 26  # bytes of the bit-scatter buffer in _pack_bits
+
+
+# --------------------------------------------------------------------------------------------
+# Baskets
+# --------------------------------------------------------------------------------------------
+
+
+class Baskets:
+    """A set of baskets (each a set of items), held as vertical bitmaps plus a CSR index.
+
+    Build with ``from_arrays``, ``from_frame`` or ``from_transactions``. ``n_baskets`` is the
+    number of distinct baskets given; a larger explicit ``n_baskets`` adds empty baskets (they
+    count in N but hold nothing). An item repeated inside a basket counts once.
+    """
+
+    __slots__ = ("bits", "labels", "item_counts", "indptr", "indices", "basket_ids", "_index")
+
+    def __init__(
+        self,
+        basket_codes: np.ndarray,
+        item_codes: np.ndarray,
+        labels: Sequence[str],
+        n_baskets: int,
+        basket_ids: np.ndarray | None = None,
+    ) -> None:
+        """Low level: ``basket_codes`` in [0, n_baskets), ``item_codes`` in [0, len(labels))."""
+        labels = [str(x) for x in labels]
+        if len(set(labels)) != len(labels):
+            raise InputError("item labels must be unique.", hint="pass each label once")
+        n_items = len(labels)
+        n = int(n_baskets)
+        b = np.asarray(basket_codes, dtype=np.int64).ravel()
+        i = np.asarray(item_codes, dtype=np.int64).ravel()
+        if b.shape != i.shape:
+            raise InputError(
+                f"basket and item arrays differ in length ({b.size} vs {i.size}).",
+                hint="pass one basket index per item index",
+            )
+        if b.size and (b.min() < 0 or b.max() >= n):
+            raise InputError(f"basket codes must lie in [0, {n}).")
+        if i.size and (i.min() < 0 or i.max() >= n_items):
+            raise InputError(f"item codes must lie in [0, {n_items}).")
+        # one key per (basket, item): sorted unique keys give the deduplicated CSR directly
+        shift = max(n_items - 1, 1).bit_length()
+        key = (b << shift) | i
+        if key.size > 1 and not bool(np.all(key[1:] > key[:-1])):  # else sorted and distinct
+            key.sort()
+            fresh = np.empty(key.size, dtype=bool)
+            fresh[0] = True
+            np.not_equal(key[1:], key[:-1], out=fresh[1:])
+            key = key[fresh]
+        i = (key & ((1 << shift) - 1)).astype(np.int32)
+        key >>= shift  # now the basket codes, ascending
+        self.indptr = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(np.bincount(key, minlength=n), out=self.indptr[1:])
+        self.indices = i
+        self.bits = _pack_bits(i, key, n_items, _n_words(n))
+        self.item_counts = np.bincount(i, minlength=n_items).astype(np.int64)
+        self.labels = np.array(labels, dtype=object)
+        self.basket_ids = basket_ids
+        self._index: dict[str, int] | None = None
+        for arr in (self.indptr, self.indices, self.bits, self.item_counts, self.labels):
+            arr.flags.writeable = False
+
+    # -- constructors ---------------------------------------------------------------------
+
+    @classmethod
+    def from_arrays(
+        cls,
+        basket: Any,
+        item: Any,
+        *,
+        labels: Sequence[str] | None = None,
+        n_baskets: int | None = None,
+    ) -> Baskets:
+        """Baskets from two equal-length arrays (one row per basket line).
+
+        ``basket`` holds any basket key (ints or strings). ``item`` holds item indices into
+        ``labels`` when ``labels`` is given, else any item values (their ``str`` is the label).
+        """
+        basket_codes, basket_ids = _factorize(pl.Series("basket", basket))
+        if labels is None:
+            item_codes, uniques = _factorize(pl.Series("item", item))
+            labels = [str(x) for x in uniques]
+        else:
+            item_codes = np.asarray(item, dtype=np.int64)
+        return cls(basket_codes, item_codes, labels, _n_checked(basket_ids.size, n_baskets),
+                   basket_ids)
+
+    @classmethod
+    def from_frame(
+        cls,
+        frame: pl.DataFrame,
+        *,
+        basket: str = "basket",
+        item: str = "item",
+        n_baskets: int | None = None,
+    ) -> Baskets:
+        """Baskets from a polars DataFrame with one row per basket line (columns basket, item)."""
+        for col in (basket, item):
+            if col not in frame.columns:
+                raise InputError(
+                    f"column {col!r} not in the frame (columns: {', '.join(frame.columns)}).",
+                    hint="name the basket and item columns",
+                )
+        return cls.from_arrays(frame[basket], frame[item], n_baskets=n_baskets)
+
+    @classmethod
+    def from_transactions(
+        cls,
+        transactions: Iterable[Iterable[Any]],
+        *,
+        counts: Iterable[int] | None = None,
+        n_baskets: int | None = None,
+    ) -> Baskets:
+        """Baskets from lists of items; ``counts[k]`` repeats transaction k (weighted data)."""
+        rows = [list(dict.fromkeys(str(x) for x in t)) for t in transactions]
+        weights = [1] * len(rows) if counts is None else [int(c) for c in counts]
+        if len(weights) != len(rows) or any(w < 0 for w in weights):
+            raise InputError("counts must give one non-negative count per transaction.")
+        labels = sorted({x for r in rows for x in r})
+        code = {x: k for k, x in enumerate(labels)}
+        b_parts, i_parts, start = [], [], 0
+        for r, w in zip(rows, weights, strict=True):
+            if r and w:
+                ids = np.array([code[x] for x in r], dtype=np.int64)
+                b_parts.append(np.repeat(np.arange(start, start + w, dtype=np.int64), ids.size))
+                i_parts.append(np.tile(ids, w))
+            start += w
+        b = np.concatenate(b_parts) if b_parts else np.zeros(0, np.int64)
+        i = np.concatenate(i_parts) if i_parts else np.zeros(0, np.int64)
+        return cls(b, i, labels, _n_checked(start, n_baskets))
+
+    # -- accessors ------------------------------------------------------------------------
+
+    @property
+    def n_baskets(self) -> int:
+        return self.indptr.size - 1
+
+    @property
+    def n_items(self) -> int:
+        return self.labels.size
+
+    def __len__(self) -> int:
+        return self.n_baskets
+
+    def __repr__(self) -> str:
+        return f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, lines={self.indices.size})"
+
+    def item_index(self, label: str) -> int:
+        """Index of an item label; ``InputError`` when the item is in no basket's vocabulary."""
+        if self._index is None:
+            self._index = {x: k for k, x in enumerate(self.labels)}
+        try:
+            return self._index[str(label)]
+        except KeyError:
+            raise InputError(
+                f"item {label!r} is not in the baskets ({self.n_items} items).",
+                hint="check the item code and the item level",
+            ) from None
+
+    def count(self, items: Iterable[str]) -> int:
+        """Number of baskets holding every item of ``items`` (N for the empty set)."""
+        ids = [self.item_index(x) for x in items]
+        if not ids:
+            return self.n_baskets
+        row = self.bits[ids[0]].copy()
+        for k in ids[1:]:
+            row &= self.bits[k]
+        return int(np.bitwise_count(row).sum(dtype=np.int64))
+
+    def baskets_holding(self, item: int) -> np.ndarray:
+        """Basket codes (ascending) of the baskets that hold item index ``item``."""
+        return _bit_positions(self.bits[item])
+
+
+def _n_checked(seen: int, n_baskets: int | None) -> int:
+    if n_baskets is None:
+        return int(seen)
+    if int(n_baskets) < seen:
+        raise InputError(
+            f"n_baskets={n_baskets} is below the {seen} distinct baskets given.",
+            hint="leave n_baskets out, or give at least the number of baskets",
+        )
+    return int(n_baskets)
+
+
+def _factorize(s: pl.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Dense codes (0..k-1, in sorted order of the values) and the sorted unique values."""
+    if s.null_count():
+        raise InputError(f"column {s.name!r} has {s.null_count()} missing values.",
+                         hint="drop or fill them first")
+    if s.len() == 0:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    if s.dtype.is_integer():
+        v = s.to_numpy().astype(np.int64, copy=False)
+        lo, hi = int(v.min()), int(v.max())
+        if hi - lo <= 4 * v.size + 1024:  # dense keys: a presence table, no sort
+            present = np.zeros(hi - lo + 1, dtype=bool)
+            present[v - lo] = True
+            if present.all():
+                return v - lo, np.arange(lo, hi + 1, dtype=np.int64)
+            rank = np.cumsum(present) - 1
+            return rank[v - lo], np.flatnonzero(present) + lo
+    codes = (s.rank("dense") - 1).cast(pl.Int64).to_numpy()
+    return codes, s.unique().sort().to_numpy()
+
+
+# --------------------------------------------------------------------------------------------
+# Bitmap primitives
+# --------------------------------------------------------------------------------------------
+
+
+def _n_words(n_bits: int) -> int:
+    return (int(n_bits) + 63) >> 6
+
+
+def _pack_bits(rows: np.ndarray, cols: np.ndarray, n_rows: int, n_words: int) -> np.ndarray:
+    """Bit matrix (n_rows, n_words) with bit ``cols[k]`` of row ``rows[k]`` set.
+
+    ``cols`` must be ascending (basket-major order); repeats are fine. Bits are scattered into a
+    byte-per-bit buffer over a band of columns at a time (below 64 MiB) and packed with
+    ``np.packbits``.
+    """
+    n_bits = n_words * 64
+    out = np.zeros((n_rows, n_words), dtype=_U64)
+    if rows.size == 0 or n_bits == 0:
+        return out
+    band = min(n_bits, max(64, (_PACK_BUFFER // n_rows) // 64 * 64))
+    buf = np.empty(n_rows * band, dtype=bool)
+    rows = rows.astype(np.int64, copy=False)
+    for c0 in range(0, n_bits, band):
+        c1 = min(n_bits, c0 + band)
+        width = c1 - c0
+        lo, hi = np.searchsorted(cols, (c0, c1))
+        if lo == hi:
+            continue
+        view = buf[: n_rows * width]
+        view[:] = False
+        view[rows[lo:hi] * width + (cols[lo:hi] - c0)] = True
+        packed = np.packbits(view, bitorder="little").view(_U64)
+        out[:, c0 >> 6 : c1 >> 6] = packed.reshape(n_rows, width >> 6)
+    return out
+
+
+def _popcounts(m: np.ndarray) -> np.ndarray:
+    """Number of set bits in each row of a (r, w) word matrix."""
+    if m.shape[-1] == 0:
+        return np.zeros(m.shape[:-1], dtype=np.int64)
+    return np.bitwise_count(m).sum(axis=-1, dtype=np.int64)
+
+
+def _bit_positions(row: np.ndarray) -> np.ndarray:
+    """Positions of the set bits of one packed row, ascending."""
+    return np.flatnonzero(np.unpackbits(row.view(np.uint8), bitorder="little"))
+
+
+def _project(baskets: Baskets, rows: np.ndarray, keep_items: np.ndarray):
+    """Bitmaps of the items ``keep_items`` restricted to the baskets ``rows``.
+
+    Returns (bits (len(keep_items), ceil(len(rows)/64)), counts per kept item). Cost is
+    proportional to the number of lines in those baskets, not to the number of items.
+    """
+    n_keep = keep_items.size
+    width = _n_words(rows.size)
+    slot = np.full(baskets.n_items, -1, dtype=np.int64)
+    slot[keep_items] = np.arange(n_keep)
+    starts = baskets.indptr[rows]
+    lens = baskets.indptr[rows + 1] - starts
+    total = int(lens.sum())
+    if total == 0 or n_keep == 0:
+        return np.zeros((n_keep, width), dtype=_U64), np.zeros(n_keep, dtype=np.int64)
+    offsets = np.repeat(starts - (np.cumsum(lens) - lens), lens)
+    items = baskets.indices[np.arange(total, dtype=np.int64) + offsets]
+    local = np.repeat(np.arange(rows.size, dtype=np.int64), lens)
+    s = slot[items]
+    sel = s >= 0
+    s, local = s[sel], local[sel]
+    return _pack_bits(s, local, n_keep, width), np.bincount(s, minlength=n_keep).astype(np.int64)
+
+
+# --------------------------------------------------------------------------------------------
+# Eclat
+# --------------------------------------------------------------------------------------------
+
+
+class _Found:
+    """Itemsets found, grouped by search node: (prefix ids, extension rows (m, e), counts (m,))."""
+
+    __slots__ = ("groups",)
+
+    def __init__(self) -> None:
+        self.groups: list[tuple[tuple[int, ...], np.ndarray, np.ndarray]] = []
+
+    def add(self, prefix: tuple[int, ...], ids: np.ndarray, counts: np.ndarray) -> None:
+        """Itemsets prefix + (ids[k],)."""
+        if ids.size:
+            self.groups.append((prefix, ids.reshape(-1, 1), counts))
+
+    def add_block(self, prefix: tuple[int, ...], ext: np.ndarray, counts: np.ndarray) -> None:
+        """Itemsets prefix + tuple(ext[k])."""
+        if ext.shape[0]:
+            self.groups.append((prefix, ext, counts))
+
+    def matrix(self, pad: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(ids (m, k) sorted per row, padded with ``pad``; sizes (m,); counts (m,))."""
+        if not self.groups:
+            return np.zeros((0, 1), np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64)
+        k = max(len(p) + e.shape[1] for p, e, _ in self.groups)
+        blocks, sizes, counts = [], [], []
+        for prefix, ext, cnt in self.groups:
+            m, size = ext.shape[0], len(prefix) + ext.shape[1]
+            block = np.full((m, k), pad, dtype=np.int64)
+            if prefix:
+                block[:, : len(prefix)] = prefix
+            block[:, len(prefix) : size] = ext
+            blocks.append(block)
+            sizes.append(np.full(m, size, dtype=np.int64))
+            counts.append(cnt)
+        mat = np.sort(np.concatenate(blocks), axis=1)
+        return mat, np.concatenate(sizes), np.concatenate(counts)
+
+
+def _frequent_pairs(bits: np.ndarray, min_count: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """All row pairs i < j whose AND holds >= min_count bits: (i, j, count), in blocks of rows."""
+    r, w = bits.shape
+    out_i, out_j, out_c = [], [], []
+    step = max(1, _PAIR_BLOCK // max(r * w, 1))
+    for k0 in range(0, r - 1, step):
+        k1 = min(r - 1, k0 + step)
+        counts = _popcounts(bits[k0:k1, None, :] & bits[None, k0 + 1 :, :])
+        # column c stands for row k0 + 1 + c; keep it only when it is after the row (j > i)
+        upper = np.arange(k0 + 1, r)[None, :] > np.arange(k0, k1)[:, None]
+        ii, jj = np.nonzero(upper & (counts >= min_count))
+        out_i.append(ii + k0)
+        out_j.append(jj + k0 + 1)
+        out_c.append(counts[ii, jj])
+    if not out_i:
+        z = np.zeros(0, np.int64)
+        return z, z, z
+    return np.concatenate(out_i), np.concatenate(out_j), np.concatenate(out_c)
+
+
+def _eclat(
+    bits: np.ndarray,
+    ids: np.ndarray,
+    counts: np.ndarray,
+    min_count: int,
+    max_size: int,
+    prefix: tuple[int, ...],
+    found: _Found,
+    pair_leaves: bool = True,
+) -> None:
+    """Depth-first search below ``prefix``.
+
+    ``bits`` holds the rows (restricted to the baskets holding ``prefix``) of the candidate items
+    ``ids``, all frequent (``counts >= min_count``) and ordered by ascending count; item k is
+    extended only by the items after it. With ``pair_leaves`` the last level is counted for all
+    pairs of rows at once (found as blocks of two extension items) instead of row by row.
+    """
+    found.add(prefix, ids, counts)
+    if len(prefix) + 1 >= max_size or ids.size < 2:
+        return
+    leaf = len(prefix) + 2 >= max_size
+    if leaf and pair_leaves:
+        i, j, c = _frequent_pairs(bits, min_count)
+        found.add_block(prefix, np.stack([ids[i], ids[j]], axis=1), c)
+        return
+    for k in range(ids.size - 1):
+        row, rest = bits[k], bits[k + 1 :]
+        if 2 * counts[k] < row.size:  # sparse prefix: keep only the words it occupies
+            nz = np.flatnonzero(row)
+            row, rest = row[nz], rest[:, nz]
+        child = rest & row
+        cc = _popcounts(child)
+        keep = np.flatnonzero(cc >= min_count)
+        if keep.size == 0:
+            continue
+        sub_prefix = prefix + (int(ids[k]),)
+        if leaf:
+            found.add(sub_prefix, ids[k + 1 :][keep], cc[keep])
+            continue
+        keep = keep[np.argsort(cc[keep], kind="stable")]
+        _eclat(child[keep], ids[k + 1 :][keep], cc[keep], min_count, max_size, sub_prefix, found,
+               pair_leaves)
+
+
+def _mine_all(baskets: Baskets, min_count: int, max_size: int) -> _Found:
+    """Every itemset of 1..max_size items held by >= min_count baskets."""
+    found = _Found()
+    counts = baskets.item_counts
+    freq = np.flatnonzero(counts >= min_count)
+    freq = freq[np.argsort(counts[freq], kind="stable")]
+    found.add((), freq, counts[freq])
+    if max_size < 2 or freq.size < 2:
+        return found
+    n_words = baskets.bits.shape[1]
+    mean_len = baskets.indices.size / max(baskets.n_baskets, 1)
+    for k in range(freq.size - 1):
+        item, succ = int(freq[k]), freq[k + 1 :]
+        # cut the item's baskets out (cost ~ lines in them) or AND on full rows (~ rows x words)
+        if counts[item] * (mean_len + 4) < succ.size * n_words * _PROJECT_FACTOR:
+            sub, cc = _project(baskets, baskets.baskets_holding(item), succ)
+        else:
+            sub = baskets.bits[succ] & baskets.bits[item]
+            cc = _popcounts(sub)
+        keep = np.flatnonzero(cc >= min_count)
+        if keep.size == 0:
+            continue
+        keep = keep[np.argsort(cc[keep], kind="stable")]
+        _eclat(sub[keep], succ[keep], cc[keep], min_count, max_size, (item,), found)
+    return found
+
+
+# --------------------------------------------------------------------------------------------
+# Measures, p-values, corrections
+# --------------------------------------------------------------------------------------------
+
+
+def rule_measures(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> dict[str, np.ndarray]:
+    """Every measure of rules X -> y from raw counts (broadcast over numpy arrays).
+
+    ``n`` baskets, ``n_x`` = n(X), ``n_y`` = n(y), ``n_xy`` = n(X+y). Returns float arrays:
+    support, coverage, confidence, lift, leverage, conviction, p_value (one-sided Fisher exact
+    test for positive association). Undefined values are NaN (confidence with n(X) = 0,
+    conviction 0/0 when confidence and P(y) are both 1); conviction is +inf when confidence is 1
+    and P(y) < 1.
+    """
+    n, n_x, n_y, n_xy = np.broadcast_arrays(
+        *(np.asarray(v, dtype=np.int64) for v in (n, n_x, n_y, n_xy))
+    )
+    if np.any(n_xy < 0) or np.any(n_xy > np.minimum(n_x, n_y)) or np.any(np.maximum(n_x, n_y) > n):
+        raise InputError("inconsistent counts: need 0 <= n_xy <= min(n_x, n_y) and n_x, n_y <= n.")
+    fn, fx, fy, fxy = (v.astype(np.float64) for v in (n, n_x, n_y, n_xy))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        support = fxy / fn
+        coverage = fx / fn
+        confidence = fxy / fx
+        lift = (fxy * fn) / (fx * fy)
+        leverage = (fxy * fn - fx * fy) / (fn * fn)
+        # (1 - n_y/N) / (1 - n_xy/n_x) = (N - n_y) n_x / (N (n_x - n_xy)), exact integers inside
+        conviction = ((fn - fy) * fx) / (fn * (fx - fxy))
+    p_value = fisher_greater(n, n_x, n_y, n_xy)
+    return {
+        "support": support,
+        "coverage": coverage,
+        "confidence": confidence,
+        "lift": lift,
+        "leverage": leverage,
+        "conviction": conviction,
+        "p_value": p_value,
+    }
+
+
+def fisher_greater(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> np.ndarray:
+    """One-sided Fisher exact p-value, H1 positive association: P(K >= n_xy), K hypergeometric
+    (population n, n_y successes, n_x draws); equal to
+    ``scipy.stats.fisher_exact([[n_xy, n_x-n_xy], [n_y-n_xy, n-n_x-n_y+n_xy]], "greater")``."""
+    n, n_x, n_y, n_xy = (np.asarray(v, dtype=np.int64) for v in (n, n_x, n_y, n_xy))
+    p = hypergeom.sf(n_xy - 1, n, n_y, n_x)
+    return np.clip(np.asarray(p, dtype=np.float64), 0.0, 1.0)
+
+
+def adjust_p_values(p: Any, correction: str = "holm") -> np.ndarray:
+    """Family-wise adjusted p-values: ``holm`` (step-down), ``bonferroni`` or ``none``."""
+    p = np.asarray(p, dtype=np.float64)
+    m = p.size
+    if correction == "none" or m == 0:
+        return p.copy()
+    if correction == "bonferroni":
+        return np.minimum(1.0, p * m)
+    if correction == "holm":
+        order = np.argsort(p, kind="stable")
+        stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
+        out = np.empty(m)
+        out[order] = np.minimum(1.0, stepped)
+        return out
+    raise InputError(
+        f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}"
+    )
+
+
+def rule_id(antecedent: Iterable[str], consequent: str) -> str:
+    """Stable short id of a rule: a hash of the sorted antecedent labels and the consequent."""
+    text = "\x1f".join(sorted(str(a) for a in antecedent)) + "\x1e" + str(consequent)
+    return "R" + hashlib.blake2b(text.encode("utf-8"), digest_size=6).hexdigest()
+
+
+# --------------------------------------------------------------------------------------------
+# Row lookups (itemsets and rules as padded id rows)
+# --------------------------------------------------------------------------------------------
+
+
+def _lookup(ref: np.ndarray, query: np.ndarray, base: int) -> np.ndarray:
+    """Row index in ``ref`` of each row of ``query`` (-1 when absent). Values lie in [0, base)."""
+    if query.shape[0] == 0:
+        return np.zeros(0, dtype=np.int64)
+    if ref.shape[0] == 0:
+        return np.full(query.shape[0], -1, dtype=np.int64)
+    width = ref.shape[1]
+    if width * math.log2(max(base, 2)) < 62:
+        radix = base ** np.arange(width - 1, -1, -1, dtype=np.int64)
+        rk, qk = ref @ radix, query @ radix
+    else:  # keys would overflow int64: number the distinct rows instead
+        _, inv = np.unique(np.concatenate([ref, query]), axis=0, return_inverse=True)
+        inv = inv.ravel()
+        rk, qk = inv[: ref.shape[0]], inv[ref.shape[0] :]
+    order = np.argsort(rk, kind="stable")
+    pos = np.searchsorted(rk, qk, sorter=order)
+    pos = np.minimum(pos, rk.size - 1)
+    hit = order[pos]
+    return np.where(rk[hit] == qk, hit, -1)
+
+
+def _productive(ante: np.ndarray, size: np.ndarray, cons: np.ndarray, n: int,
+                n_x: np.ndarray, n_y: np.ndarray, n_xy: np.ndarray, pad: int) -> np.ndarray:
+    """Confidence strictly above that of every rule X' -> y, X' a proper subset of X (empty
+    included). Exact: fractions are compared by cross-multiplying integer counts."""
+    m = ante.shape[0]
+    # best (num, den) confidence among proper subsets; start from the empty antecedent: n_y / n
+    best_num = n_y.astype(np.int64).copy()
+    best_den = np.full(m, n, dtype=np.int64)
+    keys = np.concatenate([ante, cons[:, None]], axis=1)
+    for s in range(2, int(size.max(initial=0)) + 1):
+        rows = np.flatnonzero(size == s)
+        for drop in range(s):
+            sub = np.delete(ante[rows], drop, axis=1)
+            sub = np.concatenate([sub, np.full((rows.size, 1), pad, np.int64)], axis=1)
+            hit = _lookup(keys, np.concatenate([sub, cons[rows, None]], axis=1), pad + 1)
+            if np.any(hit < 0):
+                raise InputError(
+                    "rule counts are not closed under subsets: a rule X' -> y is missing for a "
+                    "subset X' of some antecedent X.",
+                    hint="give the counts of every subset (they meet min support whenever X does)",
+                )
+            # the subset's own confidence and the best of its own subsets (sizes done in order)
+            for num, den in ((n_xy[hit], n_x[hit]), (best_num[hit], best_den[hit])):
+                better = num * best_den[rows] > best_num[rows] * den
+                best_num[rows] = np.where(better, num, best_num[rows])
+                best_den[rows] = np.where(better, den, best_den[rows])
+    return n_xy * best_den > best_num * n_x
+
+
+# --------------------------------------------------------------------------------------------
+# Rule tables
+# --------------------------------------------------------------------------------------------
+
+
+def _list_column(ids: np.ndarray, sizes: np.ndarray, labels: np.ndarray) -> pl.Series:
+    """list[str] column from padded id rows (ids sorted ascending, padding after)."""
+    m = ids.shape[0]
+    offsets = np.zeros(m + 1, dtype=np.int32)
+    np.cumsum(sizes, out=offsets[1:])
+    flat = ids[np.arange(ids.shape[1])[None, :] < sizes[:, None]]
+    values = pa.array(labels[flat].tolist() if flat.size else [], type=pa.string())
+    return pl.Series(pa.ListArray.from_arrays(pa.array(offsets), values))
+
+
+def _empty_rules() -> pl.DataFrame:
+    return pl.DataFrame(schema=RULE_COLUMNS)
+
+
+def _resolve_min_count(n: int, min_count: int | None, min_support: float | None) -> int:
+    if (min_count is None) == (min_support is None):
+        raise InputError(
+            "give exactly one of min_count and min_support.",
+            hint="e.g. min_support=0.001 (0.1% of baskets) or min_count=50",
+        )
+    if min_count is not None:
+        if int(min_count) < 1:
+            raise InputError(f"min_count must be at least 1, got {min_count}.")
+        return int(min_count)
+    if not 0.0 < float(min_support) <= 1.0:
+        raise InputError(f"min_support must be in (0, 1], got {min_support}.")
+    # exact decimal arithmetic: min_support=0.1 with N=30 means 3 baskets, not 4
+    return max(1, math.ceil(Fraction(repr(float(min_support))) * n))
+
+
+def _sort_rules(df: pl.DataFrame, sort_by: str) -> pl.DataFrame:
+    if sort_by not in MEASURES:
+        raise InputError(f"cannot sort rules by {sort_by!r}.", hint=f"use one of {', '.join(MEASURES)}")
+    ascending = sort_by in ("p_value", "p_adjusted")
+    key = pl.col(sort_by)
+    if df.schema[sort_by] == pl.Float64:
+        key = key.fill_nan(float("inf") if ascending else float("-inf"))
+    return df.sort(
+        [key, pl.col("n_both"), pl.col("rule_id")],
+        descending=[not ascending, True, False],
+        nulls_last=True,
+    )
+
+
+def _assemble(
+    ante: np.ndarray,
+    size: np.ndarray,
+    cons: np.ndarray,
+    n: int,
+    n_x: np.ndarray,
+    n_y: np.ndarray,
+    n_xy: np.ndarray,
+    labels: np.ndarray,
+    *,
+    min_confidence: float,
+    min_lift: float,
+    keep_unproductive: bool,
+    correction: str,
+    alpha: float,
+    sort_by: str,
+    top: int | None = None,
+) -> pl.DataFrame:
+    """Rule table from counts of every candidate rule (the correction's family)."""
+    if correction not in CORRECTIONS:
+        raise InputError(f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}")
+    if sort_by not in MEASURES:
+        raise InputError(f"cannot sort rules by {sort_by!r}.", hint=f"use one of {', '.join(MEASURES)}")
+    m = ante.shape[0]
+    if m == 0:
+        return _empty_rules()
+    pad = labels.size
+    meas = rule_measures(n, n_x, n_y, n_xy)
+    p_adj = adjust_p_values(meas["p_value"], correction)
+    productive = _productive(ante, size, cons, n, n_x, n_y, n_xy, pad)
+    keep = (meas["confidence"] >= min_confidence) & (meas["lift"] >= min_lift)
+    if not keep_unproductive:
+        keep &= productive
+    rows = np.flatnonzero(keep)
+    if rows.size == 0:
+        return _empty_rules()
+    ante_col = _list_column(ante[rows], size[rows], labels)
+    cons_labels = labels[cons[rows]]
+    ids = [rule_id(a, c) for a, c in zip(ante_col.to_list(), cons_labels, strict=True)]
+    df = pl.DataFrame(
+        {
+            "rule_id": pl.Series(ids, dtype=pl.String),
+            "antecedent": ante_col,
+            "consequent": pl.Series(cons_labels.tolist(), dtype=pl.String),
+            "n_baskets": np.full(rows.size, n, dtype=np.int64),
+            "n_antecedent": n_x[rows],
+            "n_consequent": n_y[rows],
+            "n_both": n_xy[rows],
+            **{k: v[rows] for k, v in meas.items() if k != "p_value"},
+            "p_value": meas["p_value"][rows],
+            "p_adjusted": p_adj[rows],
+            "correction": pl.Series([correction] * rows.size, dtype=pl.String),
+            "n_tested": np.full(rows.size, m, dtype=np.int64),
+            "significant": p_adj[rows] < alpha,
+            "productive": productive[rows],
+        },
+        schema=RULE_COLUMNS,
+    )
+    df = _sort_rules(df, sort_by)
+    return df if top is None else df.head(top)
+
+
+def _check_common(min_confidence: float, min_lift: float, alpha: float, correction: str) -> None:
+    if not 0.0 <= float(min_confidence) <= 1.0:
+        raise InputError(f"min_confidence must be in [0, 1], got {min_confidence}.")
+    if float(min_lift) < 0.0:
+        raise InputError(f"min_lift must be >= 0, got {min_lift}.")
+    if not 0.0 < float(alpha) < 1.0:
+        raise InputError(f"alpha must be in (0, 1), got {alpha}.")
+    if correction not in CORRECTIONS:
+        raise InputError(f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}")
+
+
+# --------------------------------------------------------------------------------------------
+# Public mining functions
+# --------------------------------------------------------------------------------------------
+
+
+def frequent_itemsets(
+    baskets: Baskets,
+    min_count: int | None = None,
+    max_size: int | None = None,
+    *,
+    min_support: float | None = None,
+) -> pl.DataFrame:
+    """Every itemset held by at least ``min_count`` baskets (inclusive), up to ``max_size`` items.
+
+    Columns: items (list[str], sorted as the item labels), size, count, support. Rows sorted by
+    size, then count descending, then items.
+    """
+    n = baskets.n_baskets
+    min_count = _resolve_min_count(n, min_count, min_support)
+    max_size = _NO_LIMIT if max_size is None else int(max_size)
+    if max_size < 1:
+        raise InputError(f"max_size must be at least 1, got {max_size}.")
+    pad = baskets.n_items
+    ids, sizes, counts = _mine_all(baskets, min_count, max_size).matrix(pad)
+    if ids.shape[0] == 0:
+        return pl.DataFrame(schema=ITEMSET_COLUMNS)
+    # sort rows: size, count desc, then item ids
+    order = np.lexsort(tuple(ids[:, j] for j in range(ids.shape[1] - 1, -1, -1)) + (-counts, sizes))
+    ids, sizes, counts = ids[order], sizes[order], counts[order]
+    return pl.DataFrame(
+        {
+            "items": _list_column(ids, sizes, baskets.labels),
+            "size": sizes,
+            "count": counts,
+            "support": counts / n,
+        },
+        schema=ITEMSET_COLUMNS,
+    )
+
+
+def target_rules(
+    baskets: Baskets,
+    target: str,
+    *,
+    min_count: int | None = None,
+    min_support: float | None = None,
+    min_confidence: float = 0.0,
+    min_lift: float = 0.0,
+    max_antecedent: int = 3,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    alpha: float = 0.05,
+    sort_by: str = "lift",
+) -> pl.DataFrame:
+    """Rules X -> ``target`` with 1..max_antecedent antecedent items and n(X+target) >= min count.
+
+    The p-value correction runs over every such rule (before the confidence, lift and
+    productivity filters); ``n_tested`` says how many. Unproductive rules are dropped unless
+    ``keep_unproductive``. Columns: ``RULE_COLUMNS``; sorted by ``sort_by`` descending.
+    """
+    _check_common(min_confidence, min_lift, alpha, correction)
+    n = baskets.n_baskets
+    min_count = _resolve_min_count(n, min_count, min_support)
+    if int(max_antecedent) < 1:
+        raise InputError(f"max_antecedent must be at least 1, got {max_antecedent}.")
+    y = baskets.item_index(target)
+    n_y = int(baskets.item_counts[y])
+    if n_y < min_count:
+        return _empty_rules()
+    others = np.flatnonzero(np.arange(baskets.n_items) != y)
+    others = others[baskets.item_counts[others] >= min_count]
+    cond_bits, cond_counts = _project(baskets, baskets.baskets_holding(y), others)
+    keep = np.flatnonzero(cond_counts >= min_count)
+    keep = keep[np.argsort(cond_counts[keep], kind="stable")]
+    found = _Found()
+    _eclat(cond_bits[keep], others[keep], cond_counts[keep], min_count, int(max_antecedent), (),
+           found, pair_leaves=False)
+    pad = baskets.n_items
+    # n(X) over all baskets, one AND + popcount per search node
+    prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
+    n_x_parts = []
+    for prefix, ext, _ in found.groups:
+        ext = ext[:, 0]
+        if not prefix:
+            n_x_parts.append(baskets.item_counts[ext])
+            continue
+        row = prefix_rows.get(prefix)
+        if row is None:
+            row = baskets.bits[prefix[0]]
+            for k in prefix[1:]:
+                row = row & baskets.bits[k]
+            prefix_rows[prefix] = row
+        n_x_parts.append(_popcounts(baskets.bits[ext] & row))
+    ante, size, n_xy = found.matrix(pad)
+    n_x = np.concatenate(n_x_parts) if n_x_parts else np.zeros(0, np.int64)
+    m = ante.shape[0]
+    return _assemble(
+        ante, size, np.full(m, y, dtype=np.int64), n, n_x, np.full(m, n_y, dtype=np.int64),
+        n_xy, baskets.labels, min_confidence=min_confidence, min_lift=min_lift,
+        keep_unproductive=keep_unproductive, correction=correction, alpha=alpha, sort_by=sort_by,
+    )
+
+
+def _rules_from_matrix(
+    ids: np.ndarray, sizes: np.ndarray, counts: np.ndarray, n: int, labels: np.ndarray,
+    consequents: np.ndarray | None, **options: Any,
+) -> pl.DataFrame:
+    """Every rule Z minus {y} -> y for y in Z from a subset-closed table of itemset counts."""
+    pad = labels.size
+    base = pad + 1
+    singles = sizes == 1
+    item_count = np.zeros(pad, dtype=np.int64)
+    item_count[ids[singles, 0]] = counts[singles]
+    antes, rsize, cons, n_xy = [], [], [], []
+    for s in range(2, int(sizes.max(initial=0)) + 1):
+        rows = np.flatnonzero(sizes == s)
+        for j in range(s):
+            y = ids[rows, j]
+            if consequents is not None:
+                sel = np.isin(y, consequents)
+                rows_j, y = rows[sel], y[sel]
+            else:
+                rows_j = rows
+            a = np.delete(ids[rows_j], j, axis=1)
+            antes.append(np.concatenate([a, np.full((rows_j.size, 1), pad, np.int64)], axis=1))
+            rsize.append(np.full(rows_j.size, s - 1, dtype=np.int64))
+            cons.append(y)
+            n_xy.append(counts[rows_j])
+    if not antes:
+        return _empty_rules()
+    ante = np.concatenate(antes)
+    width = ids.shape[1]
+    ante = ante[:, :width]  # the padding column is at the end; keep the itemset width
+    size = np.concatenate(rsize)
+    cons = np.concatenate(cons)
+    n_xy = np.concatenate(n_xy)
+    hit = _lookup(ids, ante, base)
+    if np.any(hit < 0):
+        raise InputError(
+            "itemset counts are not closed under subsets (an antecedent's count is missing).",
+            hint="give the count of every subset of every itemset",
+        )
+    return _assemble(ante, size, cons, n, counts[hit], item_count[cons], n_xy, labels, **options)
+
+
+def rules_from_itemsets(
+    itemsets: pl.DataFrame,
+    n_baskets: int,
+    *,
+    consequents: Iterable[str] | None = None,
+    min_confidence: float = 0.0,
+    min_lift: float = 0.0,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    alpha: float = 0.05,
+    sort_by: str = "lift",
+    top: int | None = None,
+) -> pl.DataFrame:
+    """Rules with one consequent from itemset counts (columns items: list[str], count).
+
+    The table must be closed under subsets (every subset of a listed itemset listed too), as
+    ``frequent_itemsets`` returns and as a warehouse count of all itemsets up to k items gives.
+    Every rule Z - {y} -> y is a candidate (the correction's family), optionally only for the
+    ``consequents`` given.
+    """
+    _check_common(min_confidence, min_lift, alpha, correction)
+    for col in ("items", "count"):
+        if col not in itemsets.columns:
+            raise InputError(f"itemsets frame lacks column {col!r}.")
+    lists = itemsets["items"].to_list()
+    labels = sorted({str(x) for row in lists for x in row})
+    code = {x: k for k, x in enumerate(labels)}
+    pad = len(labels)
+    width = max((len(set(r)) for r in lists), default=1)
+    ids = np.full((len(lists), max(width, 1)), pad, dtype=np.int64)
+    sizes = np.zeros(len(lists), dtype=np.int64)
+    for r, row in enumerate(lists):
+        v = sorted({code[str(x)] for x in row})
+        ids[r, : len(v)] = v
+        sizes[r] = len(v)
+    counts = itemsets["count"].cast(pl.Int64).to_numpy()
+    nonempty = sizes > 0
+    ids, sizes, counts = ids[nonempty], sizes[nonempty], counts[nonempty]
+    lab = np.array(labels, dtype=object)
+    cons = None
+    if consequents is not None:
+        cons = np.array([code[c] for c in map(str, consequents) if c in code], dtype=np.int64)
+    return _rules_from_matrix(
+        ids, sizes, counts, int(n_baskets), lab, cons, min_confidence=min_confidence,
+        min_lift=min_lift, keep_unproductive=keep_unproductive, correction=correction,
+        alpha=alpha, sort_by=sort_by, top=top,
+    )
+
+
+def top_rules(
+    baskets: Baskets,
+    measure: str = "lift",
+    top: int | None = 20,
+    *,
+    min_count: int | None = None,
+    min_support: float | None = None,
+    min_confidence: float = 0.0,
+    min_lift: float = 0.0,
+    max_size: int = 3,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    alpha: float = 0.05,
+) -> pl.DataFrame:
+    """Exploratory mode: the strongest rules toward any consequent, by ``measure`` descending.
+
+    Mines every frequent itemset of up to ``max_size`` items (so antecedents of up to
+    ``max_size - 1`` items) and forms every rule Z - {y} -> y; ``top=None`` returns all.
+    """
+    _check_common(min_confidence, min_lift, alpha, correction)
+    n = baskets.n_baskets
+    mc = _resolve_min_count(n, min_count, min_support)
+    if int(max_size) < 2:
+        raise InputError(f"max_size must be at least 2 for rules, got {max_size}.")
+    ids, sizes, counts = _mine_all(baskets, mc, int(max_size)).matrix(baskets.n_items)
+    return _rules_from_matrix(
+        ids, sizes, counts, n, baskets.labels, None, min_confidence=min_confidence,
+        min_lift=min_lift, keep_unproductive=keep_unproductive, correction=correction,
+        alpha=alpha, sort_by=measure, top=top,
+    )
+
+
+def rules_from_counts(
+    counts: pl.DataFrame,
+    n_baskets: int,
+    *,
+    min_confidence: float = 0.0,
+    min_lift: float = 0.0,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    alpha: float = 0.05,
+    sort_by: str = "lift",
+) -> pl.DataFrame:
+    """Rule table from counts computed elsewhere (e.g. SQL in the warehouse).
+
+    ``counts`` has one row per candidate rule with columns antecedent (list[str]), consequent
+    (str), n_antecedent, n_consequent, n_both; it must hold every candidate of the family (the
+    correction runs over all rows) and be closed under antecedent subsets (for productivity).
+    """
+    _check_common(min_confidence, min_lift, alpha, correction)
+    need = ("antecedent", "consequent", "n_antecedent", "n_consequent", "n_both")
+    missing = [c for c in need if c not in counts.columns]
+    if missing:
+        raise InputError(f"counts frame lacks columns {', '.join(missing)}.")
+    antes = counts["antecedent"].to_list()
+    conss = [str(c) for c in counts["consequent"].to_list()]
+    labels = sorted({str(x) for row in antes for x in row} | set(conss))
+    code = {x: k for k, x in enumerate(labels)}
+    pad = len(labels)
+    width = max((len(r) for r in antes), default=1)
+    ante = np.full((len(antes), max(width, 1)), pad, dtype=np.int64)
+    size = np.zeros(len(antes), dtype=np.int64)
+    for r, row in enumerate(antes):
+        v = sorted({code[str(x)] for x in row})
+        if not v:
+            raise InputError("every rule needs a non-empty antecedent.")
+        ante[r, : len(v)] = v
+        size[r] = len(v)
+    cons = np.array([code[c] for c in conss], dtype=np.int64)
+    col = {c: counts[c].cast(pl.Int64).to_numpy() for c in need[2:]}
+    return _assemble(
+        ante, size, cons, int(n_baskets), col["n_antecedent"], col["n_consequent"], col["n_both"],
+        np.array(labels, dtype=object), min_confidence=min_confidence, min_lift=min_lift,
+        keep_unproductive=keep_unproductive, correction=correction, alpha=alpha, sort_by=sort_by,
+    )

@@ -1,0 +1,82 @@
+"""Rendering of `reachlist rules`: a table readable at 100 columns, plus JSON and CSV."""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import polars as pl
+from rich.console import Console
+from rich.table import Table
+
+
+def _num(x: float | None, digits: int = 3) -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "-"
+    if math.isinf(x):
+        return "inf"
+    return f"{x:.{digits}f}"
+
+
+def _p(x: float) -> str:
+    return "<1e-99" if x < 1e-99 else (f"{x:.1e}" if x < 0.001 else f"{x:.3f}")
+
+
+def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) -> Table:
+    rows = frame if limit is None else frame.head(limit)
+    show_consequent = frame["consequent"].n_unique() > 1
+    t = Table(title=title, title_justify="left", show_edge=False, pad_edge=False, expand=True)
+    t.add_column("id", style="dim", no_wrap=True)
+    t.add_column("antecedent", overflow="fold", ratio=2, min_width=20)
+    if show_consequent:
+        t.add_column("-> consequent", overflow="fold", ratio=1, min_width=12)
+    # With a consequent column there is no room at 100 columns for support and conviction
+    # (they stay in --json/--csv).
+    measures = ("n(X)", "n(X+y)", "conf", "lift", "p adj", "sig") if show_consequent else (
+        "n(X)", "n(X+y)", "supp", "conf", "lift", "conv", "p adj", "sig")
+    for name in measures:
+        t.add_column(name, justify="right", no_wrap=True)
+    for r in rows.iter_rows(named=True):
+        cells = [r["rule_id"], " + ".join(r["antecedent"])]
+        if show_consequent:
+            cells.append(r["consequent"])
+        cells += [f"{r['n_antecedent']:,}", f"{r['n_both']:,}"]
+        if not show_consequent:
+            cells.append(_num(r["support"], 4))
+        cells += [_num(r["confidence"]), _num(r["lift"], 2)]
+        if not show_consequent:
+            cells.append(_num(r["conviction"], 2))
+        cells += [
+            _p(r["p_adjusted"]),
+            "[bold green]*[/]" if r["significant"] else "[yellow]ns[/]",
+        ]
+        t.add_row(*cells)
+    return t
+
+
+def render_rules(
+    frame: pl.DataFrame, console: Console, *, title: str, footer: list[str], limit: int
+) -> None:
+    console.print(rules_table(frame, title, limit=limit))
+    shown = min(limit, frame.height)
+    console.print(f"[dim]{shown} of {frame.height:,} rules shown (--top to change).[/]")
+    for line in footer:
+        console.print(line, soft_wrap=True)
+
+
+def _clean(value: Any) -> Any:
+    if isinstance(value, float) and (math.isinf(value) or math.isnan(value)):
+        return None if math.isnan(value) else ("inf" if value > 0 else "-inf")
+    return value
+
+
+def rules_json(frame: pl.DataFrame, meta: dict[str, Any]) -> str:
+    """JSON for machines: conviction's infinity is the string "inf", NaN is null."""
+    rules = [{k: _clean(v) for k, v in row.items()} for row in frame.iter_rows(named=True)]
+    return json.dumps({**meta, "rules": rules}, indent=2, default=str)
+
+
+def rules_csv_frame(frame: pl.DataFrame) -> pl.DataFrame:
+    """One CSV-safe frame: the antecedent list joined with ' + '."""
+    return frame.with_columns(pl.col("antecedent").list.join(" + "))

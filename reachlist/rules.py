@@ -1,0 +1,244 @@
+"""Rules toward a target, mined from the warehouse's order history.
+
+The warehouse does the heavy, data-sized work (de-duplicating lines, netting returns, joining the
+product hierarchy) and hands back basket -> item pairs; itemsets are counted in memory on
+vertical bitmaps (``reachlist.mining``), which measured faster than counting candidate itemsets
+in SQL (see the README's benchmark section).
+
+>>> with Warehouse.open("garden.duckdb") as wh:                       # doctest: +SKIP
+...     rs = mine_rules(wh, "PRP-HM-01")
+>>> rs.frame.select("antecedent", "confidence", "lift")               # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import polars as pl
+
+from reachlist import mining
+from reachlist.errors import EmptyResultError, InputError
+from reachlist.query import Query
+from reachlist.targets import (
+    BasketKind,
+    Level,
+    Target,
+    Window,
+    check_basket,
+    check_level,
+    held_items_query,
+    mining_window,
+    parse_target,
+    resolve_target,
+)
+from reachlist.warehouse import Warehouse
+
+DEFAULT_MIN_SUPPORT = 0.002
+_RANK = {"sku": 0, "category": 1, "department": 2}
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class RuleSet:
+    """Rules X -> target with every measure (columns: ``reachlist.mining.RULE_COLUMNS``)."""
+
+    target: Target
+    level: Level  # item level of the antecedents
+    basket: BasketKind
+    window: Window
+    n_baskets: int
+    correction: str
+    frame: pl.DataFrame
+
+    @property
+    def target_label(self) -> str:
+        """How the target is labelled in ``frame.consequent``."""
+        return target_label(self.target, self.level)
+
+
+def target_label(target: Target, level: Level) -> str:
+    return target.name if target.level == level else str(target)
+
+
+def _related_items(wh: Warehouse, target: Target, level: Level) -> set[str]:
+    """Items at ``level`` that contain the target or lie inside it: holding one says nothing new."""
+    if target.level == level:
+        return set()
+    hierarchy = wh.fetch(
+        Query("SELECT DISTINCT sku, category, department FROM products", label="hierarchy")
+    )
+    inside = hierarchy.filter(pl.col(target.level) == target.name)
+    return {str(v) for v in inside[level].unique().to_list()}
+
+
+def load_baskets(
+    wh: Warehouse, target: Target | None, level: Level, basket: BasketKind, window: Window
+) -> mining.Baskets:
+    """Basket -> item pairs from the warehouse, with the target added when it is at another level."""
+    pairs = wh.fetch(held_items_query(window, level=level, basket=basket))
+    if target is not None and target.level != level:
+        related = _related_items(wh, target, level)
+        held = wh.fetch(held_items_query(window, level=target.level, basket=basket, only=target.name))
+        pairs = pl.concat(
+            [
+                pairs.filter(~pl.col("item").is_in(list(related))),
+                held.with_columns(pl.lit(str(target)).alias("item")),
+            ]
+        )
+    return mining.Baskets.from_frame(pairs)
+
+
+def mine_rules(
+    wh: Warehouse,
+    target: str | Target,
+    *,
+    level: str = "sku",
+    basket: str = "customer",
+    since: str | None = None,
+    until: str | None = None,
+    min_support: float = DEFAULT_MIN_SUPPORT,
+    min_confidence: float = 0.0,
+    min_lift: float = 1.0,
+    max_antecedent: int = 3,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    sort_by: str = "lift",
+    progress: Progress | None = None,
+) -> RuleSet:
+    """Every rule X -> target (1..max_antecedent items at ``level``) meeting the thresholds.
+
+    Raises ``InputError`` for an unknown target (with the closest names) and
+    ``EmptyResultError`` naming the threshold to relax when no rule is found.
+    """
+    say = progress or (lambda _msg: None)
+    tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
+    lvl, kind = check_level(level), check_basket(basket)
+    window = mining_window(wh, since, until)
+    say(f"Reading {kind} baskets for {window}")
+    baskets = load_baskets(wh, tgt, lvl, kind, window)
+    label = target_label(tgt, lvl)
+    if baskets.n_baskets == 0 or label not in set(baskets.labels.tolist()):
+        raise EmptyResultError(
+            f"No {kind} basket in {window} holds the target {str(tgt)!r}, so no rule can point "
+            "to it.",
+            hint="widen the window with --since, or target a new item through --stand-in",
+        )
+    say(f"Counting itemsets in {baskets.n_baskets:,} baskets")
+    options = dict(
+        min_support=min_support,
+        max_antecedent=max_antecedent,
+        correction=correction,
+        sort_by=sort_by,
+    )
+    frame = mining.target_rules(
+        baskets,
+        label,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        keep_unproductive=keep_unproductive,
+        **options,  # type: ignore[arg-type]
+    )
+    if frame.height == 0:
+        raise EmptyResultError(
+            _why_empty(baskets, label, min_support, min_confidence, min_lift, keep_unproductive, options),
+            hint="relax the threshold named, or widen the window",
+        )
+    return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame)
+
+
+def _why_empty(
+    baskets: mining.Baskets,
+    label: str,
+    min_support: float,
+    min_confidence: float,
+    min_lift: float,
+    keep_unproductive: bool,
+    options: dict[str, object],
+) -> str:
+    n = baskets.n_baskets
+    n_y = int(baskets.item_counts[baskets.item_index(label)])
+    if n_y / n < min_support:
+        return (
+            f"No rule toward {label!r}: the target is held by {n_y:,} of {n:,} baskets "
+            f"({n_y / n:.3%}), below --min-support {min_support:.3%}; lower --min-support below "
+            f"{n_y / n:.3%}"
+        )
+    every = mining.target_rules(
+        baskets, label, min_confidence=0.0, min_lift=0.0, keep_unproductive=True, **options  # type: ignore[arg-type]
+    )
+    if every.height == 0:
+        return (
+            f"No rule toward {label!r}: no antecedent is held together with the target by "
+            f"--min-support {min_support:.3%} of baskets; lower --min-support"
+        )
+    best_conf = float(every["confidence"].max())  # type: ignore[arg-type]
+    best_lift = float(every["lift"].max())  # type: ignore[arg-type]
+    if best_conf < min_confidence:
+        return (
+            f"No rule toward {label!r}: {every.height} rules meet support but the best "
+            f"confidence is {best_conf:.3f}, below --min-confidence {min_confidence}"
+        )
+    if best_lift < min_lift:
+        return (
+            f"No rule toward {label!r}: {every.height} rules meet support but the best lift is "
+            f"{best_lift:.3f}, below --min-lift {min_lift}"
+        )
+    return (
+        f"No rule toward {label!r}: the {every.height} rules that meet the thresholds are all "
+        "unproductive (a shorter antecedent does as well); pass --keep-unproductive"
+        if not keep_unproductive
+        else f"No rule toward {label!r} meets all thresholds together"
+    )
+
+
+def strongest_rules(
+    wh: Warehouse,
+    *,
+    level: str = "sku",
+    basket: str = "customer",
+    since: str | None = None,
+    until: str | None = None,
+    measure: str = "lift",
+    top: int = 20,
+    min_support: float = 0.01,
+    min_confidence: float = 0.0,
+    min_lift: float = 1.0,
+    max_antecedent: int = 2,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    progress: Progress | None = None,
+) -> tuple[pl.DataFrame, Window, int]:
+    """Exploratory mode: the ``top`` strongest rules toward any consequent, by ``measure``."""
+    say = progress or (lambda _msg: None)
+    lvl, kind = check_level(level), check_basket(basket)
+    if measure not in mining.MEASURES:
+        raise InputError(
+            f"Expected a measure of {', '.join(mining.MEASURES)}, found {measure!r}.",
+            hint="pass --by lift, --by confidence, ...",
+        )
+    window = mining_window(wh, since, until)
+    say(f"Reading {kind} baskets for {window}")
+    baskets = load_baskets(wh, None, lvl, kind, window)
+    if baskets.n_baskets == 0:
+        raise EmptyResultError(f"No {kind} basket holds any item in {window}.", hint="widen the window")
+    say(f"Mining frequent itemsets in {baskets.n_baskets:,} baskets")
+    frame = mining.top_rules(
+        baskets,
+        measure,
+        top,
+        min_support=min_support,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        max_size=max_antecedent + 1,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+    )
+    if frame.height == 0:
+        raise EmptyResultError(
+            f"No rule meets --min-support {min_support:.3%}, --min-confidence {min_confidence} "
+            f"and --min-lift {min_lift} in {window}.",
+            hint="lower --min-support first",
+        )
+    return frame, window, baskets.n_baskets
