@@ -26,7 +26,7 @@ def mining_options(fn):  # type: ignore[no-untyped-def]
             click.option("--until", default=None, help="End of the mining window (exclusive); "
                          "default the day after the last order."),
             click.option("--min-support", default=DEFAULT_MIN_SUPPORT, show_default=True,
-                         type=click.FloatRange(0, 1), help="Minimum share of baskets holding X+y."),
+                         type=click.FloatRange(0, 1, min_open=True), help="Minimum share of baskets holding X+y."),
             click.option("--min-confidence", default=0.0, show_default=True,
                          type=click.FloatRange(0, 1)),
             click.option("--min-lift", default=1.0, show_default=True, type=click.FloatRange(0)),

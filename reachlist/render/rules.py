@@ -62,7 +62,7 @@ def render_rules(
     shown = min(limit, frame.height)
     console.print(f"[dim]{shown} of {frame.height:,} rules shown (--top to change).[/]")
     for line in footer:
-        console.print(line, soft_wrap=True)
+        console.print(line)
 
 
 def _clean(value: Any) -> Any:
