@@ -53,6 +53,7 @@ class Warehouse:
         self.mapping = mapping
         self._conn = conn
         self._engine = engine
+        self._in_transaction = False
 
     # -- opening ---------------------------------------------------------------------------------
     @classmethod
@@ -148,13 +149,19 @@ class Warehouse:
             result = self._conn.execute(sa.text(r.sql), r.params)
             cols = list(result.keys())
             rows = result.fetchall()
-            self._conn.commit()
+            self._end_read()
             if not rows:
                 return pl.DataFrame({c: [] for c in cols})
             return pl.DataFrame([tuple(row) for row in rows], schema=cols, orient="row")
         except Exception as exc:
-            self._rollback()
+            if not self._in_transaction:
+                self._rollback()
             raise self._translate(exc, query) from None
+
+    def _end_read(self) -> None:
+        """Close the implicit transaction a read opened, unless inside ``transaction()``."""
+        if not self._in_transaction:
+            self._conn.commit()
 
     def scalar(self, query: Query) -> Any:
         df = self.fetch(query)
@@ -189,22 +196,29 @@ class Warehouse:
 
     @contextlib.contextmanager
     def transaction(self) -> Iterator[Warehouse]:
-        """All or nothing: everything written inside is committed together or not at all."""
+        """All or nothing: everything written inside is committed together or not at all.
+
+        Reads inside the block do not commit (on PostgreSQL a read would otherwise end it)."""
+        if self._in_transaction:
+            raise WarehouseError("Nested transactions are not supported.", hint="report this")
         if self.is_duckdb:
             self._conn.execute("BEGIN TRANSACTION")
-            try:
-                yield self
-            except BaseException:
-                self._conn.execute("ROLLBACK")
-                raise
-            self._conn.execute("COMMIT")
         else:
             self._rollback()
-            try:
-                yield self
-            except BaseException:
+        self._in_transaction = True
+        try:
+            yield self
+        except BaseException:
+            self._in_transaction = False
+            if self.is_duckdb:
+                self._conn.execute("ROLLBACK")
+            else:
                 self._rollback()
-                raise
+            raise
+        self._in_transaction = False
+        if self.is_duckdb:
+            self._conn.execute("COMMIT")
+        else:
             self._conn.commit()
 
     def run_statement(self, stmt: str) -> None:
@@ -279,7 +293,7 @@ class Warehouse:
                 import sqlalchemy as sa
 
                 rows = self._conn.execute(sa.text(r.sql), r.params).fetchall()
-                self._conn.commit()
+                self._end_read()
         except Exception as exc:
             self._rollback()
             raise self._translate(exc, q) from None

@@ -1,0 +1,331 @@
+"""From chosen rules to customers: the audience query and the per-rule reach query.
+
+A rule X -> y reaches a customer who holds every item of X inside the lookback window. The
+audience of a set of ranked rules is every customer some rule reaches, listed once, with the
+reaching rule of the highest score (ties: the better rank) as the reason. The SQL (sql/audience.sql)
+runs in the warehouse and returns one row per customer with one column per exclusion; the
+exclusions themselves are applied in a fixed order by ``reachlist.exclusions``.
+
+>>> chosen = choose_rules(ruleset, top=3, rank_by="lift")                  # doctest: +SKIP
+>>> spec = AudienceSpec(Target("sku", "HM-2041"), chosen, "sku", window)   # doctest: +SKIP
+>>> wh.fetch(audience_query(spec))                                         # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from datetime import date, datetime, timedelta
+from typing import TYPE_CHECKING, Any
+
+import polars as pl
+
+from reachlist.errors import EmptyResultError, InputError
+from reachlist.query import Query, template_text
+from reachlist.targets import LEVEL_COLUMN, Level, Target, Window
+
+if TYPE_CHECKING:
+    from reachlist.rules import RuleSet
+
+__all__ = [
+    "RANK_MEASURES",
+    "AudienceSpec",
+    "ChosenRule",
+    "Filters",
+    "adult_born_by",
+    "audience_query",
+    "choose_rules",
+    "reach_query",
+]
+
+RANK_MEASURES = ("leverage", "confidence", "lift", "support", "conviction", "n_both")
+"""Measures rules can be ranked by (higher is better). The default, leverage, counts the extra
+co-purchases a rule accounts for, so it weighs strength and reach together; ranking by confidence
+or lift favours narrow rules whose few holders mostly own the target already."""
+
+# "Ever" for the already-has-the-target exclusion: the earliest timestamp both engines accept.
+EVER = datetime(1, 1, 1)
+
+
+@dataclass(frozen=True)
+class ChosenRule:
+    """One rule chosen for an audience, at its rank (1 is best)."""
+
+    rank: int
+    rule_id: str
+    antecedent: tuple[str, ...]
+    consequent: str
+    confidence: float
+    lift: float
+    n_antecedent: int
+    n_both: int
+    significant: bool
+
+    @property
+    def score(self) -> float:
+        """The rule's estimate for a customer it reaches: its historical co-purchase rate."""
+        return self.confidence
+
+    def describe(self) -> str:
+        return " + ".join(self.antecedent) + " -> " + self.consequent
+
+
+def choose_rules(
+    rules: RuleSet,
+    *,
+    top: int = 5,
+    rank_by: str = "leverage",
+    rule_ids: tuple[str, ...] | list[str] = (),
+) -> tuple[ChosenRule, ...]:
+    """The rules an audience is built from, best first.
+
+    With ``rule_ids`` those rules are used (in any significance state; the caller warns); without,
+    the ``top`` significant rules by ``rank_by``. Ties go to more co-purchases, then to the id, so
+    the order is the same on every run.
+    """
+    if rank_by not in RANK_MEASURES:
+        raise InputError(
+            f"Expected a ranking measure of {', '.join(RANK_MEASURES)}, found {rank_by!r}.",
+            hint="pass --rank-by leverage (or confidence, lift, support, conviction, n_both)",
+        )
+    if top < 1:
+        raise InputError(f"Expected --top of at least 1, found {top}.", hint="pass --top 5")
+    frame = rules.frame
+    if rule_ids:
+        wanted = list(dict.fromkeys(rule_ids))
+        known = set(frame["rule_id"].to_list())
+        missing = [r for r in wanted if r not in known]
+        if missing:
+            raise InputError(
+                f"Rule id(s) {', '.join(missing)} are not among the {frame.height} rules toward "
+                f"{rules.target} mined with these options.",
+                hint="copy ids from `reachlist rules` run with the same target, level and window",
+            )
+        frame = frame.filter(pl.col("rule_id").is_in(wanted))
+    else:
+        frame = frame.filter(pl.col("significant"))
+        if frame.height == 0:
+            raise EmptyResultError(
+                f"Expected at least one significant rule toward {rules.target}, found "
+                f"{rules.frame.height} rule(s) and none significant after correction.",
+                hint="widen the window, lower --min-support, or pick rules by id with --rule",
+            )
+    frame = frame.sort(
+        [rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True
+    )
+    if not rule_ids:
+        frame = frame.head(top)
+    return tuple(
+        ChosenRule(
+            rank=i + 1,
+            rule_id=str(row["rule_id"]),
+            antecedent=tuple(dict.fromkeys(str(a) for a in row["antecedent"])),
+            consequent=str(row["consequent"]),
+            confidence=float(row["confidence"]),
+            lift=float(row["lift"]),
+            n_antecedent=int(row["n_antecedent"]),
+            n_both=int(row["n_both"]),
+            significant=bool(row["significant"]),
+        )
+        for i, row in enumerate(frame.iter_rows(named=True))
+    )
+
+
+@dataclass(frozen=True)
+class Filters:
+    """Optional filters the user adds after the fixed exclusions (empty = not used)."""
+
+    regions: tuple[str, ...] = ()
+    channels: tuple[str, ...] = ()  # ordered through one of these inside the lookback window
+    active_days: int | None = None  # placed an order within this many days before the cutoff
+
+    def __post_init__(self) -> None:
+        if self.active_days is not None and self.active_days < 1:
+            raise InputError(
+                f"Expected a number of days of at least 1, found {self.active_days}.",
+                hint="pass --ordered-within 90, or leave it out",
+            )
+
+
+@dataclass(frozen=True)
+class AudienceSpec:
+    """Everything the audience SQL needs; building it touches no database."""
+
+    target: Target  # the item offered (not a stand-in)
+    rules: tuple[ChosenRule, ...]
+    level: Level  # item level of the antecedents
+    lookback: Window  # antecedents must be held inside it; its end is the cutoff
+    bought_within_days: int | None = None  # None: anyone who ever held the target is excluded
+    age_restricted: bool = False
+    adult_born_by: date | None = None  # customers born on or before this day are adults
+    filters: Filters = field(default_factory=Filters)
+    contact: bool = False  # add the email column
+
+    def __post_init__(self) -> None:
+        if not self.rules:
+            raise EmptyResultError(
+                f"Expected at least one rule to build the audience for {self.target}, found none.",
+                hint="choose rules with --top or --rule",
+            )
+        if self.age_restricted and self.adult_born_by is None:
+            raise InputError("An age-restricted target needs adult_born_by (internal).")
+        if self.bought_within_days is not None and self.bought_within_days < 1:
+            raise InputError(
+                f"Expected --bought-within of at least 1 day, found {self.bought_within_days}.",
+                hint="leave it out to exclude everyone who ever bought the target",
+            )
+
+    @property
+    def target_since(self) -> datetime:
+        if self.bought_within_days is None:
+            return EVER
+        return self.lookback.until - timedelta(days=self.bought_within_days)
+
+    @property
+    def antecedent_items(self) -> list[str]:
+        return list(dict.fromkeys(item for r in self.rules for item in r.antecedent))
+
+
+def adult_born_by(today: date, adult_age: int = 18) -> date:
+    """The last birth date of someone who is ``adult_age`` years old on ``today``."""
+    if not 0 < adult_age < 150:
+        raise InputError(f"Expected an adult age such as 18, found {adult_age}.", hint="pass 18")
+    try:
+        return today.replace(year=today.year - adult_age)
+    except ValueError:  # 29 February in a non-leap year
+        return today.replace(year=today.year - adult_age, day=28)
+
+
+# Repeated or optional fragments of sql/audience.sql. reachlist fills them from fixed text and
+# rule numbers; every value (items, ids, scores, dates) is a bound parameter.
+_RULE_BLOCK = """rule_{k} AS (
+    -- customers holding every antecedent item of rule {k}
+    SELECT customer_id
+    FROM held
+    WHERE item IN (:rule_{k}_items)
+    GROUP BY customer_id
+    HAVING count(*) = :rule_{k}_size
+)"""
+_REACHED_LINE = (
+    "    SELECT customer_id, {k} AS rule_rank, :rule_{k}_id AS rule_id, "
+    ":rule_{k}_score AS score FROM rule_{k}"
+)
+_CHANNEL_CTE = """,
+channel_customers AS (
+    -- customers with an order through a chosen channel inside the lookback window
+    SELECT DISTINCT customer_id FROM orders
+    WHERE channel IN (:channels) AND ordered_at >= :since AND ordered_at < :until
+)"""
+_ACTIVE_CTE = """,
+active_customers AS (
+    -- customers with an order (a purchase or a return) recently enough
+    SELECT DISTINCT customer_id FROM orders
+    WHERE ordered_at >= :active_since AND ordered_at < :until
+)"""
+_LIST_SELECT = """SELECT
+    b.customer_id,
+    b.rule_id,
+    b.score,
+    {flags}{contact}
+FROM best AS b
+LEFT JOIN customers AS c ON c.customer_id = b.customer_id
+LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
+LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id{filter_joins}
+ORDER BY b.score DESC, b.customer_id"""
+_REACH_SELECT = """SELECT customer_id, rule_rank
+FROM reached
+ORDER BY rule_rank, customer_id"""
+
+
+def _params(spec: AudienceSpec) -> dict[str, Any]:
+    params: dict[str, Any] = {
+        "antecedent_items": spec.antecedent_items,
+        "target": spec.target.name,
+        "since": spec.lookback.since,
+        "until": spec.lookback.until,
+        "target_since": spec.target_since,
+    }
+    for r in spec.rules:
+        params[f"rule_{r.rank}_items"] = list(r.antecedent)
+        params[f"rule_{r.rank}_size"] = len(r.antecedent)
+        params[f"rule_{r.rank}_id"] = r.rule_id
+        params[f"rule_{r.rank}_score"] = r.score
+    return params
+
+
+def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
+    params = _params(spec)
+    f = spec.filters
+    ctes, joins = "", ""
+    not_adult = outside_region = outside_channel = inactive = "FALSE"
+    if spec.age_restricted:
+        not_adult = "(c.birth_date IS NULL OR c.birth_date > :adult_born_by)"
+        params["adult_born_by"] = spec.adult_born_by
+    if f.regions:
+        outside_region = "NOT coalesce(c.region IN (:regions), FALSE)"
+        params["regions"] = list(f.regions)
+    if f.channels:
+        ctes += _CHANNEL_CTE
+        joins += "\nLEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id"
+        outside_channel = "ch.customer_id IS NULL"
+        params["channels"] = list(f.channels)
+    if f.active_days is not None:
+        ctes += _ACTIVE_CTE
+        joins += "\nLEFT JOIN active_customers AS a ON a.customer_id = b.customer_id"
+        inactive = "a.customer_id IS NULL"
+        params["active_since"] = spec.lookback.until - timedelta(days=f.active_days)
+    if per_rule:
+        # which rules reach whom needs neither customer facts nor filters
+        ctes, final = "", _REACH_SELECT
+    else:
+        flags = {
+            "has_target": "t.customer_id IS NOT NULL",
+            "no_consent": "c.marketing_consent IS NOT TRUE",
+            "suppressed": "s.customer_id IS NOT NULL",
+            "not_adult": not_adult,
+            "outside_region": outside_region,
+            "outside_channel": outside_channel,
+            "inactive": inactive,
+        }
+        final = _LIST_SELECT.format(
+            flags=",\n    ".join(f"{expr:<34} AS {name}" for name, expr in flags.items()),
+            contact=",\n    c.email" if spec.contact else "",
+            filter_joins=joins,
+        )
+    text = template_text("audience").format(
+        level=LEVEL_COLUMN[spec.level],
+        target_level=LEVEL_COLUMN[spec.target.level],
+        rule_blocks=",\n".join(_RULE_BLOCK.format(k=r.rank) for r in spec.rules),
+        reached_union="\n    UNION ALL\n".join(_REACHED_LINE.format(k=r.rank) for r in spec.rules),
+        filter_ctes=ctes,
+        final=final,
+    )
+    used = set(re.findall(r":([A-Za-z_]\w*)", text))
+    return Query(
+        text,
+        {k: v for k, v in params.items() if k in used},
+        label="audience reach" if per_rule else "audience",
+    )
+
+
+def audience_query(spec: AudienceSpec) -> Query:
+    """One row per reached customer: customer_id, rule_id, score and one boolean per exclusion
+    (has_target, no_consent, suppressed, not_adult, outside_region, outside_channel, inactive),
+    plus email when ``spec.contact``; best score first."""
+    return _build(spec, per_rule=False)
+
+
+def reach_query(spec: AudienceSpec) -> Query:
+    """Every (customer_id, rule_rank) pair: which rules reach which customers (for previews)."""
+    return _build(spec, per_rule=True)
+
+
+def rule_rate_interval(rule: ChosenRule) -> tuple[float, float]:
+    """Wilson 95% interval of a rule's co-purchase rate n_both / n_antecedent."""
+    from reachlist.stats.intervals import wilson_interval
+
+    if rule.n_antecedent <= 0:
+        return (math.nan, math.nan)
+    iv = wilson_interval(rule.n_both, rule.n_antecedent)
+    return (float(iv.low), float(iv.high))

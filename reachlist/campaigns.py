@@ -1,0 +1,262 @@
+"""The campaign log: what each campaign was built from and who was in treatment or holdout.
+
+Two logical tables of the contract (``reachlist.schema``), created when absent: ``campaigns`` (one
+row per campaign: parameters, rules used, counts, any consent/suppression override) and
+``campaign_contacts`` (one row per listed customer with group ``treatment`` or ``holdout``). The
+log lives in the warehouse, or in a local state DuckDB file when the warehouse is read-only
+(``CampaignLog.open(wh, state="state.duckdb")``). A campaign and all its contacts are written in
+one transaction; the same campaign id is refused unless ``replace=True``.
+
+>>> log = CampaignLog.open(wh)                                            # doctest: +SKIP
+>>> log.record(record, contacts)                                          # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from dataclasses import dataclass, field
+from datetime import datetime
+from typing import Any, Self
+
+import polars as pl
+
+from reachlist.errors import InputError, StateError, WarehouseError
+from reachlist.query import Query, quote_ident, quote_qualified
+from reachlist.schema import CONTRACT, LOG_TABLES, Kind, Mapping
+from reachlist.warehouse import Warehouse
+
+__all__ = ["GROUPS", "CampaignLog", "CampaignRecord", "check_campaign_id", "log_table_ddl"]
+
+GROUPS = ("treatment", "holdout")
+_SQL_TYPE: dict[Kind, str] = {
+    "integer": "BIGINT",
+    "text": "VARCHAR",
+    "boolean": "BOOLEAN",
+    "date": "DATE",
+    "timestamp": "TIMESTAMP",
+    "number": "DOUBLE PRECISION",
+}
+_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._:-]{0,79}")
+
+
+def check_campaign_id(campaign_id: str) -> str:
+    if not _ID.fullmatch(campaign_id):
+        raise InputError(
+            f"Expected a campaign id of letters, digits and . _ : - (at most 80, starting with a "
+            f"letter or digit), found {campaign_id!r}.",
+            hint="pass --campaign spring-mats-2026",
+        )
+    return campaign_id
+
+
+def log_table_ddl(mapping: Mapping, table: str) -> str:
+    """CREATE TABLE for one log table, under the names the mapping gives it."""
+    tmap = mapping.table(table)
+    cols = [
+        f"{quote_ident(tmap.column(c.name))} {_SQL_TYPE[c.kind]}"
+        + ("" if c.nullable else " NOT NULL")
+        for c in CONTRACT[table].columns
+    ]
+    body = ",\n    ".join(cols)
+    return f"CREATE TABLE IF NOT EXISTS {quote_qualified(tmap.physical)} (\n    {body}\n)"
+
+
+@dataclass(frozen=True)
+class CampaignRecord:
+    """One row of ``campaigns``; the JSON fields are kept as Python values until written."""
+
+    campaign_id: str
+    created_at: datetime
+    target: str
+    purpose: str
+    parameters: dict[str, Any] = field(default_factory=dict)
+    rules: list[dict[str, Any]] = field(default_factory=list)
+    counts: dict[str, Any] = field(default_factory=dict)
+    overrides: tuple[str, ...] = ()
+
+    def frame(self) -> pl.DataFrame:
+        def js(value: Any) -> str:
+            return json.dumps(value, default=str, sort_keys=True)
+
+        return pl.DataFrame(
+            {
+                "campaign_id": [self.campaign_id],
+                "created_at": [self.created_at],
+                "target": [self.target],
+                "purpose": [self.purpose],
+                "parameters": [js(self.parameters)],
+                "rules": [js(self.rules)],
+                "counts": [js(self.counts)],
+                "overrides": ["; ".join(self.overrides) if self.overrides else None],
+            },
+            schema={
+                "campaign_id": pl.String,
+                "created_at": pl.Datetime("us"),
+                "target": pl.String,
+                "purpose": pl.String,
+                "parameters": pl.String,
+                "rules": pl.String,
+                "counts": pl.String,
+                "overrides": pl.String,
+            },
+        )
+
+
+class CampaignLog:
+    """The campaign log in one database (the warehouse, or a local state file)."""
+
+    def __init__(self, db: Warehouse, *, owned: bool = False) -> None:
+        self.db = db
+        self._owned = owned  # opened here (a state file): closed by close()
+
+    @classmethod
+    def open(cls, warehouse: Warehouse, state: str | None = None) -> CampaignLog:
+        """The log in ``state`` (a DuckDB file, created when missing) or else in the warehouse."""
+        if state is None:
+            return cls(warehouse)
+        if "://" in state:
+            raise InputError(
+                f"Expected --state to be a local DuckDB file, found the URL {state!r}.",
+                hint="pass a path such as reachlist-state.duckdb",
+            )
+        return cls(Warehouse.open(state, create=True), owned=True)
+
+    def close(self) -> None:
+        if self._owned:
+            self.db.close()
+
+    def __enter__(self) -> Self:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @property
+    def where(self) -> str:
+        return self.db.display_name
+
+    def present(self) -> bool:
+        return all(self.db.physical_columns(t) is not None for t in LOG_TABLES)
+
+    def has_campaign(self, campaign_id: str) -> bool:
+        if self.db.physical_columns("campaigns") is None:
+            return False
+        q = Query(
+            "SELECT count(*) AS n FROM campaigns WHERE campaign_id = :campaign_id",
+            {"campaign_id": campaign_id},
+            label="campaign exists",
+        )
+        return bool(self.db.scalar(q))
+
+    def refuse_existing(self, campaign_id: str, *, replace: bool) -> None:
+        if not replace and self.has_campaign(campaign_id):
+            raise StateError(
+                f"Campaign {campaign_id!r} is already in the campaign log at {self.where}; "
+                "nothing was written.",
+                hint="pass --replace to overwrite its record, or choose another --campaign id",
+            )
+
+    def recent_contacts(self, since: datetime, *, other_than: str | None = None) -> pl.Series:
+        """Customers contacted (treatment group) at or after ``since`` by any other campaign."""
+        if self.db.physical_columns("campaign_contacts") is None:
+            return pl.Series("customer_id", [], dtype=pl.Int64)
+        q = Query(
+            "SELECT DISTINCT customer_id FROM campaign_contacts\n"
+            "WHERE contact_group = :treatment AND contacted_at >= :since\n"
+            "  AND campaign_id <> :campaign_id",
+            {"treatment": "treatment", "since": since, "campaign_id": other_than or ""},
+            label="recent contacts",
+        )
+        return self.db.fetch(q)["customer_id"].cast(pl.Int64)
+
+    def record(
+        self, record: CampaignRecord, contacts: pl.DataFrame, *, replace: bool = False
+    ) -> None:
+        """Write the campaign and its contacts (customer_id, contact_group, score, reason) in one
+        transaction, creating the log tables first when they are absent."""
+        check_campaign_id(record.campaign_id)
+        groups = set(contacts["contact_group"].unique().to_list())
+        if not groups <= set(GROUPS):
+            raise InputError(f"contact_group must be one of {GROUPS}, found {sorted(groups)}.")
+        rows = contacts.select(
+            pl.lit(record.campaign_id, dtype=pl.String).alias("campaign_id"),
+            pl.col("customer_id").cast(pl.Int64),
+            pl.col("contact_group").cast(pl.String),
+            pl.col("score").cast(pl.Float64),
+            pl.col("reason").cast(pl.String),
+            pl.lit(record.created_at, dtype=pl.Datetime("us")).alias("contacted_at"),
+        )
+        # Every read happens before the transaction: on some engines a read ends a transaction.
+        missing = [t for t in LOG_TABLES if self.db.physical_columns(t) is None]
+        exists = not missing and self.has_campaign(record.campaign_id)
+        if exists and not replace:
+            self.refuse_existing(record.campaign_id, replace=False)
+        with self.db.transaction():
+            for table in missing:
+                try:
+                    self.db.run_statement(log_table_ddl(self.db.mapping, table))
+                except WarehouseError as exc:
+                    raise StateError(
+                        f"Could not create the campaign log table {table} in {self.where} "
+                        f"({exc.message.rstrip('.')}); nothing was written.",
+                        hint="when the warehouse is read-only, keep the log locally with "
+                        "--state PATH",
+                    ) from None
+            if exists:
+                for table in LOG_TABLES:
+                    self._delete(table, record.campaign_id)
+            self._append("campaigns", record.frame())
+            self._append("campaign_contacts", rows)
+
+    def _delete(self, table: str, campaign_id: str) -> None:
+        tmap = self.db.mapping.table(table)
+        self.db.execute(
+            Query(
+                f"DELETE FROM {quote_qualified(tmap.physical)} "
+                f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
+                {"campaign_id": campaign_id},
+                label=f"replace {table}",
+            )
+        )
+
+    def _append(self, table: str, frame: pl.DataFrame) -> None:
+        try:
+            self.db.load_frame(table, frame)
+        except Exception as exc:  # a read-only database or a missing privilege
+            raise StateError(
+                f"Could not write the campaign log table {table} in {self.where} "
+                f"({str(exc).splitlines()[0]}); nothing was written.",
+                hint="when the warehouse is read-only, keep the log locally with --state PATH",
+            ) from None
+
+    # -- reading ---------------------------------------------------------------------------------
+    def campaign(self, campaign_id: str) -> dict[str, Any] | None:
+        """The campaign's row with its JSON fields decoded, or None."""
+        if self.db.physical_columns("campaigns") is None:
+            return None
+        cols = ", ".join(CONTRACT["campaigns"].column_names)
+        df = self.db.fetch(
+            Query(
+                f"SELECT {cols} FROM campaigns WHERE campaign_id = :campaign_id",
+                {"campaign_id": campaign_id},
+                label="campaign",
+            )
+        )
+        if df.height == 0:
+            return None
+        row = df.row(0, named=True)
+        for key in ("parameters", "rules", "counts"):
+            row[key] = json.loads(row[key])
+        return row
+
+    def contacts(self, campaign_id: str) -> pl.DataFrame:
+        cols = ", ".join(CONTRACT["campaign_contacts"].column_names)
+        return self.db.fetch(
+            Query(
+                f"SELECT {cols} FROM campaign_contacts WHERE campaign_id = :campaign_id "
+                "ORDER BY customer_id",
+                {"campaign_id": campaign_id},
+                label="campaign contacts",
+            )
+        )

@@ -1,0 +1,210 @@
+"""Commands that turn rules into customer lists: sql, sizes, build; and the promotion overlap."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import click
+
+from reachlist.audience import RANK_MEASURES, Filters
+from reachlist.cli import err, main, out, warehouse_options
+from reachlist.cli.mining import mining_options
+from reachlist.cli.progress import delayed_status
+from reachlist.holdout import DEFAULT_SHARE
+from reachlist.lists import DEFAULT_CAP_DAYS, PURPOSES, ListRequest
+from reachlist.warehouse import Warehouse
+
+
+def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Options shared by sql, sizes and build: which rules, which exclusions, which campaign."""
+    for option in reversed(
+        [
+            click.option("--purpose", default="introduce", show_default=True,
+                         type=click.Choice(PURPOSES),
+                         help="introduce: a new or under-adopted item; clear: surplus stock."),
+            click.option("--stand-in", default=None, metavar="ITEM",
+                         help="Use the rules of this existing sku or category:NAME (for an item "
+                         "without history); the estimates are then borrowed from it."),
+            click.option("--top", default=5, show_default=True, type=click.IntRange(1),
+                         help="Use this many significant rules."),
+            click.option("--rank-by", default="leverage", show_default=True,
+                         type=click.Choice(RANK_MEASURES), help="Measure that ranks the rules."),
+            click.option("--rule", "rule_ids", multiple=True, metavar="ID",
+                         help="Use these rules (ids from `reachlist rules`) instead of --top."),
+            click.option("--bought-within", default=None, type=click.IntRange(1), metavar="DAYS",
+                         help="Exclude only customers who bought the target in these last days "
+                         "[default: ever]."),
+            click.option("--cap-days", default=DEFAULT_CAP_DAYS, show_default=True,
+                         type=click.IntRange(0),
+                         help="Exclude customers contacted in these last days (campaign log); "
+                         "0 switches the cap off."),
+            click.option("--region", "regions", multiple=True,
+                         help="Keep only customers of this region (repeatable)."),
+            click.option("--channel", "channels", multiple=True,
+                         help="Keep only customers with an order through this channel in the "
+                         "window (repeatable)."),
+            click.option("--ordered-within", default=None, type=click.IntRange(1),
+                         metavar="DAYS", help="Keep only customers with an order in these last "
+                         "days."),
+            click.option("--adult-age", default=18, show_default=True, type=click.IntRange(1, 99),
+                         help="Age of an adult, for age-restricted targets."),
+            click.option("--holdout", default=DEFAULT_SHARE, show_default=True,
+                         type=click.FloatRange(0, 1, max_open=True),
+                         help="Share of the list kept back (not contacted) to measure take-up."),
+            click.option("--campaign", "campaign_id", default=None, metavar="ID",
+                         help="Campaign id [default: PURPOSE-TARGET-YYYYMMDD]; it seeds the "
+                         "holdout."),
+            click.option("--stock", default=None, type=click.IntRange(1),
+                         help="clear: units to clear [default: products.stock_on_hand]."),
+            click.option("--ignore-consent", is_flag=True,
+                         help="Do not exclude customers without marketing consent (printed and "
+                         "logged)."),
+            click.option("--ignore-suppressions", is_flag=True,
+                         help="Do not exclude suppressed customers (printed and logged)."),
+            click.option("--allow-sensitive", is_flag=True,
+                         help="Allow a target or rule in a sensitive category."),
+        ]
+    ):
+        fn = option(fn)
+    return fn
+
+
+def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> ListRequest:
+    mining = {k: opts.pop(k) for k in list(opts) if k in _MINING_KEYS}
+    since, until = mining.pop("since"), mining.pop("until")
+    return ListRequest(
+        target=target,
+        purpose=opts["purpose"],
+        stand_in=opts["stand_in"],
+        top=opts["top"],
+        rank_by=opts["rank_by"],
+        rule_ids=tuple(opts["rule_ids"]),
+        since=since,
+        until=until,
+        mining=mining,
+        bought_within_days=opts["bought_within"],
+        cap_days=opts["cap_days"],
+        filters=Filters(tuple(opts["regions"]), tuple(opts["channels"]), opts["ordered_within"]),
+        adult_age=opts["adult_age"],
+        holdout=opts["holdout"],
+        campaign_id=opts["campaign_id"],
+        ignore_consent=opts["ignore_consent"],
+        ignore_suppressions=opts["ignore_suppressions"],
+        allow_sensitive=opts["allow_sensitive"],
+        stock=opts["stock"],
+        contact=contact,
+    )
+
+
+_MINING_KEYS = (
+    "level", "basket", "since", "until", "min_support", "min_confidence", "min_lift",
+    "max_antecedent", "keep_unproductive", "correction",
+)
+
+
+@main.command("sql")
+@click.argument("target")
+@warehouse_options
+@mining_options
+@list_options
+@click.option("--inline", "inline_values", is_flag=True,
+              help="Write the values into the SQL (to run it elsewhere) instead of listing them.")
+@click.option("--with-contact", is_flag=True, help="Include the email column.")
+def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
+            **opts: Any) -> None:
+    """Print the audience SQL for TARGET exactly as it runs on this warehouse."""
+    from reachlist.lists import plan_list
+    from reachlist.render.lists import (
+        render_caution,
+        render_plan_header,
+        render_warnings,
+        sql_text,
+    )
+
+    with delayed_status(err, "Mining rules") as progress:
+        plan = plan_list(wh, _request(target, opts, contact=with_contact), progress=progress)
+    click.echo(sql_text(plan.sql(wh), wh.dialect, inline=inline_values), nl=False)
+    render_plan_header(plan, err)
+    render_warnings(plan, err)
+    render_caution(err)
+
+
+@main.command()
+@click.argument("target")
+@warehouse_options
+@mining_options
+@list_options
+@click.option("--state", default=None, metavar="PATH",
+              help="Local DuckDB file holding the campaign log (for a read-only warehouse).")
+def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
+    """Preview the list for TARGET: reach per rule, exclusions, list and holdout sizes."""
+    from reachlist.campaigns import CampaignLog
+    from reachlist.lists import plan_list, preview_list
+    from reachlist.render.lists import render_sizes
+
+    # A preview writes nothing: a --state file that does not exist yet is not created.
+    log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else None
+    try:
+        with delayed_status(out, "Mining rules") as progress:
+            plan = plan_list(wh, _request(target, opts), progress=progress)
+            progress("Sizing the audience")
+            outcome = preview_list(wh, plan, log)
+    finally:
+        if log is not None:
+            log.close()
+    render_sizes(outcome, out)
+
+
+@main.command()
+@click.argument("target")
+@warehouse_options
+@mining_options
+@list_options
+@click.option("--out", "out_path", required=True, metavar="FILE",
+              help="List file to write: .csv or .parquet.")
+@click.option("--force", is_flag=True, help="Overwrite an existing list file.")
+@click.option("--replace", is_flag=True, help="Replace the campaign log's record of this campaign.")
+@click.option("--with-contact", is_flag=True, help="Add contact fields (email) to the list.")
+@click.option("--state", default=None, metavar="PATH",
+              help="Keep the campaign log in this local DuckDB file (for a read-only warehouse).")
+def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
+          with_contact: bool, state: str | None, **opts: Any) -> None:
+    """Write the contact list for TARGET and record the campaign in the campaign log."""
+    from reachlist.campaigns import CampaignLog
+    from reachlist.export import check_destination
+    from reachlist.lists import build_list, plan_list
+    from reachlist.render.lists import render_built
+
+    check_destination(out_path, force=force)
+    with delayed_status(out, "Mining rules") as progress, CampaignLog.open(wh, state) as log:
+        plan = plan_list(wh, _request(target, opts, contact=with_contact), progress=progress)
+        progress("Building the list")
+        built = build_list(wh, plan, out_path, log=log, force=force, replace=replace)
+    render_built(built, out)
+
+
+@main.command()
+@click.argument("items", nargs=-1, required=True)
+@warehouse_options
+@click.option("--basket", default="order", show_default=True,
+              type=click.Choice(["order", "customer"]),
+              help="Bought together in one order, or by one customer in the window.")
+@click.option("--since", default=None, help="Start of the window (YYYY-MM-DD); default 12 "
+              "months before --until.")
+@click.option("--until", default=None, help="End of the window (exclusive); default the day "
+              "after the last order.")
+@click.option("--alpha", default=0.05, show_default=True, type=click.FloatRange(0, 1,
+              min_open=True, max_open=True), help="Significance level after correction.")
+@click.option("--all", "show_all", is_flag=True, help="Show every pair and triple tested.")
+def overlap(wh: Warehouse, items: tuple[str, ...], basket: str, since: str | None,
+            until: str | None, alpha: float, show_all: bool) -> None:
+    """Which of the ITEMS planned for promotion together already sell together."""
+    from reachlist.overlap import promotion_overlap
+    from reachlist.render.lists import render_overlap
+
+    with delayed_status(out, "Counting baskets"):
+        report = promotion_overlap(wh, list(items), basket=basket, since=since, until=until,
+                                   alpha=alpha)
+    render_overlap(report, out, show_all=show_all)

@@ -1,0 +1,636 @@
+"""Plan, preview and build a campaign list.
+
+rules toward the target -> audience (``reachlist.audience``) -> exclusions in their fixed order
+(``reachlist.exclusions``) -> holdout (``reachlist.holdout``) -> for a clearance, a cut sized to
+the stock -> file (``reachlist.export``) and campaign log (``reachlist.campaigns``).
+
+>>> plan = plan_list(wh, ListRequest("HM-2041"))             # doctest: +SKIP
+>>> preview = preview_list(wh, plan)                          # doctest: +SKIP
+>>> built = build_list(wh, plan, "mats.csv", log=CampaignLog.open(wh))   # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from dataclasses import asdict, dataclass, field
+from datetime import UTC, date, datetime, timedelta
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import polars as pl
+
+from reachlist.audience import (
+    AudienceSpec,
+    ChosenRule,
+    Filters,
+    adult_born_by,
+    audience_query,
+    choose_rules,
+    reach_query,
+    rule_rate_interval,
+)
+from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
+from reachlist.errors import EmptyResultError, InputError
+from reachlist.exclusions import STEPS, StepCount, apply_exclusions
+from reachlist.export import check_destination, stage_list
+from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
+from reachlist.query import Query, Rendered
+from reachlist.targets import (
+    LEVEL_COLUMN,
+    Target,
+    check_level,
+    mining_window,
+    parse_target,
+    resolve_target,
+)
+from reachlist.warehouse import Warehouse
+
+if TYPE_CHECKING:
+    from reachlist.rules import RuleSet
+
+__all__ = [
+    "PURPOSES",
+    "Built",
+    "Clearance",
+    "ListOutcome",
+    "ListRequest",
+    "Plan",
+    "RuleReach",
+    "build_list",
+    "plan_list",
+    "preview_list",
+]
+
+PURPOSES = ("introduce", "clear")
+DEFAULT_CAP_DAYS = 14
+NOT_NEEDED = "not_needed"  # excluded_by for customers a clearance list does not need
+
+
+@dataclass(frozen=True)
+class ListRequest:
+    """What the user asked for; ``plan_list`` checks it against the warehouse."""
+
+    target: str
+    purpose: str = "introduce"
+    stand_in: str | None = None  # an existing sku or category whose rules are used
+    top: int = 5
+    rank_by: str = "leverage"
+    rule_ids: tuple[str, ...] = ()
+    # The mining window is also the lookback window: antecedents must be held inside it, and its
+    # end is the cutoff. Defaults: 12 months up to the day after the last order.
+    since: str | date | None = None
+    until: str | date | None = None
+    mining: dict[str, Any] = field(default_factory=dict)  # more options for mine_rules
+    bought_within_days: int | None = None  # None: exclude anyone who ever bought the target
+    cap_days: int = DEFAULT_CAP_DAYS  # 0 switches the frequency cap off
+    filters: Filters = field(default_factory=Filters)
+    adult_age: int = 18
+    holdout: float = DEFAULT_SHARE
+    campaign_id: str | None = None
+    ignore_consent: bool = False
+    ignore_suppressions: bool = False
+    allow_sensitive: bool = False
+    stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
+    contact: bool = False  # add contact fields (email) to the exported list
+
+    def parameters(self) -> dict[str, Any]:
+        """The request as plain values, for the campaign log."""
+        out = asdict(self)
+        out["filters"] = asdict(self.filters)
+        return out
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A checked request: the resolved target, the chosen rules and the audience definition."""
+
+    request: ListRequest
+    target: Target
+    rules_target: Target  # the stand-in when one is used, else the target
+    ruleset: RuleSet
+    rules: tuple[ChosenRule, ...]
+    spec: AudienceSpec
+    campaign_id: str
+    now: datetime  # naive UTC; the frequency cap counts back from it
+    sensitive: tuple[str, ...] = ()  # sensitive items among target, stand-in and antecedents
+    notes: tuple[str, ...] = ()
+    overrides: tuple[str, ...] = ()  # consent or suppression switched off
+
+    @property
+    def stand_in(self) -> Target | None:
+        return None if self.rules_target == self.target else self.rules_target
+
+    def query(self) -> Query:
+        return audience_query(self.spec)
+
+    def sql(self, wh: Warehouse) -> Rendered:
+        """Exactly what runs on this warehouse to fetch the audience."""
+        return wh.render(self.query())
+
+
+@dataclass(frozen=True)
+class RuleReach:
+    """A rule's share of the audience (preview)."""
+
+    rule: ChosenRule
+    reached: int  # customers holding the antecedent (before exclusions)
+    kept: int  # of those, customers left after the exclusions
+    above: int  # of the kept, customers a higher-ranked rule also reaches
+    interval: tuple[float, float]  # 95% Wilson interval of the co-purchase rate
+
+    @property
+    def adds(self) -> int:
+        return self.kept - self.above
+
+
+@dataclass(frozen=True)
+class Clearance:
+    """How a clearance list was sized to the stock."""
+
+    stock: int
+    stock_from: str
+    units_per_buyer: float
+    buyers_seen: int
+    units_from: str
+    expected_units: float  # from the treatment group of the list
+    customers: int  # customers on the list (treatment and holdout)
+    available: int  # customers left after the exclusions
+    clears: bool
+
+
+@dataclass
+class ListOutcome:
+    """Every reached customer with its exclusion flags, ``excluded_by`` and ``contact_group``."""
+
+    plan: Plan
+    customers: pl.DataFrame
+    waterfall: list[StepCount]
+    clearance: Clearance | None = None
+    per_rule: list[RuleReach] | None = None
+    log_where: str | None = None
+
+    @property
+    def reached(self) -> int:
+        return self.customers.height
+
+    @property
+    def listed(self) -> pl.DataFrame:
+        return self.customers.filter(pl.col("contact_group").is_not_null())
+
+    @property
+    def treatment(self) -> pl.DataFrame:
+        return self.customers.filter(pl.col("contact_group") == "treatment")
+
+    @property
+    def holdout(self) -> pl.DataFrame:
+        return self.customers.filter(pl.col("contact_group") == "holdout")
+
+    def co_purchase_rate(self) -> tuple[float, float, float] | None:
+        """Mean historical co-purchase rate of the treatment group's reasons, with the mean of the
+        rules' interval ends. Not a take-up forecast: customers who hold an antecedent today are
+        not the customers the rate was measured on."""
+        t = self.treatment
+        if t.height == 0:
+            return None
+        by_rule = {r.rule_id: r for r in self.plan.rules}
+        counts = t.group_by("rule_id").len().iter_rows()
+        n = lo = hi = est = 0.0
+        for rule_id, k in counts:
+            rule = by_rule[rule_id]
+            low, high = rule_rate_interval(rule)
+            est += k * rule.score
+            lo += k * low
+            hi += k * high
+            n += k
+        return est / n, lo / n, hi / n
+
+    def counts(self) -> dict[str, Any]:
+        out: dict[str, Any] = {
+            "reached": self.reached,
+            "waterfall": [asdict(s) for s in self.waterfall],
+            "listed": self.listed.height,
+            "treatment": self.treatment.height,
+            "holdout": self.holdout.height,
+        }
+        if self.clearance is not None:
+            out["clearance"] = asdict(self.clearance)
+        return out
+
+
+@dataclass(frozen=True)
+class Built:
+    outcome: ListOutcome
+    path: Path
+    rows: int
+    log_where: str
+
+
+# -- planning ------------------------------------------------------------------------------------
+def plan_list(
+    wh: Warehouse,
+    request: ListRequest,
+    *,
+    rules: RuleSet | None = None,
+    now: datetime | None = None,
+    progress: Callable[[str], None] | None = None,
+) -> Plan:
+    """Check a request against the warehouse, mine (or take) the rules and choose among them.
+
+    ``rules`` given (mined earlier, or built by hand) are used as they are, with their window."""
+    if request.purpose not in PURPOSES:
+        raise InputError(
+            f"Expected a purpose of {' or '.join(PURPOSES)}, found {request.purpose!r}.",
+            hint="pass --purpose introduce (new or under-adopted item) or --purpose clear "
+            "(surplus stock)",
+        )
+    check_share(request.holdout)
+    if request.cap_days < 0:
+        raise InputError(
+            f"Expected --cap-days of at least 0, found {request.cap_days}.",
+            hint="pass --cap-days 14, or 0 to switch the frequency cap off",
+        )
+    if request.stock is not None and request.stock < 1:
+        raise InputError(
+            f"Expected --stock of at least 1 unit, found {request.stock}.",
+            hint="leave it out to use products.stock_on_hand",
+        )
+    now = now or datetime.now(UTC).replace(tzinfo=None)
+    target = resolve_target(wh, parse_target(request.target))
+    rules_target = (
+        resolve_target(wh, parse_target(request.stand_in)) if request.stand_in else target
+    )
+    window = rules.window if rules is not None else mining_window(wh, request.since, request.until)
+    notes: list[str] = []
+    if rules_target != target:
+        notes.append(
+            f"Rules and scores are borrowed from the stand-in {rules_target}: {target} is "
+            "offered, but every estimate describes buyers of the stand-in."
+        )
+    elif item_buyers(wh, target, window.until)[0] == 0:
+        raise InputError(
+            f"Expected purchase history for {target}, found no customer who bought it before "
+            f"{window.until:%Y-%m-%d}, so no rule can point at it.",
+            hint="pass --stand-in with an existing sku or category:NAME whose buyers are like "
+            "the ones you want",
+        )
+    if rules is None:
+        from reachlist.rules import mine_rules
+
+        rules = mine_rules(
+            wh,
+            rules_target,
+            since=window.since,  # type: ignore[arg-type]
+            until=window.until,  # type: ignore[arg-type]
+            progress=progress,
+            **request.mining,
+        )
+    level = check_level(rules.level)
+    chosen = choose_rules(
+        rules, top=request.top, rank_by=request.rank_by, rule_ids=request.rule_ids
+    )
+    weak = [r.rule_id for r in chosen if not r.significant]
+    if weak:
+        notes.append(
+            f"Rule(s) {', '.join(weak)} are not significant after correction: their audiences "
+            "may be no likelier to buy than anyone else."
+        )
+    facts = item_facts(wh, target)
+    sensitive = sensitive_items(wh, target, rules_target, level, chosen)
+    if sensitive and not request.allow_sensitive:
+        raise InputError(
+            f"Expected no sensitive items, found {', '.join(sensitive)} (products.sensitive): "
+            "lists inferred from such purchases can be unlawful or harmful.",
+            hint="check with your data-protection lead, then pass --allow-sensitive",
+        )
+    overrides = []
+    if request.ignore_consent:
+        overrides.append("marketing-consent exclusion switched off (--ignore-consent)")
+    if request.ignore_suppressions:
+        overrides.append("suppression-list exclusion switched off (--ignore-suppressions)")
+    campaign_id = check_campaign_id(
+        request.campaign_id or default_campaign_id(target, request.purpose, now.date())
+    )
+    spec = AudienceSpec(
+        target=target,
+        rules=chosen,
+        level=level,
+        lookback=rules.window,
+        bought_within_days=request.bought_within_days,
+        age_restricted=bool(facts["age_restricted"]),
+        adult_born_by=adult_born_by(now.date(), request.adult_age),
+        filters=request.filters,
+        contact=request.contact,
+    )
+    return Plan(
+        request=request,
+        target=target,
+        rules_target=rules_target,
+        ruleset=rules,
+        rules=chosen,
+        spec=spec,
+        campaign_id=campaign_id,
+        now=now,
+        sensitive=sensitive,
+        notes=tuple(notes),
+        overrides=tuple(overrides),
+    )
+
+
+def default_campaign_id(target: Target, purpose: str, day: date) -> str:
+    slug = re.sub(r"[^A-Za-z0-9]+", "-", str(target)).strip("-").lower()[:50] or "target"
+    return f"{purpose}-{slug}-{day:%Y%m%d}"
+
+
+def item_facts(wh: Warehouse, item: Target) -> dict[str, Any]:
+    q = Query.from_template("item_facts", {"item": item.name}, level=LEVEL_COLUMN[item.level])
+    return wh.fetch(q).row(0, named=True)
+
+
+def item_buyers(wh: Warehouse, item: Target, until: datetime) -> tuple[int, float]:
+    """Customers holding ``item`` before ``until`` and the net units they hold."""
+    q = Query.from_template(
+        "item_units", {"item": item.name, "until": until}, level=LEVEL_COLUMN[item.level]
+    )
+    buyers, units = wh.fetch(q).row(0)
+    return int(buyers or 0), float(units or 0)
+
+
+def sensitive_items(
+    wh: Warehouse, target: Target, rules_target: Target, level: str, rules: tuple[ChosenRule, ...]
+) -> tuple[str, ...]:
+    """Target, stand-in and antecedent items of which some SKU is marked sensitive."""
+    found: list[str] = []
+    wanted: dict[str, set[str]] = {}
+    for item in (target, rules_target):
+        wanted.setdefault(item.level, set()).add(item.name)
+    for rule in rules:
+        wanted.setdefault(level, set()).update(rule.antecedent)
+    for lvl, items in wanted.items():
+        col = LEVEL_COLUMN[lvl]  # type: ignore[index]
+        df = wh.fetch(
+            Query(
+                f"SELECT DISTINCT {col} AS item FROM products\n"
+                f"WHERE sensitive AND {col} IN (:items)\nORDER BY 1",
+                {"items": sorted(items)},
+                label="sensitive items",
+            )
+        )
+        prefix = "" if lvl == "sku" else f"{lvl}:"
+        found += [f"{prefix}{v}" for v in df["item"].to_list()]
+    return tuple(dict.fromkeys(found))
+
+
+# -- computing -----------------------------------------------------------------------------------
+def _outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None) -> ListOutcome:
+    req = plan.request
+    frame = wh.fetch(plan.query())
+    if frame.height == 0:
+        frame = _empty_audience(plan)
+    frame = frame.with_columns(pl.col("customer_id").cast(pl.Int64))
+    if req.cap_days > 0 and log is not None:
+        since = plan.now - timedelta(days=req.cap_days)
+        recent = log.recent_contacts(since, other_than=plan.campaign_id)
+        flag = pl.col("customer_id").is_in(recent.implode())
+    else:
+        flag = pl.lit(False)
+    frame = frame.with_columns(flag.alias("contacted_recently"))
+
+    in_use = {"has_target"}
+    notes: dict[str, str] = {}
+    if req.ignore_consent:
+        notes["no_consent"] = "switched off (--ignore-consent)"
+    else:
+        in_use.add("no_consent")
+    if req.ignore_suppressions:
+        notes["suppressed"] = "switched off (--ignore-suppressions)"
+    else:
+        in_use.add("suppressed")
+    if req.cap_days > 0:
+        in_use.add("contacted_recently")
+        if log is None:
+            notes["contacted_recently"] = "no campaign log to read"
+    else:
+        notes["contacted_recently"] = "not used (--cap-days 0)"
+    if plan.spec.age_restricted:
+        in_use.add("not_adult")
+    else:
+        notes["not_adult"] = "target is not age-restricted"
+    f = plan.spec.filters
+    for key, used in (
+        ("outside_region", bool(f.regions)),
+        ("outside_channel", bool(f.channels)),
+        ("inactive", f.active_days is not None),
+    ):
+        if used:
+            in_use.add(key)
+        else:
+            notes[key] = "no filter given"
+    frame, waterfall = apply_exclusions(frame, in_use=in_use, notes=notes)
+
+    kept = pl.col("excluded_by").is_null()
+    holdout = assign_holdout(plan.campaign_id, frame["customer_id"], req.holdout)
+    frame = frame.with_columns(
+        pl.when(kept)
+        .then(pl.when(holdout).then(pl.lit("holdout")).otherwise(pl.lit("treatment")))
+        .otherwise(pl.lit(None, dtype=pl.String))
+        .alias("contact_group")
+    )
+    clearance = None
+    if req.purpose == "clear":
+        frame, clearance = _size_to_stock(wh, plan, frame)
+        waterfall.append(
+            StepCount(
+                NOT_NEEDED,
+                "not needed to clear the stock",
+                True,
+                clearance.available - clearance.customers,
+                clearance.customers,
+                0,
+            )
+        )
+    return ListOutcome(
+        plan, frame, waterfall, clearance, log_where=log.where if log is not None else None
+    )
+
+
+def _empty_audience(plan: Plan) -> pl.DataFrame:
+    schema: dict[str, Any] = {"customer_id": pl.Int64, "rule_id": pl.String, "score": pl.Float64}
+    schema.update({s.key: pl.Boolean for s in STEPS if s.key != "contacted_recently"})
+    if plan.spec.contact:
+        schema["email"] = pl.String
+    return pl.DataFrame(schema=schema)
+
+
+def _size_to_stock(
+    wh: Warehouse, plan: Plan, frame: pl.DataFrame
+) -> tuple[pl.DataFrame, Clearance]:
+    """Take kept customers in score order until the treatment group's expected units reach the
+    stock; the rest are marked ``not_needed``."""
+    req = plan.request
+    if req.stock is not None:
+        stock, stock_from = req.stock, "--stock"
+    else:
+        on_hand = item_facts(wh, plan.target)["stock_on_hand"]
+        if on_hand is None or on_hand <= 0:
+            raise InputError(
+                f"Expected a stock to clear for {plan.target}, found products.stock_on_hand "
+                f"{on_hand!r}.",
+                hint="pass --stock N with the units to clear",
+            )
+        stock, stock_from = int(on_hand), "products.stock_on_hand"
+    until = plan.spec.lookback.until
+    buyers, units = item_buyers(wh, plan.target, until)
+    units_from = str(plan.target)
+    if buyers == 0 and plan.stand_in is not None:
+        buyers, units = item_buyers(wh, plan.stand_in, until)
+        units_from = f"{plan.stand_in} (stand-in)"
+    if buyers == 0:
+        per_buyer, units_from = 1.0, "no history: 1 unit assumed"
+    else:
+        per_buyer = units / buyers
+    kept = frame.filter(pl.col("excluded_by").is_null()).sort(
+        ["score", "customer_id"], descending=[True, False]
+    )
+    expected = kept.select(
+        pl.when(pl.col("contact_group") == "treatment")
+        .then(pl.col("score") * per_buyer)
+        .otherwise(0.0)
+        .cum_sum()
+        .alias("units")
+    )["units"]
+    reach_at = expected.search_sorted(stock - 1e-9, side="left") if kept.height else 0
+    clears = kept.height > 0 and float(expected[-1]) >= stock - 1e-9
+    take = int(reach_at) + 1 if clears else kept.height
+    chosen = kept.head(take)["customer_id"]
+    frame = frame.with_columns(
+        pl.when(pl.col("excluded_by").is_null() & ~pl.col("customer_id").is_in(chosen.implode()))
+        .then(pl.lit(NOT_NEEDED))
+        .otherwise(pl.col("excluded_by"))
+        .alias("excluded_by"),
+    ).with_columns(
+        pl.when(pl.col("excluded_by") == NOT_NEEDED)
+        .then(pl.lit(None, dtype=pl.String))
+        .otherwise(pl.col("contact_group"))
+        .alias("contact_group")
+    )
+    return frame, Clearance(
+        stock=stock,
+        stock_from=stock_from,
+        units_per_buyer=per_buyer,
+        buyers_seen=buyers,
+        units_from=units_from,
+        expected_units=float(expected[take - 1]) if take else 0.0,
+        customers=take,
+        available=kept.height,
+        clears=clears,
+    )
+
+
+def preview_list(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> ListOutcome:
+    """The analyst's preview: the outcome plus each rule's reach and overlap with rules above."""
+    outcome = _outcome(wh, plan, log)
+    pairs = wh.fetch(reach_query(plan.spec)).with_columns(
+        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    )
+    first_rank = pairs.group_by("customer_id").agg(pl.col("rule_rank").min().alias("first_rank"))
+    who = outcome.customers.select(
+        "customer_id",
+        (pl.col("excluded_by").is_null() | (pl.col("excluded_by") == NOT_NEEDED)).alias("kept"),
+    ).join(first_rank, on="customer_id", how="left")
+    joined = pairs.join(who, on="customer_id", how="left")
+    stats = {
+        row["rule_rank"]: row
+        for row in joined.group_by("rule_rank")
+        .agg(
+            pl.len().alias("reached"),
+            pl.col("kept").sum().alias("kept"),
+            (pl.col("kept") & (pl.col("first_rank") < pl.col("rule_rank"))).sum().alias("above"),
+        )
+        .iter_rows(named=True)
+    }
+    outcome.per_rule = [
+        RuleReach(
+            rule,
+            int(stats.get(rule.rank, {}).get("reached", 0)),
+            int(stats.get(rule.rank, {}).get("kept", 0)),
+            int(stats.get(rule.rank, {}).get("above", 0)),
+            rule_rate_interval(rule),
+        )
+        for rule in plan.rules
+    ]
+    return outcome
+
+
+def list_frame(outcome: ListOutcome) -> pl.DataFrame:
+    """The rows exported for contact: the treatment group only, best score first."""
+    reasons = {r.rule_id: r.describe() for r in outcome.plan.rules}
+    cols = [
+        pl.col("customer_id"),
+        pl.col("score"),
+        pl.col("rule_id"),
+        pl.col("rule_id").replace_strict(reasons, return_dtype=pl.String).alias("reason"),
+    ]
+    if outcome.plan.spec.contact:
+        cols.append(pl.col("email"))
+    return outcome.treatment.sort(["score", "customer_id"], descending=[True, False]).select(cols)
+
+
+def build_list(
+    wh: Warehouse,
+    plan: Plan,
+    out: str | Path,
+    *,
+    log: CampaignLog,
+    force: bool = False,
+    replace: bool = False,
+) -> Built:
+    """Write the treatment group to ``out`` and log the campaign (both or neither).
+
+    The file is staged first, the log is written in one transaction, and only then is the file
+    moved into place, so a logged campaign never lacks its file for long and a failed log leaves
+    no file behind.
+    """
+    check_destination(out, force=force)
+    log.refuse_existing(plan.campaign_id, replace=replace)
+    outcome = _outcome(wh, plan, log)
+    if outcome.treatment.height == 0:
+        biggest = max(outcome.waterfall, key=lambda s: s.removed, default=None)
+        why = f"; the largest step, {biggest.label}, removed {biggest.removed:,}" if biggest else ""
+        raise EmptyResultError(
+            f"Expected customers to contact for {plan.target}, found none after exclusions "
+            f"and holdout (rules reached {outcome.reached:,}{why}); nothing was written.",
+            hint="run `reachlist sizes` with the same options to see the waterfall",
+        )
+    staged = stage_list(list_frame(outcome), out, force=force)
+    ran = plan.sql(wh)
+    try:
+        record = CampaignRecord(
+            campaign_id=plan.campaign_id,
+            created_at=plan.now,
+            target=str(plan.target),
+            purpose=plan.request.purpose,
+            parameters={
+                **plan.request.parameters(),
+                "resolved_target": str(plan.target),
+                "rules_from": str(plan.rules_target),
+                "window": [plan.spec.lookback.since, plan.spec.lookback.until],
+                "level": plan.ruleset.level,
+                "basket": plan.ruleset.basket,
+                "output": str(Path(out).resolve()),
+                "sensitive": list(plan.sensitive),
+                "audience_sql": {"dialect": wh.dialect.name, "sql": ran.sql, "values": ran.params},
+            },
+            rules=[asdict(r) for r in plan.rules],
+            counts=outcome.counts(),
+            overrides=plan.overrides,
+        )
+        contacts = outcome.listed.select(
+            "customer_id", "contact_group", "score", pl.col("rule_id").alias("reason")
+        )
+        log.record(record, contacts, replace=replace)
+    except BaseException:
+        staged.discard()
+        raise
+    path = staged.publish()
+    return Built(outcome, path, staged.rows, log.where)

@@ -1,0 +1,231 @@
+"""Rendering of `reachlist sizes`, `build`, `sql` and `overlap`."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.markup import escape
+from rich.table import Table
+
+from reachlist.lists import Built, ListOutcome, Plan
+from reachlist.overlap import ADVICE, OverlapReport
+from reachlist.query import Dialect, Rendered, literal
+from reachlist.query import inline as inline_values
+from reachlist.render import CAUTION, fmt_count
+
+SENSITIVE_WARNING = (
+    "Warning: this list uses items of a sensitive category ({items}). Inferring health or "
+    "similar traits from purchases can be unlawful or harmful; make sure your organisation has "
+    "approved this use before anyone is contacted."
+)
+
+
+def _pct(x: float) -> str:
+    return f"{100 * x:.1f}%"
+
+
+def render_plan_header(plan: Plan, console: Console) -> None:
+    req = plan.request
+    rs = plan.ruleset
+    console.print(
+        f"[bold]{escape(str(plan.target))}[/] · purpose {req.purpose} · campaign "
+        f"{escape(plan.campaign_id)}",
+        soft_wrap=True,
+    )
+    console.print(
+        f"Antecedents held in {rs.window} ({rs.level} items, rules from {rs.n_baskets:,} "
+        f"{rs.basket} baskets); top {len(plan.rules)} rules by {req.rank_by}"
+        + (" (picked by id)" if req.rule_ids else ""),
+        soft_wrap=True,
+    )
+    for note in plan.notes:
+        console.print(f"[yellow]Note:[/] {escape(note)}", soft_wrap=True)
+
+
+def render_warnings(plan: Plan, console: Console, *, logged: bool = False) -> None:
+    """Overrides and sensitive items: printed loudly by every list-producing command."""
+    where = "written to the campaign log" if logged else "`build` writes it to the campaign log"
+    for override in plan.overrides:
+        console.print(f"[bold red]Override:[/] {escape(override)}; {where}.", soft_wrap=True)
+    if plan.sensitive:
+        text = SENSITIVE_WARNING.format(items=", ".join(plan.sensitive))
+        console.print(f"[bold red]{escape(text)}[/]", soft_wrap=True)
+
+
+def render_caution(console: Console) -> None:
+    console.print(f"[dim]{escape(CAUTION)}[/]", soft_wrap=True)
+
+
+def rules_table(outcome: ListOutcome) -> Table:
+    t = Table(title="Rules, best first", title_justify="left", show_edge=False, pad_edge=False)
+    t.add_column("#", justify="right")
+    t.add_column("rule", style="dim", no_wrap=True)
+    t.add_column("antecedent", overflow="fold", min_width=12)
+    t.add_column("co-purchase % (95%)", justify="right", no_wrap=True)
+    t.add_column("lift", justify="right")
+    t.add_column("reach", justify="right")
+    t.add_column("kept", justify="right")
+    t.add_column("above", justify="right")
+    t.add_column("adds", justify="right")
+    for rr in outcome.per_rule or []:
+        r = rr.rule
+        low, high = rr.interval
+        t.add_row(
+            str(r.rank),
+            escape(r.rule_id) + ("" if r.significant else " [yellow]ns[/]"),
+            escape(" + ".join(r.antecedent)),
+            f"{100 * r.score:.1f} ({100 * low:.1f}-{100 * high:.1f})",
+            f"{r.lift:.2f}",
+            fmt_count(rr.reached),
+            fmt_count(rr.kept),
+            fmt_count(rr.above),
+            fmt_count(rr.adds),
+        )
+    return t
+
+
+def waterfall_table(outcome: ListOutcome) -> Table:
+    t = Table(title="Exclusions, in order", title_justify="left", show_edge=False, pad_edge=False)
+    t.add_column("step")
+    t.add_column("removed", justify="right")
+    t.add_column("left", justify="right")
+    t.add_column("", style="dim")
+    t.add_row("reached by the rules", "", fmt_count(outcome.reached), "")
+    for s in outcome.waterfall:
+        if s.in_use:
+            t.add_row(s.label, fmt_count(s.removed), fmt_count(s.remaining), escape(s.note))
+        else:
+            note = s.note
+            if s.key in ("no_consent", "suppressed"):
+                note += f"; would have removed up to {s.flagged:,}"
+                t.add_row(f"[bold red]{s.label}[/]", "off", fmt_count(s.remaining), escape(note))
+            else:
+                t.add_row(f"[dim]{s.label}[/]", "-", fmt_count(s.remaining), escape(note))
+    return t
+
+
+def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
+    share = outcome.plan.request.holdout
+    console.print(
+        f"[bold]List:[/] {outcome.listed.height:,} customers: {outcome.treatment.height:,} to "
+        f"contact, {outcome.holdout.height:,} held out ({share:.0%} by hash of campaign and "
+        "customer id; logged, not contacted).",
+        soft_wrap=True,
+    )
+    rate = outcome.co_purchase_rate()
+    if rate is not None:
+        est, low, high = rate
+        console.print(
+            f"Historical co-purchase rate of the contacted customers' rules: {_pct(est)} "
+            f"(rules' 95% intervals {_pct(low)}-{_pct(high)}); about "
+            f"{est * outcome.treatment.height:,.0f} customers if they matched past holders.",
+            soft_wrap=True,
+        )
+        console.print(
+            "[dim]This is how often holders of the antecedent also held the target in the "
+            "mining window, not a take-up forecast: far fewer usually buy after an offer.[/]",
+            soft_wrap=True,
+        )
+    c = outcome.clearance
+    if c is not None:
+        basis = (
+            f"{c.units_per_buyer:.2f} units per buyer ({escape(c.units_from)}, "
+            f"{c.buyers_seen:,} buyers)"
+        )
+        if c.clears:
+            console.print(
+                f"[bold]Clearance:[/] stock {c.stock:,} ({c.stock_from}); the first "
+                f"{c.customers:,} of {c.available:,} customers by score are expected to take "
+                f"{c.expected_units:,.0f} units at the co-purchase rate x {basis}.",
+                soft_wrap=True,
+            )
+        else:
+            console.print(
+                f"[bold yellow]Clearance:[/] stock {c.stock:,} ({c.stock_from}); all "
+                f"{c.available:,} customers are expected to take only {c.expected_units:,.0f} "
+                f"units ({c.expected_units / c.stock:.0%} of the stock) at the co-purchase rate "
+                f"x {basis}.",
+                soft_wrap=True,
+            )
+
+
+def render_sizes(outcome: ListOutcome, console: Console) -> None:
+    render_plan_header(outcome.plan, console)
+    render_warnings(outcome.plan, console)
+    console.print(rules_table(outcome))
+    console.print(
+        "[dim]reach: customers holding the antecedent; kept: left after the exclusions; above: "
+        "kept customers a rule above also reaches; adds: what the rule adds to the list.[/]",
+        soft_wrap=True,
+    )
+    console.print(waterfall_table(outcome))
+    render_outcome_totals(outcome, console)
+    render_caution(console)
+
+
+def render_built(built: Built, console: Console) -> None:
+    o = built.outcome
+    render_plan_header(o.plan, console)
+    render_warnings(o.plan, console, logged=True)
+    console.print(waterfall_table(o))
+    render_outcome_totals(o, console)
+    console.print(
+        f"[green]Wrote {built.rows:,} customers to {escape(str(built.path))}[/]; campaign "
+        f"{escape(o.plan.campaign_id)} with {o.holdout.height:,} held-out customers logged in "
+        f"{escape(built.log_where)}.",
+        soft_wrap=True,
+    )
+    render_caution(console)
+
+
+def sql_text(rendered: Rendered, dialect: Dialect, *, inline: bool = False) -> str:
+    """The SQL as it runs, followed by its bound values as comments (or with values inlined)."""
+    if inline:
+        return inline_values(rendered, dialect).rstrip() + "\n"
+    mark = "$" if dialect.placeholder == "dollar" else ":"
+    lines = [rendered.sql.rstrip(), "", "-- bound values (never spliced into the text above):"]
+    for name, value in rendered.params.items():
+        shown = literal(value).replace("\r", "\\r").replace("\n", "\\n")
+        lines.append(f"--   {mark}{name} = {shown}")
+    return "\n".join(lines) + "\n"
+
+
+def render_overlap(report: OverlapReport, console: Console, *, show_all: bool = False) -> None:
+    console.print(
+        f"[bold]Promotion overlap[/] of {len(report.items)} {report.level} items: "
+        f"{report.n_baskets:,} {report.basket} baskets in {report.window}",
+        soft_wrap=True,
+    )
+    t = Table(show_edge=False, pad_edge=False)
+    t.add_column("items", overflow="fold")
+    t.add_column("together", justify="right")
+    t.add_column("by chance", justify="right")
+    t.add_column("lift", justify="right")
+    t.add_column("p adj", justify="right")
+    t.add_column("")
+    shown = report.sets if show_all else report.overlapping
+    for s in shown:
+        p = s.p_adjusted
+        t.add_row(
+            escape(" + ".join(s.items)),
+            fmt_count(s.n_together),
+            f"{s.expected:,.1f}",
+            f"{s.lift:.2f}",
+            "<1e-99" if p < 1e-99 else (f"{p:.1e}" if p < 0.001 else f"{p:.3f}"),
+            "[bold]together[/]" if s.significant else "[dim]ns[/]",
+        )
+    if shown:
+        console.print(t)
+    hidden = len(report.sets) - len(shown)
+    console.print(
+        f"{len(report.overlapping)} of {len(report.sets)} pairs and triples sell together more "
+        f"often than chance (one-sided Fisher exact test on each split of a set, "
+        f"{report.correction}-corrected over all {len(report.sets)} sets, adjusted p < "
+        f"{report.alpha}, lift > 1)" + (f"; {hidden} others hidden (--all shows them)." if hidden
+                                         else "."),
+        soft_wrap=True,
+    )
+    if report.overlapping:
+        console.print(f"[yellow]Advice:[/] {escape(ADVICE)}", soft_wrap=True)
+    else:
+        console.print("No set stands out: discounting these items together costs no margin on "
+                      "purchases that were already happening together.", soft_wrap=True)

@@ -1,0 +1,154 @@
+-- reachlist audience: customers who hold every antecedent item of at least one chosen rule
+-- inside the lookback window, one row per customer, with the reaching rule of the highest score
+-- (its id and its score) and one column per exclusion.
+--
+-- "Holds an item" follows held_items.sql: the customer's net quantity of a SKU inside the window
+-- is positive (returns cancel purchases), exact duplicate lines count once, SKUs missing from
+-- products are ignored, and a category or department is held when any SKU in it is held.
+--
+-- reachlist removes flagged customers in this fixed order and counts each step:
+--   has_target, no_consent, suppressed, contacted recently, not_adult,
+--   outside_region, outside_channel, inactive
+-- The contact-frequency cap (it reads the campaign log, which may live in another database) and
+-- the holdout (a hash of campaign id and customer id) are applied by reachlist after this query.
+WITH clean_lines AS (
+    -- only the lines of SKUs the chosen rules or the target mention; exact duplicates count once
+    SELECT DISTINCT order_id, sku, quantity, net_amount
+    FROM order_lines
+    WHERE sku IN (SELECT sku FROM products
+                  WHERE sku IN ($antecedent_items_0, $antecedent_items_1, $antecedent_items_2, $antecedent_items_3) OR sku = $target)
+),
+antecedent_skus AS (
+    -- SKUs each customer holds inside the lookback window
+    SELECT o.customer_id, l.sku
+    FROM clean_lines AS l
+    JOIN orders AS o ON o.order_id = l.order_id
+    WHERE o.ordered_at >= $since
+      AND o.ordered_at < $until
+    GROUP BY o.customer_id, l.sku
+    HAVING sum(l.quantity) > 0
+),
+held AS (
+    -- antecedent items (at the rules' item level) each customer holds
+    SELECT DISTINCT h.customer_id, p.sku AS item
+    FROM antecedent_skus AS h
+    JOIN products AS p ON p.sku = h.sku
+    WHERE p.sku IN ($antecedent_items_0, $antecedent_items_1, $antecedent_items_2, $antecedent_items_3)
+),
+target_skus AS (
+    -- target SKUs each customer holds between the target-window start (year 1: ever) and the
+    -- cutoff
+    SELECT o.customer_id, l.sku
+    FROM clean_lines AS l
+    JOIN orders AS o ON o.order_id = l.order_id
+    WHERE o.ordered_at >= $target_since
+      AND o.ordered_at < $until
+      AND l.sku IN (SELECT sku FROM products WHERE sku = $target)
+    GROUP BY o.customer_id, l.sku
+    HAVING sum(l.quantity) > 0
+),
+has_target AS (
+    SELECT DISTINCT customer_id FROM target_skus
+),
+rule_1 AS (
+    -- customers holding every antecedent item of rule 1
+    SELECT customer_id
+    FROM held
+    WHERE item IN ($rule_1_items_0, $rule_1_items_1)
+    GROUP BY customer_id
+    HAVING count(*) = $rule_1_size
+),
+rule_2 AS (
+    -- customers holding every antecedent item of rule 2
+    SELECT customer_id
+    FROM held
+    WHERE item IN ($rule_2_items_0)
+    GROUP BY customer_id
+    HAVING count(*) = $rule_2_size
+),
+rule_3 AS (
+    -- customers holding every antecedent item of rule 3
+    SELECT customer_id
+    FROM held
+    WHERE item IN ($rule_3_items_0)
+    GROUP BY customer_id
+    HAVING count(*) = $rule_3_size
+),
+reached AS (
+    -- every (customer, rule) pair; rule_rank 1 is the best-ranked rule
+    SELECT customer_id, 1 AS rule_rank, $rule_1_id AS rule_id, $rule_1_score AS score FROM rule_1
+    UNION ALL
+    SELECT customer_id, 2 AS rule_rank, $rule_2_id AS rule_id, $rule_2_score AS score FROM rule_2
+    UNION ALL
+    SELECT customer_id, 3 AS rule_rank, $rule_3_id AS rule_id, $rule_3_score AS score FROM rule_3
+),
+best AS (
+    -- each customer once, with the reaching rule of the highest score (then the better rank)
+    SELECT customer_id, rule_rank, rule_id, score
+    FROM (
+        SELECT customer_id, rule_rank, rule_id, score,
+               row_number() OVER (PARTITION BY customer_id
+                                  ORDER BY score DESC, rule_rank) AS pick
+        FROM reached
+    ) AS ranked
+    WHERE pick = 1
+),
+suppressed AS (
+    SELECT DISTINCT customer_id FROM suppressions
+),
+channel_customers AS (
+    -- customers with an order through a chosen channel inside the lookback window
+    SELECT DISTINCT customer_id FROM orders
+    WHERE channel IN ($channels_0) AND ordered_at >= $since AND ordered_at < $until
+),
+active_customers AS (
+    -- customers with an order (a purchase or a return) recently enough
+    SELECT DISTINCT customer_id FROM orders
+    WHERE ordered_at >= $active_since AND ordered_at < $until
+)
+SELECT
+    b.customer_id,
+    b.rule_id,
+    b.score,
+    t.customer_id IS NOT NULL          AS has_target,
+    c.marketing_consent IS NOT TRUE    AS no_consent,
+    s.customer_id IS NOT NULL          AS suppressed,
+    (c.birth_date IS NULL OR c.birth_date > $adult_born_by) AS not_adult,
+    NOT coalesce(c.region IN ($regions_0), FALSE) AS outside_region,
+    ch.customer_id IS NULL             AS outside_channel,
+    a.customer_id IS NULL              AS inactive,
+    c.email
+FROM best AS b
+LEFT JOIN customers AS c ON c.customer_id = b.customer_id
+LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
+LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id
+LEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id
+LEFT JOIN active_customers AS a ON a.customer_id = b.customer_id
+ORDER BY b.score DESC, b.customer_id
+
+-- bound values (never spliced into the text above):
+--   $antecedent_items_0 = 'A'
+--   $antecedent_items_1 = 'B'
+--   $antecedent_items_2 = 'C'
+--   $antecedent_items_3 = '''; DROP TABLE orders; --'
+--   $target = 'T'
+--   $since = TIMESTAMP '2025-01-01 00:00:00'
+--   $until = TIMESTAMP '2026-01-01 00:00:00'
+--   $target_since = TIMESTAMP '2025-10-03 00:00:00'
+--   $rule_1_items_0 = 'A'
+--   $rule_1_items_1 = 'B'
+--   $rule_1_size = 2
+--   $rule_1_id = 'R1'
+--   $rule_1_score = 0.3
+--   $rule_2_items_0 = 'C'
+--   $rule_2_size = 1
+--   $rule_2_id = 'R2'
+--   $rule_2_score = 0.2
+--   $rule_3_items_0 = '''; DROP TABLE orders; --'
+--   $rule_3_size = 1
+--   $rule_3_id = 'R3'
+--   $rule_3_score = 0.1
+--   $adult_born_by = DATE '2008-06-01'
+--   $regions_0 = 'north'
+--   $channels_0 = 'web'
+--   $active_since = TIMESTAMP '2025-12-02 00:00:00'

@@ -1,0 +1,176 @@
+"""The list commands end to end on the sample warehouse: sql, sizes, build, overlap."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import duckdb
+import polars as pl
+import pytest
+from click.testing import CliRunner
+
+from reachlist.campaigns import CampaignLog
+from reachlist.cli import main
+from reachlist.render import CAUTION
+from reachlist.sample import KEY_SKUS
+from reachlist.warehouse import Warehouse
+from tests import audience_cases as cases
+
+MAT = KEY_SKUS["heated_mat"]
+CAUTION_START = CAUTION[:40]
+
+
+@pytest.fixture(scope="module")
+def pristine(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return cases.sample_warehouse(tmp_path_factory)
+
+
+@pytest.fixture
+def sample(pristine: Path, tmp_path: Path) -> Path:
+    path = tmp_path / "garden.duckdb"
+    shutil.copy(pristine, path)
+    return path
+
+
+def run(*args: str) -> object:
+    result = CliRunner().invoke(main, list(args), catch_exceptions=False)
+    return result
+
+
+def one_error_line(result) -> str:
+    assert result.exit_code in (2, 3), result.output
+    lines = [ln for ln in result.output.splitlines() if ln.strip()]
+    assert len(lines) == 1 and lines[0].startswith("Error:"), result.output
+    return lines[0]
+
+
+def test_sql_prints_what_runs_and_inline_sql_runs_elsewhere(sample: Path) -> None:
+    plain = run("sql", MAT, "-w", str(sample), "--region", "North", "--campaign", "x")
+    assert plain.exit_code == 0, plain.output
+    assert plain.stdout.startswith("-- reachlist audience")
+    assert "$antecedent_items_0" in plain.stdout and "-- bound values" in plain.stdout
+    assert "--   $regions_0 = 'North'" in plain.stdout
+    assert CAUTION_START in plain.stderr and CAUTION_START not in plain.stdout
+    inline = run("sql", MAT, "-w", str(sample), "--region", "North", "--inline")
+    assert "$" not in inline.stdout.split("WITH", 1)[1]
+    con = duckdb.connect(str(sample), read_only=True)
+    rows = con.execute(inline.stdout).fetchall()  # as an analyst would run it elsewhere
+    con.close()
+    from reachlist.audience import Filters
+    from reachlist.lists import ListRequest, plan_list
+
+    with Warehouse.open(sample, read_only=True) as wh:
+        plan = plan_list(wh, ListRequest(MAT, filters=Filters(regions=("North",))))
+        expected = wh.fetch(plan.query())
+    assert len(rows) == expected.height > 1000
+    assert [r[0] for r in rows] == expected["customer_id"].to_list()
+
+
+def test_sizes_shows_rules_waterfall_holdout_and_labels_the_rate(sample: Path) -> None:
+    result = run("sizes", MAT, "-w", str(sample), "--campaign", "preview")
+    assert result.exit_code == 0, result.output
+    text = result.output
+    for expected in ("Rules, best first", "Exclusions, in order", "already has the target",
+                     "no marketing consent", "held out", "Historical co-purchase rate",
+                     "not a take-up forecast", CAUTION_START):
+        assert expected in text, expected
+    # the rate is never presented as take-up
+    assert text.count("take-up") == 1
+    with Warehouse.open(sample, read_only=True) as wh:
+        assert not CampaignLog(wh).present()  # a preview writes nothing
+
+
+def test_build_writes_logs_and_refuses_to_overwrite(sample: Path, tmp_path: Path) -> None:
+    out = tmp_path / "mats.csv"
+    args = ("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "mats-1")
+    first = run(*args)
+    assert first.exit_code == 0, first.output
+    assert "Wrote" in first.output and CAUTION_START in first.output
+    listed = pl.read_csv(out)
+    assert listed.columns == ["customer_id", "score", "rule_id", "reason"]
+    with Warehouse.open(sample, read_only=True) as wh:
+        log = CampaignLog(wh)
+        record = log.campaign("mats-1")
+        contacts = log.contacts("mats-1")
+    assert record is not None and record["counts"]["treatment"] == listed.height
+    assert set(contacts["contact_group"]) == {"treatment", "holdout"}
+    assert "already exists" in one_error_line(run(*args))
+    assert "--replace" in one_error_line(run(*args, "--force"))
+    again = run(*args, "--force", "--replace", "--with-contact")
+    assert again.exit_code == 0, again.output
+    assert "email" in pl.read_csv(out).columns
+
+
+def test_switching_off_consent_is_printed_and_logged(sample: Path, tmp_path: Path) -> None:
+    result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "a.parquet"),
+                 "--campaign", "loud", "--ignore-consent")
+    assert result.exit_code == 0, result.output
+    assert "Override: marketing-consent exclusion switched off" in result.output
+    with Warehouse.open(sample, read_only=True) as wh:
+        record = CampaignLog(wh).campaign("loud")
+    assert record is not None and "--ignore-consent" in record["overrides"]
+    assert record["parameters"]["ignore_consent"] is True
+
+
+def test_state_file_keeps_the_log_out_of_the_warehouse(sample: Path, tmp_path: Path) -> None:
+    state = tmp_path / "state.duckdb"
+    assert run("sizes", MAT, "-w", str(sample), "--state", str(state)).exit_code == 0
+    assert not state.exists()  # a preview creates nothing
+    result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "l.csv"),
+                 "--state", str(state), "--campaign", "st")
+    assert result.exit_code == 0, result.output
+    with Warehouse.open(sample, read_only=True) as wh:
+        assert not CampaignLog(wh).present()
+    with Warehouse.open(state, read_only=True) as db:
+        assert CampaignLog(db).has_campaign("st")
+    # the frequency cap now reads that state file
+    capped = run("sizes", MAT, "-w", str(sample), "--state", str(state), "--campaign", "next")
+    assert capped.exit_code == 0
+    line = next(ln for ln in capped.output.splitlines() if "frequency cap" in ln)
+    assert line.split()[-2] != "0"
+
+
+def test_sensitive_target_needs_the_flag_and_warns(sample: Path) -> None:
+    assert "--allow-sensitive" in one_error_line(run("sizes", "HH35-102", "-w", str(sample)))
+    ok = run("sizes", "HH35-102", "-w", str(sample), "--allow-sensitive")
+    assert ok.exit_code == 0, ok.output
+    assert "Warning: this list uses items of a sensitive category" in ok.output
+
+
+def test_new_item_through_a_stand_in(sample: Path) -> None:
+    new = KEY_SKUS["self_watering_planter"]
+    assert "--stand-in" in one_error_line(run("sizes", new, "-w", str(sample)))
+    ok = run("sizes", new, "-w", str(sample), "--stand-in", "category:Indoor Pots & Planters")
+    assert ok.exit_code == 0, ok.output
+    assert "borrowed from the stand-in category:Indoor Pots & Planters" in ok.output
+
+
+def test_clear_reports_how_far_the_list_gets(sample: Path) -> None:
+    result = run("sizes", KEY_SKUS["frost_fleece"], "-w", str(sample), "--purpose", "clear")
+    assert result.exit_code == 0, result.output
+    assert "Clearance: stock 1,200 (products.stock_on_hand)" in result.output
+    assert "of the stock" in result.output
+
+
+def test_bad_input_is_one_line(sample: Path, tmp_path: Path) -> None:
+    assert "not a sku" in one_error_line(run("sizes", cases.INJECT, "-w", str(sample)))
+    existing = tmp_path / "x.csv"
+    existing.write_text("keep me\n")
+    line = one_error_line(run("build", MAT, "-w", str(sample), "--out", str(existing)))
+    assert "already exists" in line and existing.read_text() == "keep me\n"
+    assert ".csv or .parquet" in one_error_line(
+        run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "x.xlsx")))
+    assert "Rnope" in one_error_line(run("sizes", MAT, "-w", str(sample), "--rule", "Rnope"))
+    con = duckdb.connect(str(sample), read_only=True)
+    assert con.execute("SELECT count(*) FROM orders").fetchone()[0] > 0
+    con.close()
+
+
+def test_overlap_flags_items_that_sell_together(sample: Path) -> None:
+    result = run("overlap", KEY_SKUS["pressure_washer"], KEY_SKUS["patio_cleaner"],
+                 KEY_SKUS["houseplant_feed"], "-w", str(sample), "--basket", "customer")
+    assert result.exit_code == 0, result.output
+    assert f"{KEY_SKUS['pressure_washer']} + {KEY_SKUS['patio_cleaner']}" in result.output
+    assert "Advice:" in result.output and "holm-corrected" in result.output
+    assert "2 to 15" in one_error_line(run("overlap", MAT, "-w", str(sample)))
