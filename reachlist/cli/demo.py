@@ -12,16 +12,21 @@ from reachlist.cli.progress import delayed_status
 DEMO_TARGET = "SG04-104"  # the sample's heated seedling mat (see sample_warehouse/README.md)
 
 
+def _step(title: str, args: list[str]) -> None:
+    out.print()
+    out.print(f"[bold]{title}[/]")
+    out.print(f"$ reachlist {' '.join(args)}", highlight=False)
+    main.main(args, standalone_mode=False)
+
+
 @main.command()
 @click.option("--dir", "directory", default="reachlist-demo", show_default=True,
               help="Folder for the sample warehouse and the list.")
 def demo(directory: str) -> None:
-    """Build the sample warehouse (if absent) and run the main job on it."""
-    from reachlist.render.rules import render_rules
-    from reachlist.rules import mine_rules
+    """Build the sample warehouse (if absent) and run the main job on it: rules toward a target,
+    a preview of the list, then the list itself with its campaign log entry."""
     from reachlist.render.sample import sample_summary
     from reachlist.sample import build_sample
-    from reachlist.warehouse import Warehouse
 
     folder = Path(directory)
     folder.mkdir(parents=True, exist_ok=True)
@@ -30,9 +35,11 @@ def demo(directory: str) -> None:
         with delayed_status(out, "Building the sample warehouse"):
             summary = build_sample(path)
         out.print(sample_summary(summary))
-    out.print(f"[bold]1. Rules toward the heated seedling mat ({DEMO_TARGET})[/]")
-    out.print(f"$ reachlist rules {DEMO_TARGET} -w {path} --top 5")
-    with Warehouse.open(path, read_only=True) as wh, delayed_status(out, "Mining") as progress:
-        rs = mine_rules(wh, DEMO_TARGET, progress=progress)
-    render_rules(rs.frame, out, title=f"Rules toward {rs.target}, {rs.n_baskets:,} customer "
-                 f"baskets, {rs.window}", limit=5, footer=[])
+    w = ["-w", str(path)]
+    campaign = ["--campaign", "demo-heated-mat"]
+    _step("1. Rules toward the heated seedling mat, by leverage (the ranking lists use)",
+          ["rules", DEMO_TARGET, *w, "--top", "5", "--by", "leverage"])
+    _step("2. Preview the list", ["sizes", DEMO_TARGET, *w, *campaign])
+    _step("3. Build it (the demo replaces its own earlier list and campaign)",
+          ["build", DEMO_TARGET, *w, "--out", str(folder / "heated-mat.csv"), "--force",
+           "--replace", *campaign])
