@@ -1,0 +1,590 @@
+"""Honest take-up: how many of an audience will start buying the target within the horizon.
+
+Rule confidence is a stock (holders who already hold the target); take-up is a flow. The estimate
+here is learnt from the warehouse's own past, never from confidence:
+
+1. Cutoffs one horizon apart, going back from ``as_of`` while history allows (at most
+   ``max_cutoffs``). At each, every customer who lacks the target gets a shopping breadth
+   (distinct categories held in the 12 months before the cutoff) and an outcome (bought the target
+   within the horizon after it): ``sql/forward_takeup.sql``.
+2. The raw prediction for an audience is breadth-matched: forward take-up per breadth decile at
+   the latest complete cutoff (one horizon before ``as_of``), applied to the audience's breadth
+   mix (:func:`reachlist.stats.breadth_matched_expectation`).
+3. Backtests: the same audience definition is rebuilt at every earlier cutoff (the rules' reach
+   with the lookback window shifted; or the same customers when only ids are given), predicted the
+   same way from the cutoff one horizon before it, and compared with who bought. Each rule's
+   audience and the combined audience are separate backtests. Given only customer ids (no rules),
+   the same customers cannot be followed back without bias (lacking the target today, they bought
+   nothing earlier), so the backtests test the breadth method on each breadth decile instead.
+4. The rule's added value over breadth is a Mantel-Haenszel risk ratio of audience members over
+   everyone else lacking the target, within breadth deciles, pooled over the cutoffs. It adjusts
+   the prediction only as far as the backtests show it helps (:func:`reachlist.stats.rule_weight`).
+5. :func:`reachlist.stats.calibrate` turns the backtests' errors into a factor and an interval.
+
+>>> report = estimate_takeup(wh, target, spec=plan.spec, customers=ids)   # doctest: +SKIP
+>>> report.expected.expected, report.expected.low, report.expected.high     # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from datetime import date, datetime, timedelta
+
+import numpy as np
+import polars as pl
+
+from reachlist.audience import AudienceSpec, reach_query
+from reachlist.errors import EmptyResultError, InputError, ReachlistError
+from reachlist.query import Query
+from reachlist.stats import (
+    Calibration,
+    DetectableUplift,
+    HoldoutPlan,
+    RuleWeight,
+    StratifiedRatio,
+    TakeUpEstimate,
+    assign_decile,
+    breadth_deciles,
+    breadth_matched_expectation,
+    calibrate,
+    decile_rates,
+    holdout_share_needed,
+    mantel_haenszel_risk_ratio,
+    minimum_detectable_uplift,
+    rule_weight,
+)
+from reachlist.targets import LEVEL_COLUMN, Target, Window, _as_datetime, last_order_day
+from reachlist.warehouse import Warehouse
+
+__all__ = [
+    "BREADTH_DAYS",
+    "DEFAULT_HORIZON",
+    "Calibrated",
+    "HoldoutPlanning",
+    "TakeUpReport",
+    "calibrate_audience",
+    "estimate_takeup",
+    "forward_query",
+    "holdout_planning",
+]
+
+DEFAULT_HORIZON = 30
+BREADTH_DAYS = 365  # breadth: distinct categories held in the 12 months before a cutoff
+MIN_HISTORY_DAYS = 180  # a cutoff needs this much order history before it
+MAX_CUTOFFS = 13  # one horizon back plus a year of monthly backtests at the default horizon
+COMBINED = 0  # group number of the combined audience; rules use their rank
+
+
+def forward_query(target: Target, cutoff: datetime, outcome_until: datetime) -> Query:
+    """Breadth and forward take-up of every customer lacking ``target`` at ``cutoff``."""
+    if outcome_until < cutoff:
+        raise InputError(
+            f"Expected the outcome window to end at or after the cutoff {cutoff:%Y-%m-%d}, "
+            f"found {outcome_until:%Y-%m-%d}.",
+            hint="pass a horizon of at least 1 day",
+        )
+    return Query.from_template(
+        "forward_takeup",
+        {
+            "target": target.name,
+            "cutoff": cutoff,
+            "outcome_until": outcome_until,
+            "breadth_since": cutoff - timedelta(days=BREADTH_DAYS),
+        },
+        target_level=LEVEL_COLUMN[target.level],
+    )
+
+
+@dataclass(frozen=True)
+class _Cutoff:
+    """Customers lacking the target at one cutoff: breadth, decile, outcome, audience groups."""
+
+    at: datetime
+    people: pl.DataFrame  # customer_id, breadth, bought, units, decile, g0, g1, ...
+    edges: np.ndarray
+
+    def counts(self) -> tuple[np.ndarray, np.ndarray]:
+        k = len(self.edges) + 1
+        d = self.people["decile"].to_numpy()
+        n = np.bincount(d, minlength=k).astype(float)
+        b = np.bincount(d, weights=self.people["bought"].to_numpy(), minlength=k)
+        return n, b
+
+    def tables(self, group: int) -> np.ndarray:
+        """One 2x2 per decile: [[members bought, not], [others bought, not]]."""
+        k = len(self.edges) + 1
+        d = self.people["decile"].to_numpy()
+        y = self.people["bought"].to_numpy().astype(bool)
+        m = self.people[f"g{group}"].to_numpy().astype(bool)
+        cells = [np.bincount(d[m & y], minlength=k), np.bincount(d[m & ~y], minlength=k),
+                 np.bincount(d[~m & y], minlength=k), np.bincount(d[~m & ~y], minlength=k)]
+        return np.stack(cells, axis=1).reshape(k, 2, 2).astype(float)
+
+
+@dataclass(frozen=True)
+class TakeUpReport:
+    """Expected take-up of an audience, how it was reached, and what it rests on."""
+
+    target: Target
+    as_of: datetime
+    horizon_days: int
+    audience: int  # customers lacking the target the estimate is about
+    already_hold: int  # given customers who already hold the target (left out)
+    expected: TakeUpEstimate  # calibrated expected buyers with the interval
+    units_per_buyer: float  # net units a new buyer took within the horizon, in the past
+    breadth_matched_rate: float  # raw: the audience's breadth mix at past forward rates
+    base_rate: float  # forward take-up of customers lacking the target outside the audience
+    overall_rate: float  # forward take-up of everyone lacking the target
+    added_value: StratifiedRatio | None  # rule over breadth (MH risk ratio), None if unmeasurable
+    weight: RuleWeight  # how much of the rule adjustment the backtests support
+    calibration_cutoff: datetime  # the latest cutoff whose outcome is known
+    cutoffs: int
+    backtests: pl.DataFrame  # cutoff, group, customers, breadth_matched, predicted, observed
+
+    @property
+    def expected_units(self) -> tuple[float, float, float]:
+        e, u = self.expected, self.units_per_buyer
+        return e.expected * u, e.low * u, e.high * u
+
+    @property
+    def rate(self) -> float:
+        return self.expected.expected / self.audience if self.audience else 0.0
+
+    def as_dict(self) -> dict[str, object]:
+        e = self.expected
+        units = self.expected_units
+        av = self.added_value
+        return {
+            "target": str(self.target),
+            "as_of": self.as_of.date().isoformat(),
+            "horizon_days": self.horizon_days,
+            "audience": self.audience,
+            "already_hold": self.already_hold,
+            "expected_buyers": e.expected,
+            "interval": [e.low, e.high],
+            "level": e.level,
+            "n_backtests": e.n_backtests,
+            "method": e.method,
+            "factor": e.factor,
+            "expected_units": units[0],
+            "units_interval": [units[1], units[2]],
+            "units_per_buyer": self.units_per_buyer,
+            "breadth_matched_rate": self.breadth_matched_rate,
+            "base_rate": self.base_rate,
+            "overall_rate": self.overall_rate,
+            "added_value_over_breadth": None
+            if av is None
+            else {"risk_ratio": av.estimate, "low": av.low, "high": av.high, "crude": av.crude},
+            "rule_weight": self.weight.weight,
+            "rule_weight_reason": self.weight.reason,
+            "calibration_cutoff": self.calibration_cutoff.date().isoformat(),
+            "cutoffs": self.cutoffs,
+        }
+
+
+# -- history ------------------------------------------------------------------------------------
+def _first_order(wh: Warehouse) -> datetime:
+    first = wh.scalar(Query("SELECT min(ordered_at) AS first FROM orders", label="first order"))
+    if first is None:
+        raise InputError(
+            "Expected order history, found no orders in the warehouse.",
+            hint="load orders first; `reachlist check` shows what the warehouse holds",
+        )
+    return _as_datetime(first, "the first order time")
+
+
+def _cutoffs(first: datetime, as_of: datetime, horizon: int, most: int) -> list[datetime]:
+    """``as_of - horizon``, then one horizon further back each time, while history allows."""
+    out: list[datetime] = []
+    c = as_of - timedelta(days=horizon)
+    while len(out) < most and c - timedelta(days=MIN_HISTORY_DAYS) >= first:
+        out.append(c)
+        c -= timedelta(days=horizon)
+    return out
+
+
+def _snapshot(
+    wh: Warehouse,
+    target: Target,
+    at: datetime,
+    outcome_until: datetime,
+    groups: pl.DataFrame | None,
+    ranks: Sequence[int],
+    edges: np.ndarray | None = None,
+) -> _Cutoff:
+    people = wh.fetch(forward_query(target, at, outcome_until)).with_columns(
+        pl.col("customer_id").cast(pl.Int64),
+        pl.col("breadth").cast(pl.Int64),
+        pl.col("bought").cast(pl.Int64),
+        pl.col("units").cast(pl.Float64),
+    )
+    if people.height == 0:
+        raise EmptyResultError(
+            f"Expected customers lacking {target} at {at:%Y-%m-%d}, found none.",
+            hint="choose a later --as-of or a target fewer customers already hold",
+        )
+    if edges is None:
+        edges = breadth_deciles(people["breadth"].to_numpy())
+    people = people.with_columns(
+        pl.Series("decile", assign_decile(people["breadth"].to_numpy(), edges))
+    )
+    flags = []
+    for g in ranks:
+        if groups is None or groups.height == 0:
+            ids = pl.Series([], dtype=pl.Int64)
+        elif g == COMBINED:
+            ids = groups["customer_id"]
+        else:
+            ids = groups.filter(pl.col("rule_rank") == g)["customer_id"]
+        flags.append(pl.col("customer_id").is_in(ids.implode()).alias(f"g{g}"))
+    return _Cutoff(at, people.with_columns(flags), edges)
+
+
+def _groups_at(wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None,
+               at: datetime) -> pl.DataFrame:
+    """(customer_id, rule_rank) of the audience definition rebuilt at ``at``."""
+    if spec is None:
+        assert ids is not None
+        return pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED})
+    length = spec.lookback.until - spec.lookback.since
+    shifted = dataclasses.replace(spec, lookback=Window(at - length, at))
+    return wh.fetch(reach_query(shifted)).with_columns(
+        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    )
+
+
+def _mh(tables: Iterable[np.ndarray]) -> StratifiedRatio | None:
+    stacked = [t for t in tables if t.size]
+    if not stacked:
+        return None
+    try:
+        return mantel_haenszel_risk_ratio(np.concatenate(stacked))
+    except ReachlistError:  # no members, or no buyers on one side: nothing to measure
+        return None
+
+
+def _prediction(rates_at: _Cutoff, members: pl.DataFrame, breadth_col: str = "breadth") -> float:
+    n, b = rates_at.counts()
+    mix = np.bincount(assign_decile(members[breadth_col].to_numpy(), rates_at.edges),
+                      minlength=len(n)).astype(float)
+    return breadth_matched_expectation(n, b, mix).expected_buyers
+
+
+@dataclass(frozen=True)
+class _History:
+    cutoffs: list[_Cutoff]  # newest first; every outcome is known
+    ranks: list[int]
+    # Only customer ids were given: following them back in time would be biased (they lack the
+    # target today, so they cannot have bought it at any earlier cutoff). The backtests then test
+    # the breadth-matched method itself, one audience per breadth decile, and no rule effect is
+    # measured.
+    fixed_ids: bool = False
+
+    def _audiences(self, now: _Cutoff) -> list[tuple[int, pl.DataFrame]]:
+        if self.fixed_ids:
+            return [(-1 - k, now.people.filter(pl.col("decile") == k))
+                    for k in range(len(now.edges) + 1)]
+        return [(g, now.people.filter(pl.col(f"g{g}"))) for g in self.ranks]
+
+    def added_value(self, group: int, since: int = 0) -> StratifiedRatio | None:
+        if self.fixed_ids:
+            return None
+        return _mh(c.tables(group) for c in self.cutoffs[since:])
+
+    def backtests(self) -> pl.DataFrame:
+        rows = []
+        for j in range(len(self.cutoffs) - 1):
+            now, before = self.cutoffs[j], self.cutoffs[j + 1]
+            for g, members in self._audiences(now):
+                if members.height == 0:
+                    continue
+                base = _prediction(before, members)
+                if base <= 0:
+                    continue
+                prior = self.added_value(g, since=j + 1)
+                rr = prior.estimate if prior is not None else 1.0
+                rows.append({
+                    "cutoff": now.at, "group": g, "customers": members.height,
+                    "breadth_matched": base, "rule_adjusted": base * rr,
+                    "observed": int(members["bought"].sum()),
+                })
+        schema: dict[str, pl.DataType] = {"cutoff": pl.Datetime("us"), "group": pl.Int64(), "customers": pl.Int64(),
+                  "breadth_matched": pl.Float64(), "rule_adjusted": pl.Float64(),
+                  "observed": pl.Int64()}
+        return pl.DataFrame(rows, schema=schema)
+
+
+def _history(
+    wh: Warehouse,
+    target: Target,
+    as_of: datetime,
+    horizon: int,
+    spec: AudienceSpec | None,
+    ids: pl.Series | None,
+    max_cutoffs: int,
+) -> _History:
+    ats = _cutoffs(_first_order(wh), as_of, horizon, max_cutoffs)
+    if not ats:
+        raise EmptyResultError(
+            f"Expected at least {MIN_HISTORY_DAYS + horizon} days of order history before "
+            f"{as_of:%Y-%m-%d} to calibrate a {horizon}-day take-up estimate, found less.",
+            hint="choose a later --as-of or a shorter --horizon",
+        )
+    ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
+    cutoffs = [
+        _snapshot(wh, target, at, at + timedelta(days=horizon), _groups_at(wh, spec, ids, at),
+                  ranks)
+        for at in ats
+    ]
+    return _History(cutoffs, ranks, fixed_ids=spec is None)
+
+
+def _calibrated(history: _History) -> tuple[Calibration, RuleWeight, pl.DataFrame]:
+    bt = history.backtests()
+    weight = rule_weight(bt["breadth_matched"], bt["rule_adjusted"], bt["observed"])
+    bt = bt.with_columns(
+        pl.Series(
+            "predicted",
+            [weight.apply(b, r) for b, r in zip(bt["breadth_matched"], bt["rule_adjusted"],
+                                                 strict=True)],
+            dtype=pl.Float64,
+        )
+    )
+    cal = calibrate(bt["predicted"].to_numpy(), bt["observed"].to_numpy())
+    return cal, weight, bt
+
+
+# -- the estimate -------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Calibrated:
+    """Everything learnt from the past for one audience definition, ready to predict at as_of."""
+
+    target: Target
+    as_of: datetime
+    horizon_days: int
+    level: float
+    history: _History
+    calibration: Calibration
+    weight: RuleWeight
+    backtests: pl.DataFrame
+    now: _Cutoff  # customers lacking the target at as_of with breadth and groups; no outcomes
+
+    @property
+    def latest(self) -> _Cutoff:
+        return self.history.cutoffs[0]
+
+    def added_value(self, group: int) -> StratifiedRatio | None:
+        return self.history.added_value(group)
+
+    def members(self, group: int) -> pl.DataFrame:
+        return self.now.people.filter(pl.col(f"g{group}"))
+
+    def customer_rates(self) -> pl.DataFrame:
+        """customer_id and calibrated take-up probability of every audience member at as_of."""
+        n, b = self.latest.counts()
+        rates = decile_rates(n, b)
+        people = self.now.people.filter(pl.col(f"g{COMBINED}"))
+        rule_ranks = [g for g in self.history.ranks if g != COMBINED]
+        factors = np.ones(people.height)
+        if rule_ranks:
+            factors = np.zeros(people.height)
+            for g in rule_ranks:
+                av = self.added_value(g)
+                f = (av.estimate if av is not None else 1.0) ** self.weight.weight
+                factors = np.where(people[f"g{g}"].to_numpy(), np.maximum(factors, f), factors)
+        else:
+            av = self.added_value(COMBINED)
+            factors *= (av.estimate if av is not None else 1.0) ** self.weight.weight
+        p = np.minimum(self.calibration.factor * rates[self._deciles(people)] * factors, 1.0)
+        return pl.DataFrame({"customer_id": people["customer_id"], "rate": p})
+
+    def _deciles(self, people: pl.DataFrame) -> np.ndarray:
+        return assign_decile(people["breadth"].to_numpy(), self.latest.edges)
+
+    def report(self, group: int = COMBINED, given: int | None = None) -> TakeUpReport:
+        members = self.members(group)
+        if members.height == 0:
+            raise EmptyResultError(
+                f"Expected audience customers lacking {self.target} at {self.as_of:%Y-%m-%d}, "
+                f"found none{f' of {given:,}' if given else ''}.",
+                hint="check the audience: its customers already hold the target, or none is "
+                "reached",
+            )
+        latest = self.latest
+        base = _prediction(latest, members)
+        added = self.added_value(group)
+        raw = self.weight.apply(base, base * (added.estimate if added is not None else 1.0))
+        outside = latest.people.filter(~pl.col(f"g{group}"))
+        buyers = latest.people.filter(pl.col("bought") == 1)
+        return TakeUpReport(
+            target=self.target,
+            as_of=self.as_of,
+            horizon_days=self.horizon_days,
+            audience=members.height,
+            already_hold=(given - members.height) if given is not None else 0,
+            expected=self.calibration.predict(raw, level=self.level),
+            units_per_buyer=float(buyers["units"].mean()) if buyers.height else 1.0,  # type: ignore[arg-type]
+            breadth_matched_rate=base / members.height,
+            base_rate=float(outside["bought"].mean()) if outside.height else math.nan,  # type: ignore[arg-type]
+            overall_rate=float(latest.people["bought"].mean()),  # type: ignore[arg-type]
+            added_value=added,
+            weight=self.weight,
+            calibration_cutoff=latest.at,
+            cutoffs=len(self.history.cutoffs),
+            backtests=self.backtests,
+        )
+
+
+def calibrate_audience(
+    wh: Warehouse,
+    target: Target,
+    *,
+    spec: AudienceSpec | None = None,
+    customers: Iterable[int] | pl.Series | None = None,
+    horizon_days: int = DEFAULT_HORIZON,
+    as_of: date | datetime | str | None = None,
+    level: float = 0.9,
+    max_cutoffs: int = MAX_CUTOFFS,
+) -> Calibrated:
+    """Backtests and calibration for an audience definition; reads nothing at or after as_of."""
+    if horizon_days < 1:
+        raise InputError(
+            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+        )
+    if spec is None and customers is None:
+        raise InputError("Expected an audience (customer ids or an AudienceSpec), found neither.",
+                         hint="pass customers=... or spec=...")
+    if as_of is not None:
+        when = _as_datetime(as_of, "--as-of")
+    elif spec is not None:
+        when = spec.lookback.until
+    else:
+        when = last_order_day(wh)
+    ids = None if customers is None else pl.Series("customer_id", list(customers), dtype=pl.Int64)
+    history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
+    cal, weight, bt = _calibrated(history)
+    groups = _groups_at(wh, spec, None, when) if spec is not None else pl.DataFrame(
+        {"customer_id": ids, "rule_rank": COMBINED})
+    if ids is not None and spec is not None:
+        # the given customers are the combined audience; rules still mark whom they reach
+        groups = pl.concat([groups.filter(pl.col("rule_rank") != COMBINED),
+                            pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED},
+                                         schema={"customer_id": pl.Int64, "rule_rank": pl.Int64})])
+        ranks = history.ranks
+        now = _snapshot(wh, target, when, when, groups, ranks, edges=history.cutoffs[0].edges)
+        now = _Cutoff(now.at, now.people.with_columns(
+            pl.col("customer_id").is_in(ids.implode()).alias("g0")), now.edges)
+    else:
+        # Breadth at as_of, read with an empty outcome window: nothing at or after as_of.
+        now = _snapshot(wh, target, when, when, groups, history.ranks,
+                        edges=history.cutoffs[0].edges)
+    return Calibrated(target, when, horizon_days, level, history, cal, weight, bt, now)
+
+
+def estimate_takeup(
+    wh: Warehouse,
+    target: Target,
+    *,
+    spec: AudienceSpec | None = None,
+    customers: Iterable[int] | pl.Series | None = None,
+    horizon_days: int = DEFAULT_HORIZON,
+    as_of: date | datetime | str | None = None,
+    level: float = 0.9,
+    max_cutoffs: int = MAX_CUTOFFS,
+) -> TakeUpReport:
+    """Expected buyers of ``target`` within ``horizon_days`` after ``as_of`` in an audience.
+
+    The audience is ``customers`` (ids, for example a list's treatment group) or, without them,
+    everyone ``spec``'s rules reach at ``as_of``. ``spec`` also lets the backtests rebuild the
+    audience at past cutoffs; without it they backtest the breadth method on breadth deciles. Nothing at
+    or after ``as_of`` is read. ``as_of`` defaults to the end of ``spec``'s lookback window, else
+    the day after the last order.
+    """
+    ids = None if customers is None else pl.Series("customer_id", list(customers), dtype=pl.Int64)
+    c = calibrate_audience(wh, target, spec=spec, customers=ids, horizon_days=horizon_days,
+                           as_of=as_of, level=level, max_cutoffs=max_cutoffs)
+    given = ids.n_unique() if ids is not None else None
+    return c.report(COMBINED, given=given)
+
+
+def decile_rate_table(cut: _Cutoff) -> pl.DataFrame:
+    """Forward take-up per breadth decile at one cutoff (for display and tests)."""
+    n, b = cut.counts()
+    return pl.DataFrame({
+        "decile": np.arange(len(n)), "customers": n.astype(int), "buyers": b.astype(int),
+        "rate": decile_rates(n, b),
+    })
+
+
+# -- holdout planning ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class HoldoutPlanning:
+    """What a holdout can tell: the smallest uplift it detects, and the share a chosen uplift needs."""
+
+    list_size: int
+    share: float
+    baseline_rate: float
+    detectable: DetectableUplift | None
+    wanted_uplift: float
+    needed: HoldoutPlan | None
+    needed_note: str  # why ``needed`` is None, or ""
+    alpha: float = 0.05
+    power: float = 0.8
+
+    def lines(self) -> list[str]:
+        out = []
+        if self.detectable is not None:
+            d = self.detectable
+            out.append(
+                f"With {d.n_holdout:,.0f} held out of {self.list_size:,} ({self.share:.0%}) and "
+                f"take-up near {self.baseline_rate:.2%}, the smallest uplift the holdout can detect "
+                f"is +{d.relative:.0%} (to {d.treated_rate:.2%}; two-proportion test, "
+                f"alpha {self.alpha:g} two-sided, power {self.power:.0%})."
+            )
+        else:
+            out.append(f"No uplift can be measured: {self.needed_note or 'no holdout'}.")
+        if self.needed is not None:
+            out.append(
+                f"To detect +{self.wanted_uplift:.0%}, hold out {self.needed.share:.1%} "
+                f"({self.needed.n_holdout:,} customers)."
+            )
+        elif self.needed_note:
+            out.append(f"To detect +{self.wanted_uplift:.0%}: {self.needed_note}")
+        return out
+
+
+def holdout_planning(
+    list_size: int,
+    share: float,
+    baseline_rate: float,
+    *,
+    wanted_uplift: float = 0.5,
+    alpha: float = 0.05,
+    power: float = 0.8,
+) -> HoldoutPlanning:
+    """Minimum detectable uplift at ``share`` and the share needed for ``wanted_uplift``.
+
+    ``baseline_rate`` is the take-up expected without contact (the estimate's rate is the usual
+    stand-in: the offer's effect is what the holdout is there to measure).
+    """
+    rate = min(max(baseline_rate, 1e-6), 1 - 1e-6)
+    detectable = None
+    note = ""
+    if list_size >= 2 and 0 < share < 1 and list_size * share >= 1:
+        try:
+            detectable = minimum_detectable_uplift(list_size, share, rate, alpha=alpha, power=power)
+        except ReachlistError as exc:
+            note = exc.message
+    else:
+        note = "the list or the holdout is empty"
+    needed = None
+    if list_size >= 2:
+        try:
+            needed = holdout_share_needed(list_size, rate, wanted_uplift, alpha=alpha, power=power)
+        except ReachlistError as exc:
+            note = str(exc)
+    return HoldoutPlanning(list_size, share, rate, detectable, wanted_uplift, needed, note,
+                           alpha, power)
