@@ -1,17 +1,21 @@
 """In-memory mining: baskets -> frequent itemsets -> rules X -> y with every measure.
 
-Baskets are held twice, once per access pattern:
+Baskets are held three ways, one per access pattern:
 
-- vertical bitmaps, one row of packed ``uint64`` words per item (bit ``b`` of a row is set when
-  basket ``b`` holds the item); counting a set of items is an AND of rows plus a popcount;
-- a basket-major index (CSR: ``indptr``, ``indices``) used to cut out the baskets that hold one
-  item (a *projection*), which is much cheaper than gathering bits from every item's row.
+- a basket-major index (CSR: ``indptr``, ``indices``), used to cut out the baskets that hold an
+  item or a set of items (a *projection*: cost proportional to the lines of those baskets);
+- an item-major index (the baskets of each item), from which
+- vertical bitmaps are built on first use and kept: one row of packed ``uint64`` words per item
+  (bit ``b`` set when basket ``b`` holds the item); a count is an AND of rows plus a popcount
+  (``np.bitwise_count``).
 
-Mining is Eclat (depth-first, vertical) on those bitmaps: every node of the search ANDs the
-prefix's row into the rows of all candidate extensions at once (one numpy call per node) and keeps
-the extensions that reach the minimum count. ``target_rules`` mines antecedents X only inside the
-projection of the target y (so every count found there is n(X+y)) and then counts n(X) on the full
-bitmaps, one numpy call per search node.
+Mining is Eclat (depth-first, vertical): every node of the search ANDs the prefix's row into the
+rows of all candidate extensions at once (one numpy call per node) and keeps the extensions that
+reach the minimum count. At the first level each node either ANDs full-width rows or cuts its
+baskets out of the CSR index so the subtree runs on narrow rows, whichever is estimated cheaper.
+``target_rules`` mines the antecedents X only inside the baskets that hold the target y (every
+count found there is n(X+y)), then counts n(X) one numpy call per search node, on all baskets or,
+when y is in most baskets, as n(X+y) + n(X) among the baskets that lack y.
 
 Measures (DESIGN.md), with N baskets and n(.) the number of baskets holding all of a set:
 support = n(X+y)/N, coverage = n(X)/N, confidence = n(X+y)/n(X), lift = confidence/(n(y)/N),
@@ -34,17 +38,16 @@ from typing import Any
 
 import numpy as np
 import polars as pl
-import pyarrow as pa
 from scipy.stats import hypergeom
 
 from reachlist.errors import InputError
 
 __all__ = [
-    "Baskets",
     "CORRECTIONS",
+    "ITEMSET_COLUMNS",
     "MEASURES",
     "RULE_COLUMNS",
-    "ITEMSET_COLUMNS",
+    "Baskets",
     "adjust_p_values",
     "frequent_itemsets",
     "rule_id",
@@ -105,7 +108,8 @@ ITEMSET_COLUMNS = {
 
 _U64 = np.dtype("<u8")
 _NO_LIMIT = 1 << 30
-_PROJECT_FACTOR = 4.0
+_LINE_COST = 20.0  # cost of cutting out one basket line, in AND+popcount word operations
+_CUT_OVERHEAD = 20_000.0  # fixed cost of one cut, in the same unit
 _PAIR_BLOCK = 1 << 18  # words of the AND buffer in _frequent_pairs
 _PACK_BUFFER = 1 << 26  # bytes of the bit-scatter buffer in _pack_bits
 
@@ -116,14 +120,24 @@ _PACK_BUFFER = 1 << 26  # bytes of the bit-scatter buffer in _pack_bits
 
 
 class Baskets:
-    """A set of baskets (each a set of items), held as vertical bitmaps plus a CSR index.
+    """A set of baskets (each a set of items): basket-major and item-major indexes, and vertical
+    bitmaps of the items that mining asks for (built on first use from the item-major index and
+    kept, so a large catalogue only pays for the items that can be frequent).
 
     Build with ``from_arrays``, ``from_frame`` or ``from_transactions``. ``n_baskets`` is the
     number of distinct baskets given; a larger explicit ``n_baskets`` adds empty baskets (they
     count in N but hold nothing). An item repeated inside a basket counts once.
+
+    Attributes: ``labels`` (item labels, by item index), ``item_counts`` (baskets holding each
+    item), ``indptr``/``indices`` (basket-major CSR: the item indices of basket b are
+    ``indices[indptr[b]:indptr[b + 1]]``, ascending), ``basket_ids`` (the basket key of each
+    basket index, when built from keys).
     """
 
-    __slots__ = ("bits", "labels", "item_counts", "indptr", "indices", "basket_ids", "_index")
+    __slots__ = (
+        "_index", "_rows", "_tid_ptr", "_tids", "basket_ids", "indices", "indptr", "item_counts",
+        "labels",
+    )
 
     def __init__(
         self,
@@ -164,12 +178,17 @@ class Baskets:
         self.indptr = np.zeros(n + 1, dtype=np.int64)
         np.cumsum(np.bincount(key, minlength=n), out=self.indptr[1:])
         self.indices = i
-        self.bits = _pack_bits(i, key, n_items, _n_words(n))
         self.item_counts = np.bincount(i, minlength=n_items).astype(np.int64)
+        # item-major index: the baskets of each item, ascending (a stable sort of the lines)
+        order = np.argsort(i.astype(np.uint16) if n_items <= 1 << 16 else i, kind="stable")
+        self._tids = key[order].astype(np.int32 if n < 1 << 31 else np.int64)
+        self._tid_ptr = np.zeros(n_items + 1, dtype=np.int64)
+        np.cumsum(self.item_counts, out=self._tid_ptr[1:])
+        self._rows: dict[int, np.ndarray] = {}
         self.labels = np.array(labels, dtype=object)
         self.basket_ids = basket_ids
         self._index: dict[str, int] | None = None
-        for arr in (self.indptr, self.indices, self.bits, self.item_counts, self.labels):
+        for arr in (self.indptr, self.indices, self.item_counts, self.labels, self._tids):
             arr.flags.writeable = False
 
     # -- constructors ---------------------------------------------------------------------
@@ -255,7 +274,8 @@ class Baskets:
         return self.n_baskets
 
     def __repr__(self) -> str:
-        return f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, lines={self.indices.size})"
+        return (f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, "
+                f"lines={self.indices.size})")
 
     def item_index(self, label: str) -> int:
         """Index of an item label; ``InputError`` when the item is in no basket's vocabulary."""
@@ -269,19 +289,49 @@ class Baskets:
                 hint="check the item code and the item level",
             ) from None
 
+    @property
+    def n_words(self) -> int:
+        """Width of a bitmap row in uint64 words."""
+        return _n_words(self.n_baskets)
+
     def count(self, items: Iterable[str]) -> int:
         """Number of baskets holding every item of ``items`` (N for the empty set)."""
         ids = [self.item_index(x) for x in items]
         if not ids:
             return self.n_baskets
-        row = self.bits[ids[0]].copy()
-        for k in ids[1:]:
-            row &= self.bits[k]
-        return int(np.bitwise_count(row).sum(dtype=np.int64))
+        rows = self.bitmaps(ids)
+        return int(_popcounts(np.bitwise_and.reduce(rows, axis=0)))
 
     def baskets_holding(self, item: int) -> np.ndarray:
-        """Basket codes (ascending) of the baskets that hold item index ``item``."""
-        return _bit_positions(self.bits[item])
+        """Basket indices (ascending) of the baskets that hold item index ``item``."""
+        return self._tids[self._tid_ptr[item] : self._tid_ptr[item + 1]]
+
+    def bitmaps(self, items: Iterable[int]) -> np.ndarray:
+        """Bitmap rows (len(items), n_words) of item indices ``items``: bit b of a row is set when
+        basket b holds the item. Rows are built on first request and kept."""
+        ids = np.asarray(list(items) if not isinstance(items, np.ndarray) else items,
+                         dtype=np.int64).ravel()
+        missing = np.unique(ids[[int(k) not in self._rows for k in ids]]) if ids.size else ids
+        if missing.size:
+            block = _pack_item_rows(self._tids, self._tid_ptr, missing, self.n_words)
+            block.flags.writeable = False
+            for k, item in enumerate(missing.tolist()):
+                self._rows[item] = block[k]
+        out = np.empty((ids.size, self.n_words), dtype=_U64)
+        for k, item in enumerate(ids.tolist()):
+            out[k] = self._rows[item]
+        return out
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held: the two indexes and the bitmap rows built so far."""
+        arrays = (self.indptr, self.indices, self.item_counts, self._tids, self._tid_ptr)
+        return sum(a.nbytes for a in arrays) + len(self._rows) * self.n_words * 8
+
+    @property
+    def bits(self) -> np.ndarray:
+        """Bitmap rows of every item (n_items, n_words); builds all of them."""
+        return self.bitmaps(np.arange(self.n_items))
 
 
 def _n_checked(seen: int, n_baskets: int | None) -> int:
@@ -312,8 +362,14 @@ def _factorize(s: pl.Series) -> tuple[np.ndarray, np.ndarray]:
                 return v - lo, np.arange(lo, hi + 1, dtype=np.int64)
             rank = np.cumsum(present) - 1
             return rank[v - lo], np.flatnonzero(present) + lo
-    codes = (s.rank("dense") - 1).cast(pl.Int64).to_numpy()
-    return codes, s.unique().sort().to_numpy()
+    if isinstance(s.dtype, (pl.Categorical, pl.Enum)):
+        s = s.cast(pl.String)
+    uniques = s.unique().sort()
+    if s.dtype == pl.String:  # a hash lookup into the sorted labels beats a sort of all rows
+        codes = s.cast(pl.Enum(uniques.to_list())).to_physical()
+    else:
+        codes = s.rank("dense") - 1
+    return codes.cast(pl.Int64).to_numpy(), uniques.to_numpy()
 
 
 # --------------------------------------------------------------------------------------------
@@ -350,6 +406,36 @@ def _pack_bits(rows: np.ndarray, cols: np.ndarray, n_rows: int, n_words: int) ->
         view[rows[lo:hi] * width + (cols[lo:hi] - c0)] = True
         packed = np.packbits(view, bitorder="little").view(_U64)
         out[:, c0 >> 6 : c1 >> 6] = packed.reshape(n_rows, width >> 6)
+    return out
+
+
+def _pack_item_rows(
+    tids: np.ndarray, ptr: np.ndarray, items: np.ndarray, n_words: int
+) -> np.ndarray:
+    """Bitmap rows of ``items`` from the item-major index (baskets of item k at
+    ``tids[ptr[k]:ptr[k + 1]]``), a band of rows at a time through a byte-per-bit buffer."""
+    n_bits = n_words * 64
+    out = np.zeros((items.size, n_words), dtype=_U64)
+    if n_bits == 0:
+        return out
+    band = max(1, _PACK_BUFFER // n_bits)
+    buf = np.empty(min(band, items.size) * n_bits, dtype=bool)
+    for r0 in range(0, items.size, band):
+        chunk = items[r0 : r0 + band]
+        starts, ends = ptr[chunk], ptr[chunk + 1]
+        lens = ends - starts
+        total = int(lens.sum())
+        if total == 0:
+            continue
+        lines = np.repeat(starts - (np.cumsum(lens) - lens), lens)
+        lines += np.arange(total, dtype=np.int64)
+        flat = np.repeat(np.arange(chunk.size, dtype=np.int64) * n_bits, lens) + tids[lines]
+        view = buf[: chunk.size * n_bits]
+        view[:] = False
+        view[flat] = True
+        out[r0 : r0 + chunk.size] = (
+            np.packbits(view, bitorder="little").view(_U64).reshape(chunk.size, n_words)
+        )
     return out
 
 
@@ -495,31 +581,96 @@ def _eclat(
                pair_leaves)
 
 
+def _search(
+    baskets: Baskets,
+    rows: np.ndarray | None,
+    bits: np.ndarray,
+    ids: np.ndarray,
+    counts: np.ndarray,
+    min_count: int,
+    max_size: int,
+    found: _Found,
+    pair_leaves: bool = True,
+) -> None:
+    """Every itemset of 1..max_size of the items ``ids`` held by >= min_count of the baskets
+    ``rows`` (global basket codes; None = all), whose bitmaps over those baskets are ``bits``.
+
+    ``ids`` must be frequent there and ordered by ascending count. Each first-level node either
+    cuts its own baskets out of the CSR index (cost ~ lines in them; the child bitmaps are then
+    compact) or ANDs the rows as they are (cost ~ rows x words), whichever is estimated cheaper.
+    """
+    found.add((), ids, counts)
+    if max_size < 2 or ids.size < 2:
+        return
+    n_words = bits.shape[1]
+    mean_len = baskets.indices.size / max(baskets.n_baskets, 1)
+
+    def cut(k: int, items: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        local = _bit_positions(bits[k])
+        return _project(baskets, local if rows is None else rows[local], items)
+
+    n_rows = baskets.n_baskets if rows is None else rows.size
+    for k in range(ids.size - 1):
+        item, succ = int(ids[k]), ids[k + 1 :]
+        # costs in AND+popcount word operations; the subtree's size is guessed from the
+        # successors that would stay frequent if they were independent of the item
+        cut_cost = counts[k] * (mean_len + 4) * _LINE_COST + _CUT_OVERHEAD
+        guess = np.count_nonzero(counts[k + 1 :] * counts[k] >= min_count * n_rows)
+        work = succ.size + (guess * guess / 2 if max_size >= 3 else 0.0)
+        if cut_cost + work * counts[k] / 64 < work * n_words:
+            sub, cc = cut(k, succ)
+            keep = np.flatnonzero(cc >= min_count)
+        else:
+            sub = bits[k + 1 :] & bits[k]
+            cc = _popcounts(sub)
+            keep = np.flatnonzero(cc >= min_count)
+            # a big subtree below: cut the baskets out after all, so it runs on narrow rows
+            below = keep.size * keep.size / 2
+            if max_size >= 3 and cut_cost + below * counts[k] / 64 < below * n_words:
+                succ = succ[keep]
+                sub, cc = cut(k, succ)
+                keep = np.arange(succ.size)
+        if keep.size == 0:
+            continue
+        keep = keep[np.argsort(cc[keep], kind="stable")]
+        _eclat(sub[keep], succ[keep], cc[keep], min_count, max_size, (item,), found, pair_leaves)
+
+
 def _mine_all(baskets: Baskets, min_count: int, max_size: int) -> _Found:
     """Every itemset of 1..max_size items held by >= min_count baskets."""
     found = _Found()
     counts = baskets.item_counts
     freq = np.flatnonzero(counts >= min_count)
     freq = freq[np.argsort(counts[freq], kind="stable")]
-    found.add((), freq, counts[freq])
-    if max_size < 2 or freq.size < 2:
-        return found
-    n_words = baskets.bits.shape[1]
-    mean_len = baskets.indices.size / max(baskets.n_baskets, 1)
-    for k in range(freq.size - 1):
-        item, succ = int(freq[k]), freq[k + 1 :]
-        # cut the item's baskets out (cost ~ lines in them) or AND on full rows (~ rows x words)
-        if counts[item] * (mean_len + 4) < succ.size * n_words * _PROJECT_FACTOR:
-            sub, cc = _project(baskets, baskets.baskets_holding(item), succ)
-        else:
-            sub = baskets.bits[succ] & baskets.bits[item]
-            cc = _popcounts(sub)
-        keep = np.flatnonzero(cc >= min_count)
-        if keep.size == 0:
-            continue
-        keep = keep[np.argsort(cc[keep], kind="stable")]
-        _eclat(sub[keep], succ[keep], cc[keep], min_count, max_size, (item,), found)
+    _search(baskets, None, baskets.bitmaps(freq), freq, counts[freq], min_count, max_size, found)
     return found
+
+
+def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> np.ndarray:
+    """Number of the baskets ``rows`` (None = all) holding each itemset found (in the order of
+    ``found.matrix``): one AND + popcount per search node, on bitmaps cut to those baskets."""
+    groups = [(p, e[:, 0]) for p, e, _ in found.groups]
+    if not groups:
+        return np.zeros(0, np.int64)
+    needed = np.unique(np.concatenate([np.array(p, dtype=np.int64) for p, _ in groups]
+                                      + [e for _, e in groups]))
+    bits = baskets.bitmaps(needed) if rows is None else _project(baskets, rows, needed)[0]
+    slot = np.full(baskets.n_items, -1, dtype=np.int64)
+    slot[needed] = np.arange(needed.size)
+    prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
+    out = []
+    for prefix, ext in groups:
+        if not prefix:
+            out.append(_popcounts(bits[slot[ext]]))
+            continue
+        row = prefix_rows.get(prefix)
+        if row is None:
+            row = bits[slot[prefix[0]]]
+            for k in prefix[1:]:
+                row = row & bits[slot[k]]
+            prefix_rows[prefix] = row
+        out.append(_popcounts(bits[slot[ext]] & row))
+    return np.concatenate(out) if out else np.zeros(0, np.int64)
 
 
 # --------------------------------------------------------------------------------------------
@@ -573,21 +724,18 @@ def fisher_greater(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> np.ndarray:
 
 def adjust_p_values(p: Any, correction: str = "holm") -> np.ndarray:
     """Family-wise adjusted p-values: ``holm`` (step-down), ``bonferroni`` or ``none``."""
+    _check_choice("correction", correction, CORRECTIONS)
     p = np.asarray(p, dtype=np.float64)
     m = p.size
     if correction == "none" or m == 0:
         return p.copy()
     if correction == "bonferroni":
         return np.minimum(1.0, p * m)
-    if correction == "holm":
-        order = np.argsort(p, kind="stable")
-        stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
-        out = np.empty(m)
-        out[order] = np.minimum(1.0, stepped)
-        return out
-    raise InputError(
-        f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}"
-    )
+    order = np.argsort(p, kind="stable")  # Holm: step down from the smallest p
+    stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
+    out = np.empty(m)
+    out[order] = np.minimum(1.0, stepped)
+    return out
 
 
 def rule_id(antecedent: Iterable[str], consequent: str) -> str:
@@ -656,14 +804,14 @@ def _productive(ante: np.ndarray, size: np.ndarray, cons: np.ndarray, n: int,
 # --------------------------------------------------------------------------------------------
 
 
-def _list_column(ids: np.ndarray, sizes: np.ndarray, labels: np.ndarray) -> pl.Series:
-    """list[str] column from padded id rows (ids sorted ascending, padding after)."""
-    m = ids.shape[0]
-    offsets = np.zeros(m + 1, dtype=np.int32)
-    np.cumsum(sizes, out=offsets[1:])
-    flat = ids[np.arange(ids.shape[1])[None, :] < sizes[:, None]]
-    values = pa.array(labels[flat].tolist() if flat.size else [], type=pa.string())
-    return pl.Series(pa.ListArray.from_arrays(pa.array(offsets), values))
+def _list_column(ids: np.ndarray, labels: np.ndarray) -> pl.Series:
+    """list[str] column from id rows padded with ``labels.size`` (the padding is dropped)."""
+    m, k = ids.shape
+    lookup = pl.Series([*labels.tolist(), None], dtype=pl.String)
+    flat = lookup.gather(pl.Series(ids.ravel(), dtype=pl.Int64))
+    if m == 0:
+        return pl.Series([], dtype=pl.List(pl.String))
+    return flat.reshape((m, k)).arr.to_list().list.drop_nulls()
 
 
 def _empty_rules() -> pl.DataFrame:
@@ -687,8 +835,7 @@ def _resolve_min_count(n: int, min_count: int | None, min_support: float | None)
 
 
 def _sort_rules(df: pl.DataFrame, sort_by: str) -> pl.DataFrame:
-    if sort_by not in MEASURES:
-        raise InputError(f"cannot sort rules by {sort_by!r}.", hint=f"use one of {', '.join(MEASURES)}")
+    _check_choice("sort_by", sort_by, MEASURES)
     ascending = sort_by in ("p_value", "p_adjusted")
     key = pl.col(sort_by)
     if df.schema[sort_by] == pl.Float64:
@@ -719,10 +866,8 @@ def _assemble(
     top: int | None = None,
 ) -> pl.DataFrame:
     """Rule table from counts of every candidate rule (the correction's family)."""
-    if correction not in CORRECTIONS:
-        raise InputError(f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}")
-    if sort_by not in MEASURES:
-        raise InputError(f"cannot sort rules by {sort_by!r}.", hint=f"use one of {', '.join(MEASURES)}")
+    _check_choice("correction", correction, CORRECTIONS)
+    _check_choice("sort_by", sort_by, MEASURES)
     m = ante.shape[0]
     if m == 0:
         return _empty_rules()
@@ -736,7 +881,7 @@ def _assemble(
     rows = np.flatnonzero(keep)
     if rows.size == 0:
         return _empty_rules()
-    ante_col = _list_column(ante[rows], size[rows], labels)
+    ante_col = _list_column(ante[rows], labels)
     cons_labels = labels[cons[rows]]
     ids = [rule_id(a, c) for a, c in zip(ante_col.to_list(), cons_labels, strict=True)]
     df = pl.DataFrame(
@@ -762,6 +907,11 @@ def _assemble(
     return df if top is None else df.head(top)
 
 
+def _check_choice(name: str, value: str, allowed: Sequence[str]) -> None:
+    if value not in allowed:
+        raise InputError(f"unknown {name} {value!r}.", hint=f"use one of {', '.join(allowed)}")
+
+
 def _check_common(min_confidence: float, min_lift: float, alpha: float, correction: str) -> None:
     if not 0.0 <= float(min_confidence) <= 1.0:
         raise InputError(f"min_confidence must be in [0, 1], got {min_confidence}.")
@@ -769,8 +919,7 @@ def _check_common(min_confidence: float, min_lift: float, alpha: float, correcti
         raise InputError(f"min_lift must be >= 0, got {min_lift}.")
     if not 0.0 < float(alpha) < 1.0:
         raise InputError(f"alpha must be in (0, 1), got {alpha}.")
-    if correction not in CORRECTIONS:
-        raise InputError(f"unknown correction {correction!r}.", hint=f"use one of {', '.join(CORRECTIONS)}")
+    _check_choice("correction", correction, CORRECTIONS)
 
 
 # --------------------------------------------------------------------------------------------
@@ -804,7 +953,7 @@ def frequent_itemsets(
     ids, sizes, counts = ids[order], sizes[order], counts[order]
     return pl.DataFrame(
         {
-            "items": _list_column(ids, sizes, baskets.labels),
+            "items": _list_column(ids, baskets.labels),
             "size": sizes,
             "count": counts,
             "support": counts / n,
@@ -844,30 +993,23 @@ def target_rules(
         return _empty_rules()
     others = np.flatnonzero(np.arange(baskets.n_items) != y)
     others = others[baskets.item_counts[others] >= min_count]
-    cond_bits, cond_counts = _project(baskets, baskets.baskets_holding(y), others)
+    holding = baskets.baskets_holding(y)
+    cond_bits, cond_counts = _project(baskets, holding, others)
     keep = np.flatnonzero(cond_counts >= min_count)
     keep = keep[np.argsort(cond_counts[keep], kind="stable")]
+    # every X with n(X+y) >= min_count: mined inside the baskets that hold y
     found = _Found()
-    _eclat(cond_bits[keep], others[keep], cond_counts[keep], min_count, int(max_antecedent), (),
-           found, pair_leaves=False)
-    pad = baskets.n_items
-    # n(X) over all baskets, one AND + popcount per search node
-    prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
-    n_x_parts = []
-    for prefix, ext, _ in found.groups:
-        ext = ext[:, 0]
-        if not prefix:
-            n_x_parts.append(baskets.item_counts[ext])
-            continue
-        row = prefix_rows.get(prefix)
-        if row is None:
-            row = baskets.bits[prefix[0]]
-            for k in prefix[1:]:
-                row = row & baskets.bits[k]
-            prefix_rows[prefix] = row
-        n_x_parts.append(_popcounts(baskets.bits[ext] & row))
-    ante, size, n_xy = found.matrix(pad)
-    n_x = np.concatenate(n_x_parts) if n_x_parts else np.zeros(0, np.int64)
+    _search(baskets, holding, cond_bits[keep], others[keep], cond_counts[keep], min_count,
+            int(max_antecedent), found, pair_leaves=False)
+    ante, size, n_xy = found.matrix(baskets.n_items)
+    # n(X): on all baskets, or as n(X+y) + n(X without y) when fewer baskets lack y than hold it
+    if 2 * n_y <= n:
+        n_x = _count_groups(baskets, found, None)
+    else:
+        lacking_mask = np.ones(n, dtype=bool)
+        lacking_mask[holding] = False
+        lacking = np.flatnonzero(lacking_mask)
+        n_x = n_xy + _count_groups(baskets, found, lacking)
     m = ante.shape[0]
     return _assemble(
         ante, size, np.full(m, y, dtype=np.int64), n, n_x, np.full(m, n_y, dtype=np.int64),

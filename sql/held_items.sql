@@ -4,16 +4,22 @@
 -- returns (negative quantity) cancel purchases, zero-quantity lines count for nothing,
 -- exact duplicate lines count once, and SKUs missing from products are left out.
 -- At category or department level, a basket holds the group when it holds any SKU in it.
-WITH clean_lines AS (
-    SELECT DISTINCT order_id, sku, quantity, net_amount
-    FROM order_lines
+WITH window_orders AS (
+    SELECT o.order_id, o.customer_id
+    FROM orders AS o
+    WHERE o.ordered_at >= :since
+      AND o.ordered_at < :until
+),
+window_lines AS (
+    -- de-duplicate only the lines of orders inside the window
+    SELECT DISTINCT l.order_id, l.sku, l.quantity, l.net_amount
+    FROM order_lines AS l
+    WHERE l.order_id IN (SELECT order_id FROM window_orders)
 ),
 held_skus AS (
     SELECT {basket} AS basket, l.sku
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at >= :since
-      AND o.ordered_at < :until
+    FROM window_lines AS l
+    JOIN window_orders AS o ON o.order_id = l.order_id
     GROUP BY {basket}, l.sku
     HAVING sum(l.quantity) > 0
 )
