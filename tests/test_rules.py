@@ -171,7 +171,7 @@ def test_strongest_rules_across_consequents(garden: Path) -> None:
 
 
 @pytest.mark.postgres
-def test_postgres_gives_the_same_rules(garden: Path, pg_url: str, pg_schema: str) -> None:
+def test_postgres_gives_the_same_rules_and_check_counts(garden: Path, pg_url: str, pg_schema: str) -> None:
     from reachlist.transfer import copy_warehouse
 
     copy_warehouse(str(garden), pg_url, schema=pg_schema)
@@ -181,3 +181,13 @@ def test_postgres_gives_the_same_rules(garden: Path, pg_url: str, pg_schema: str
     with Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as wh:
         pg = mine_rules(wh, "GP20-101").frame.select(cols).sort("rule_id")
     assert duck.equals(pg)
+    # `reachlist check` counts the sample's rows and quirks identically on both warehouses.
+    from reachlist.check import check_warehouse
+
+    with Warehouse.open(garden, read_only=True) as wh:
+        expected = check_warehouse(wh).counts
+    with Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as wh:
+        got = check_warehouse(wh).counts
+    assert {k: v for k, v in got.items() if not k.endswith("_at")} == {
+        k: v for k, v in expected.items() if not k.endswith("_at")
+    }
