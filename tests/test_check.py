@@ -168,3 +168,15 @@ def test_postgres_gives_the_same_counts(tiny: Path, pg_url: str, pg_schema: str,
 
     with pytest.raises(StateError, match="--replace"):
         copy_warehouse(str(tiny), pg_url, schema=pg_schema)
+
+
+def test_cli_sample_writes_and_refuses_to_overwrite(tmp_path: Path) -> None:
+    out = tmp_path / "s.duckdb"
+    runner = CliRunner()
+    first = runner.invoke(main, ["sample", "--out", str(out), "--customers", "600"])
+    assert first.exit_code == 0, first.output
+    assert "600 customers" in first.output and out.exists()
+    again = runner.invoke(main, ["sample", "--out", str(out), "--customers", "600"])
+    assert again.exit_code == 2 and "Error:" in again.output
+    checked = runner.invoke(main, ["check", "-w", str(out)])
+    assert checked.exit_code == 0 and "Data quirks" in checked.output

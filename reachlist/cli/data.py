@@ -10,7 +10,7 @@ from reachlist.warehouse import Warehouse
 
 @main.command()
 @click.option("--out", "out_path", required=True, help="DuckDB file to write.")
-@click.option("--customers", default=20_000, show_default=True, type=click.IntRange(min=100))
+@click.option("--customers", default=20_000, show_default=True, type=click.IntRange(min=500))
 @click.option("--seed", default=7, show_default=True, type=int)
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
@@ -19,7 +19,7 @@ def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
     from reachlist.sample import build_sample
 
     summary = build_sample(out_path, customers=customers, seed=seed, overwrite=force)
-    out.print(summary.describe())
+    out.print(sample_summary(summary))
 
 
 @main.command()
