@@ -39,10 +39,13 @@ __all__ = [
     "reach_query",
 ]
 
-RANK_MEASURES = ("leverage", "confidence", "lift", "support", "conviction", "n_both")
+RANK_MEASURES = (
+    "leverage", "confidence", "lift", "support", "conviction", "n_both", "breadth_lift"
+)
 """Measures rules can be ranked by (higher is better). The default, leverage, counts the extra
 co-purchases a rule accounts for, so it weighs strength and reach together; ranking by confidence
-or lift favours narrow rules whose few holders mostly own the target already."""
+or lift favours narrow rules whose few holders mostly own the target already; breadth_lift
+(customer baskets only) ranks by what a rule adds over shopping breadth."""
 
 # "Ever" for the already-has-the-target exclusion: the earliest timestamp both engines accept.
 EVER = datetime(1, 1, 1)
@@ -61,6 +64,7 @@ class ChosenRule:
     n_antecedent: int
     n_both: int
     significant: bool
+    breadth_lift: float | None = None  # added value over shopping breadth (customer baskets)
 
     @property
     def score(self) -> float:
@@ -111,6 +115,16 @@ def choose_rules(
                 f"{rules.frame.height} rule(s) and none significant after correction.",
                 hint="widen the window, lower --min-support, or pick rules by id with --rule",
             )
+    if "breadth_lift" in frame.columns:
+        frame = frame.with_columns(pl.col("breadth_lift").fill_nan(None))
+    if rank_by == "breadth_lift" and (
+        "breadth_lift" not in frame.columns or frame["breadth_lift"].is_null().all()
+    ):
+        raise InputError(
+            f"Expected rules with a breadth_lift to rank by it, found rules mined from "
+            f"{rules.basket} baskets without one.",
+            hint="mine with --basket customer, or pass --rank-by leverage",
+        )
     frame = frame.sort(
         [rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True
     )
@@ -127,6 +141,9 @@ def choose_rules(
             n_antecedent=int(row["n_antecedent"]),
             n_both=int(row["n_both"]),
             significant=bool(row["significant"]),
+            breadth_lift=(
+                float(row["breadth_lift"]) if row.get("breadth_lift") is not None else None
+            ),
         )
         for i, row in enumerate(frame.iter_rows(named=True))
     )

@@ -382,6 +382,23 @@ class Calibrated:
     def members(self, group: int) -> pl.DataFrame:
         return self.now.people.filter(pl.col(f"g{group}"))
 
+    @property
+    def units_per_buyer(self) -> float:
+        """Net units a new buyer took within the horizon at the latest complete cutoff."""
+        buyers = self.latest.people.filter(pl.col("bought") == 1)
+        return float(buyers["units"].mean()) if buyers.height else 1.0  # type: ignore[arg-type]
+
+    def for_customers(self, customers: Iterable[int] | pl.Series) -> Calibrated:
+        """The same calibration with the audience narrowed to ``customers`` (for example a
+        list's treatment group after a clearance cut). With an ``AudienceSpec`` the backtests
+        rebuild the audience from the rules, so they do not depend on the ids and stay valid."""
+        ids = pl.Series("customer_id", list(customers), dtype=pl.Int64)
+        people = self.now.people.with_columns(
+            (pl.col(f"g{COMBINED}") & pl.col("customer_id").is_in(ids.implode()))
+            .alias(f"g{COMBINED}")
+        )
+        return dataclasses.replace(self, now=_Cutoff(self.now.at, people, self.now.edges))
+
     def customer_rates(self) -> pl.DataFrame:
         """customer_id and calibrated take-up probability of every audience member at as_of."""
         n, b = self.latest.counts()
@@ -418,7 +435,6 @@ class Calibrated:
         added = self.added_value(group)
         raw = self.weight.apply(base, base * (added.estimate if added is not None else 1.0))
         outside = latest.people.filter(~pl.col(f"g{group}"))
-        buyers = latest.people.filter(pl.col("bought") == 1)
         return TakeUpReport(
             target=self.target,
             as_of=self.as_of,
@@ -426,7 +442,7 @@ class Calibrated:
             audience=members.height,
             already_hold=(given - members.height) if given is not None else 0,
             expected=self.calibration.predict(raw, level=self.level),
-            units_per_buyer=float(buyers["units"].mean()) if buyers.height else 1.0,  # type: ignore[arg-type]
+            units_per_buyer=self.units_per_buyer,
             breadth_matched_rate=base / members.height,
             base_rate=float(outside["bought"].mean()) if outside.height else math.nan,  # type: ignore[arg-type]
             overall_rate=float(latest.people["bought"].mean()),  # type: ignore[arg-type]

@@ -11,6 +11,8 @@ the stock -> file (``reachlist.export``) and campaign log (``reachlist.campaigns
 
 from __future__ import annotations
 
+import dataclasses
+import math
 import re
 from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
@@ -31,7 +33,15 @@ from reachlist.audience import (
     rule_rate_interval,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
-from reachlist.errors import EmptyResultError, InputError
+from reachlist.errors import EmptyResultError, InputError, ReachlistError
+from reachlist.estimate import (
+    DEFAULT_HORIZON,
+    Calibrated,
+    HoldoutPlanning,
+    TakeUpReport,
+    calibrate_audience,
+    holdout_planning,
+)
 from reachlist.exclusions import STEPS, StepCount, apply_exclusions
 from reachlist.export import check_destination, stage_list
 from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
@@ -60,10 +70,13 @@ __all__ = [
     "build_list",
     "plan_list",
     "preview_list",
+    "settle_plan",
 ]
 
 PURPOSES = ("introduce", "clear")
 DEFAULT_CAP_DAYS = 14
+DEFAULT_MIN_AUDIENCE = 50  # the CLI's default for --min-audience
+SKIPPED = "skipped with --no-estimate"
 NOT_NEEDED = "not_needed"  # excluded_by for customers a clearance list does not need
 
 
@@ -93,6 +106,13 @@ class ListRequest:
     allow_sensitive: bool = False
     stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
     contact: bool = False  # add contact fields (email) to the exported list
+    # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
+    # library computes it only when asked; the CLI asks by default (--no-estimate skips it).
+    estimate: bool = False
+    horizon_days: int = DEFAULT_HORIZON
+    # Rules whose own audience after exclusions is smaller are not proposed (0: no minimum;
+    # the CLI's --min-audience defaults to DEFAULT_MIN_AUDIENCE).
+    min_audience: int = 0
 
     def parameters(self) -> dict[str, Any]:
         """The request as plain values, for the campaign log."""
@@ -157,6 +177,7 @@ class Clearance:
     customers: int  # customers on the list (treatment and holdout)
     available: int  # customers left after the exclusions
     clears: bool
+    basis: str = "co-purchase rate"  # what expected buyers were taken from
 
 
 @dataclass
@@ -169,6 +190,9 @@ class ListOutcome:
     clearance: Clearance | None = None
     per_rule: list[RuleReach] | None = None
     log_where: str | None = None
+    takeup: TakeUpReport | None = None  # expected buyers of the treatment group
+    holdout_plan: HoldoutPlanning | None = None
+    estimate_note: str | None = None  # why there is no take-up estimate
 
     @property
     def reached(self) -> int:
@@ -215,7 +239,34 @@ class ListOutcome:
         }
         if self.clearance is not None:
             out["clearance"] = asdict(self.clearance)
+        out["estimate"] = self.estimate_counts()
         return out
+
+    def estimate_counts(self) -> dict[str, Any]:
+        """The take-up estimate as plain values for the campaign log (or why there is none)."""
+        r = self.takeup
+        if r is None:
+            return {"skipped": self.estimate_note or "not computed"}
+
+        def num(x: float) -> float | None:
+            return float(x) if math.isfinite(x) else None
+
+        e = r.expected
+        return {
+            "expected": num(e.expected),
+            "low": num(e.low),
+            "high": num(e.high),
+            "level": e.level,
+            "n_backtests": e.n_backtests,
+            "method": e.method,
+            "horizon_days": r.horizon_days,
+            "audience": r.audience,
+            "for_target": str(r.target),
+            "as_of": r.as_of.isoformat(),
+            "base_rate": num(r.base_rate),
+            "breadth_matched_rate": num(r.breadth_matched_rate),
+            "added_value": None if r.added_value is None else num(r.added_value.estimate),
+        }
 
 
 @dataclass(frozen=True)
@@ -249,6 +300,16 @@ def plan_list(
         raise InputError(
             f"Expected --cap-days of at least 0, found {request.cap_days}.",
             hint="pass --cap-days 14, or 0 to switch the frequency cap off",
+        )
+    if request.horizon_days < 1:
+        raise InputError(
+            f"Expected --horizon of at least 1 day, found {request.horizon_days}.",
+            hint="pass --horizon 30",
+        )
+    if request.min_audience < 0:
+        raise InputError(
+            f"Expected --min-audience of at least 0, found {request.min_audience}.",
+            hint=f"pass --min-audience {DEFAULT_MIN_AUDIENCE}, or 0 for no minimum",
         )
     if request.stock is not None and request.stock < 1:
         raise InputError(
@@ -383,6 +444,14 @@ def sensitive_items(
 
 # -- computing -----------------------------------------------------------------------------------
 def _outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None) -> ListOutcome:
+    frame, waterfall = _excluded(wh, plan, log)
+    return _finish(wh, plan, frame, waterfall, log)
+
+
+def _excluded(
+    wh: Warehouse, plan: Plan, log: CampaignLog | None
+) -> tuple[pl.DataFrame, list[StepCount]]:
+    """Every reached customer with the exclusions applied and the holdout assigned."""
     req = plan.request
     frame = wh.fetch(plan.query())
     if frame.height == 0:
@@ -436,9 +505,27 @@ def _outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None) -> ListOutcome:
         .otherwise(pl.lit(None, dtype=pl.String))
         .alias("contact_group")
     )
+    return frame, waterfall
+
+
+def _finish(
+    wh: Warehouse,
+    plan: Plan,
+    frame: pl.DataFrame,
+    waterfall: list[StepCount],
+    log: CampaignLog | None,
+) -> ListOutcome:
+    """Clearance cut and take-up estimate on top of the exclusions."""
+    req = plan.request
+    cal: Calibrated | None = None
+    note: str | None = None
+    if not req.estimate:
+        note = SKIPPED
+    else:
+        cal, note = _calibrate(wh, plan, frame.filter(pl.col("excluded_by").is_null()))
     clearance = None
     if req.purpose == "clear":
-        frame, clearance = _size_to_stock(wh, plan, frame)
+        frame, clearance = _size_to_stock(wh, plan, frame, cal)
         waterfall.append(
             StepCount(
                 NOT_NEEDED,
@@ -449,9 +536,48 @@ def _outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None) -> ListOutcome:
                 0,
             )
         )
-    return ListOutcome(
-        plan, frame, waterfall, clearance, log_where=log.where if log is not None else None
+    outcome = ListOutcome(
+        plan, frame, waterfall, clearance, log_where=log.where if log is not None else None,
+        estimate_note=note,
     )
+    treated = outcome.treatment["customer_id"]
+    if cal is not None and treated.len():
+        try:
+            outcome.takeup = cal.for_customers(treated).report(given=treated.len())
+        except ReachlistError as exc:
+            outcome.estimate_note = f"unavailable: {exc.message}"
+    elif cal is not None:
+        outcome.estimate_note = "nobody left to contact"
+    if outcome.takeup is not None:
+        listed = outcome.listed.height
+        outcome.holdout_plan = holdout_planning(
+            listed, outcome.holdout.height / listed if listed else req.holdout,
+            outcome.takeup.rate,
+        )
+    return outcome
+
+
+def _calibrate(
+    wh: Warehouse, plan: Plan, kept: pl.DataFrame
+) -> tuple[Calibrated | None, str | None]:
+    """Backtests for the audience definition, with the kept customers as the audience.
+
+    With a stand-in, take-up is learnt from buyers of the stand-in (the offered item has no
+    history). A warehouse too short or too small to backtest gives a note, not an error: the
+    preview is still useful without the estimate."""
+    if kept.height == 0:
+        return None, "nobody left after the exclusions"
+    try:
+        cal = calibrate_audience(
+            wh,
+            plan.rules_target,
+            spec=plan.spec,
+            customers=kept["customer_id"],
+            horizon_days=plan.request.horizon_days,
+        )
+    except ReachlistError as exc:
+        return None, f"unavailable: {exc.message}"
+    return cal, None
 
 
 def _empty_audience(plan: Plan) -> pl.DataFrame:
@@ -463,10 +589,15 @@ def _empty_audience(plan: Plan) -> pl.DataFrame:
 
 
 def _size_to_stock(
-    wh: Warehouse, plan: Plan, frame: pl.DataFrame
+    wh: Warehouse, plan: Plan, frame: pl.DataFrame, cal: Calibrated | None = None
 ) -> tuple[pl.DataFrame, Clearance]:
-    """Take kept customers in score order until the treatment group's expected units reach the
-    stock; the rest are marked ``not_needed``."""
+    """Take kept customers, likeliest buyers first, until the treatment group's expected units
+    reach the stock; the rest are marked ``not_needed``.
+
+    With a calibration, a customer's expected buyers are their calibrated take-up probability
+    within the horizon and units are those a new buyer took within the horizon in the past;
+    without one (``--no-estimate``), the rule's co-purchase rate and the units past holders hold,
+    and the clearance says so."""
     req = plan.request
     if req.stock is not None:
         stock, stock_from = req.stock, "--stock"
@@ -479,22 +610,35 @@ def _size_to_stock(
                 hint="pass --stock N with the units to clear",
             )
         stock, stock_from = int(on_hand), "products.stock_on_hand"
-    until = plan.spec.lookback.until
-    buyers, units = item_buyers(wh, plan.target, until)
-    units_from = str(plan.target)
-    if buyers == 0 and plan.stand_in is not None:
-        buyers, units = item_buyers(wh, plan.stand_in, until)
-        units_from = f"{plan.stand_in} (stand-in)"
-    if buyers == 0:
-        per_buyer, units_from = 1.0, "no history: 1 unit assumed"
+    kept = frame.filter(pl.col("excluded_by").is_null())
+    if cal is not None:
+        horizon = plan.request.horizon_days
+        latest = cal.latest.people
+        per_buyer = cal.units_per_buyer
+        buyers = int(latest["bought"].sum())
+        units_from = (f"new buyers of {plan.rules_target} within {horizon} days of "
+                      f"{cal.latest.at:%Y-%m-%d}")
+        basis = f"calibrated expected buyers within {horizon} days"
+        kept = kept.join(cal.customer_rates(), on="customer_id", how="left").with_columns(
+            pl.col("rate").fill_null(0.0).alias("likely")
+        )
     else:
-        per_buyer = units / buyers
-    kept = frame.filter(pl.col("excluded_by").is_null()).sort(
-        ["score", "customer_id"], descending=[True, False]
-    )
+        until = plan.spec.lookback.until
+        buyers, units = item_buyers(wh, plan.target, until)
+        units_from = str(plan.target)
+        if buyers == 0 and plan.stand_in is not None:
+            buyers, units = item_buyers(wh, plan.stand_in, until)
+            units_from = f"{plan.stand_in} (stand-in)"
+        if buyers == 0:
+            per_buyer, units_from = 1.0, "no history: 1 unit assumed"
+        else:
+            per_buyer = units / buyers
+        basis = "co-purchase rate (no take-up estimate)"
+        kept = kept.with_columns(pl.col("score").alias("likely"))
+    kept = kept.sort(["likely", "score", "customer_id"], descending=[True, True, False])
     expected = kept.select(
         pl.when(pl.col("contact_group") == "treatment")
-        .then(pl.col("score") * per_buyer)
+        .then(pl.col("likely") * per_buyer)
         .otherwise(0.0)
         .cum_sum()
         .alias("units")
@@ -524,15 +668,16 @@ def _size_to_stock(
         customers=take,
         available=kept.height,
         clears=clears,
+        basis=basis,
     )
 
 
 def preview_list(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> ListOutcome:
-    """The analyst's preview: the outcome plus each rule's reach and overlap with rules above."""
-    outcome = _outcome(wh, plan, log)
-    pairs = wh.fetch(reach_query(plan.spec)).with_columns(
-        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
-    )
+    """The analyst's preview: the outcome plus each rule's reach and overlap with rules above.
+
+    Rules whose audience is below ``request.min_audience`` are dropped first (``settle_plan``)."""
+    plan, frame, waterfall, pairs = _settle(wh, plan, log)
+    outcome = _finish(wh, plan, frame, waterfall, log)
     first_rank = pairs.group_by("customer_id").agg(pl.col("rule_rank").min().alias("first_rank"))
     who = outcome.customers.select(
         "customer_id",
@@ -560,6 +705,57 @@ def preview_list(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> L
         for rule in plan.rules
     ]
     return outcome
+
+
+def _reach_pairs(wh: Warehouse, plan: Plan) -> pl.DataFrame:
+    return wh.fetch(reach_query(plan.spec)).with_columns(
+        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    )
+
+
+def _settle(
+    wh: Warehouse, plan: Plan, log: CampaignLog | None
+) -> tuple[Plan, pl.DataFrame, list[StepCount], pl.DataFrame]:
+    frame, waterfall = _excluded(wh, plan, log)
+    pairs = _reach_pairs(wh, plan)
+    minimum = plan.request.min_audience
+    if minimum <= 0:
+        return plan, frame, waterfall, pairs
+    kept_ids = frame.filter(pl.col("excluded_by").is_null()).select("customer_id")
+    own = dict(pairs.join(kept_ids, on="customer_id").group_by("rule_rank").len().iter_rows())
+    small = [r for r in plan.rules if own.get(r.rank, 0) < minimum]
+    if not small:
+        return plan, frame, waterfall, pairs
+    sizes = ", ".join(f"{r.rule_id} ({own.get(r.rank, 0):,})" for r in small)
+    if plan.request.rule_ids:  # picked by hand: keep them, but say so
+        note = (f"Rule(s) {sizes} reach fewer than --min-audience {minimum:,} customers after "
+                "the exclusions; kept because they were picked by id.")
+        return dataclasses.replace(plan, notes=(*plan.notes, note)), frame, waterfall, pairs
+    rules = tuple(r for r in plan.rules if r not in small)
+    if not rules:
+        raise EmptyResultError(
+            f"Expected a rule whose audience after exclusions has at least --min-audience "
+            f"{minimum:,} customers, found none: {sizes}.",
+            hint="lower --min-audience, widen the window, or raise --top",
+        )
+    note = (f"Not proposed: rule(s) {sizes} reach fewer than --min-audience {minimum:,} "
+            "customers after the exclusions.")
+    plan = dataclasses.replace(
+        plan,
+        rules=rules,
+        spec=dataclasses.replace(plan.spec, rules=rules),
+        notes=(*plan.notes, note),
+    )
+    frame, waterfall = _excluded(wh, plan, log)
+    return plan, frame, waterfall, _reach_pairs(wh, plan)
+
+
+def settle_plan(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> Plan:
+    """The plan without the rules whose audience after exclusions is below
+    ``request.min_audience`` (with a note saying which); unchanged when there is no minimum."""
+    if plan.request.min_audience <= 0:
+        return plan
+    return _settle(wh, plan, log)[0]
 
 
 def list_frame(outcome: ListOutcome) -> pl.DataFrame:
@@ -593,7 +789,11 @@ def build_list(
     """
     check_destination(out, force=force)
     log.refuse_existing(plan.campaign_id, replace=replace)
-    outcome = _outcome(wh, plan, log)
+    if plan.request.min_audience > 0:
+        plan, frame, waterfall, _ = _settle(wh, plan, log)
+        outcome = _finish(wh, plan, frame, waterfall, log)
+    else:
+        outcome = _outcome(wh, plan, log)
     if outcome.treatment.height == 0:
         biggest = max(outcome.waterfall, key=lambda s: s.removed, default=None)
         why = f"; the largest step, {biggest.label}, removed {biggest.removed:,}" if biggest else ""

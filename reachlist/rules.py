@@ -12,14 +12,17 @@ in SQL (see the README's benchmark section).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
+import numpy as np
 import polars as pl
 
 from reachlist import mining
-from reachlist.errors import EmptyResultError, InputError
+from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.query import Query
+from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
 from reachlist.targets import (
     BasketKind,
     Level,
@@ -35,6 +38,8 @@ from reachlist.targets import (
 from reachlist.warehouse import Warehouse
 
 DEFAULT_MIN_SUPPORT = 0.002
+BREADTH_LIFT = "breadth_lift"
+"""Column of a rule's added value over shopping breadth (see :func:`breadth_lifts`)."""
 _RANK = {"sku": 0, "category": 1, "department": 2}
 
 Progress = Callable[[str], None]
@@ -132,11 +137,17 @@ def mine_rules(
             hint="widen the window with --since, or target a new item through --stand-in",
         )
     say(f"Counting itemsets in {baskets.n_baskets:,} baskets")
+    if sort_by == BREADTH_LIFT and kind != "customer":
+        raise InputError(
+            f"Expected --basket customer to rank by {BREADTH_LIFT}, found --basket {kind}: "
+            "shopping breadth is a property of a customer, not of one order.",
+            hint="pass --basket customer, or rank by lift",
+        )
     options = dict(
         min_support=min_support,
         max_antecedent=max_antecedent,
         correction=correction,
-        sort_by=sort_by,
+        sort_by="lift" if sort_by == BREADTH_LIFT else sort_by,
     )
     frame = mining.target_rules(
         baskets,
@@ -151,7 +162,120 @@ def mine_rules(
             _why_empty(baskets, label, min_support, min_confidence, min_lift, keep_unproductive, options),
             hint="relax the threshold named, or widen the window",
         )
+    values: list[float | None] = [None] * frame.height
+    if kind == "customer":
+        say("Matching rules on shopping breadth")
+        breadth = basket_breadth(wh, baskets, tgt, lvl, window)
+        values = list(breadth_lifts(baskets, breadth, label, frame["antecedent"].to_list()))
+    frame = frame.with_columns(pl.Series(BREADTH_LIFT, values, dtype=pl.Float64))
+    if sort_by == BREADTH_LIFT:
+        frame = sort_by_breadth_lift(frame)
     return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame)
+
+
+def sort_by_breadth_lift(frame: pl.DataFrame) -> pl.DataFrame:
+    """Best added value over breadth first; ties to more co-purchases, then the id."""
+    return frame.sort(
+        [pl.col(BREADTH_LIFT).fill_nan(None), pl.col("n_both"), pl.col("rule_id")],
+        descending=[True, True, False],
+        nulls_last=True,
+    )
+
+
+def basket_breadth(
+    wh: Warehouse, baskets: mining.Baskets, target: Target, level: Level, window: Window
+) -> np.ndarray:
+    """Shopping breadth of each customer basket: distinct categories held in the window.
+
+    The target itself is left out (holding it must not make a customer look broader), so at
+    sku level a customer holding only the target in its category does not count that category.
+    One extra query: the sku -> category map at sku level, nothing at category level, and the
+    category-level held items at department level."""
+    n = baskets.n_baskets
+    target_label_ = target_label(target, level)
+    if level == "department":
+        pairs = wh.fetch(held_items_query(window, level="category", basket="customer"))
+        if target.level == "category":
+            pairs = pairs.filter(pl.col("item") != target.name)
+        ids = baskets.basket_ids
+        if ids is None or pairs.height == 0:
+            return np.zeros(n, dtype=np.int64)
+        where = {v: k for k, v in enumerate(ids.tolist())}
+        per = pairs.group_by("basket").agg(pl.col("item").n_unique().alias("n"))
+        out = np.zeros(n, dtype=np.int64)
+        for key, count in per.iter_rows():
+            k = where.get(key)
+            if k is not None:
+                out[k] = count
+        return out
+    labels = [str(x) for x in baskets.labels.tolist()]
+    if level == "sku":
+        cats = wh.fetch(Query("SELECT sku, category FROM products", label="sku categories"))
+        category = dict(zip(cats["sku"].to_list(), cats["category"].to_list(), strict=True))
+        names = [None if x == target_label_ else category.get(x) for x in labels]
+    else:
+        names = [None if x == target_label_ else x for x in labels]
+    known = sorted({x for x in names if x is not None})
+    code = {x: k for k, x in enumerate(known)}
+    item_cat = np.array([code[x] if x is not None else -1 for x in names], dtype=np.int64)
+    basket_of = np.repeat(np.arange(n, dtype=np.int64), np.diff(baskets.indptr))
+    cat = item_cat[baskets.indices]
+    keep = cat >= 0
+    width = max(len(known), 1)
+    pairs_key = np.unique(basket_of[keep] * width + cat[keep])
+    return np.bincount(pairs_key // width, minlength=n).astype(np.int64)
+
+
+def breadth_tables(
+    baskets: mining.Baskets,
+    breadth: np.ndarray,
+    target: str,
+    antecedents: list[list[str]],
+) -> list[np.ndarray]:
+    """One ``(deciles, 2, 2)`` array per rule: within each breadth decile,
+    ``[[holders with y, holders without], [others with y, others without]]``."""
+    n = baskets.n_baskets
+    decile = assign_decile(breadth, breadth_deciles(breadth)) if n else np.zeros(0, np.int64)
+    k = int(decile.max()) + 1 if n else 1
+    has_y = np.zeros(n, dtype=bool)
+    has_y[baskets.baskets_holding(baskets.item_index(target))] = True
+    total = np.bincount(decile, minlength=k)
+    total_y = np.bincount(decile[has_y], minlength=k)
+    out = []
+    for items in antecedents:
+        holders = None
+        for item in dict.fromkeys(items):
+            rows = baskets.baskets_holding(baskets.item_index(item))
+            holders = rows if holders is None else np.intersect1d(holders, rows,
+                                                                  assume_unique=True)
+        assert holders is not None
+        d, y = decile[holders], has_y[holders]
+        a = np.bincount(d[y], minlength=k)
+        n1 = np.bincount(d, minlength=k)
+        c = total_y - a
+        out.append(np.stack([np.stack([a, n1 - a], axis=1),
+                             np.stack([c, total - n1 - c], axis=1)], axis=1).astype(float))
+    return out
+
+
+def breadth_lifts(
+    baskets: mining.Baskets,
+    breadth: np.ndarray,
+    target: str,
+    antecedents: list[list[str]],
+) -> list[float]:
+    """Each rule's added value over shopping breadth: the Mantel-Haenszel risk ratio of holding
+    the target, antecedent holders over everyone else, within breadth deciles
+    (:func:`reachlist.stats.mantel_haenszel_risk_ratio`). Lift compares holders with everyone;
+    this compares them with customers who shop as broadly, so a rule whose lift is only breadth
+    scores near 1. NaN where no decile has both holders and others with the target."""
+    out = []
+    for tables in breadth_tables(baskets, breadth, target, antecedents):
+        try:
+            out.append(mantel_haenszel_risk_ratio(tables).estimate)
+        except ReachlistError:
+            out.append(math.nan)
+    return out
 
 
 def _why_empty(

@@ -12,8 +12,9 @@ from reachlist.audience import RANK_MEASURES, Filters
 from reachlist.cli import err, main, out, warehouse_options
 from reachlist.cli.mining import mining_options
 from reachlist.cli.progress import delayed_status
+from reachlist.estimate import DEFAULT_HORIZON
 from reachlist.holdout import DEFAULT_SHARE
-from reachlist.lists import DEFAULT_CAP_DAYS, PURPOSES, ListRequest
+from reachlist.lists import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, ListRequest
 from reachlist.warehouse import Warehouse
 
 
@@ -71,6 +72,20 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     return fn
 
 
+def estimate_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Options of the commands that size and estimate the list: sizes and build."""
+    fn = click.option("--min-audience", default=DEFAULT_MIN_AUDIENCE, show_default=True,
+                      type=click.IntRange(0), metavar="N",
+                      help="Do not propose a rule whose audience after the exclusions is "
+                      "smaller; 0 for no minimum.")(fn)
+    fn = click.option("--no-estimate", is_flag=True,
+                      help="Skip the take-up estimate (a quicker preview; a clearance is then "
+                      "sized by the co-purchase rate).")(fn)
+    return click.option("--horizon", "horizon_days", default=DEFAULT_HORIZON, show_default=True,
+                        type=click.IntRange(1), metavar="DAYS",
+                        help="Expected buyers within this many days.")(fn)
+
+
 def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> ListRequest:
     mining = {k: opts.pop(k) for k in list(opts) if k in _MINING_KEYS}
     since, until = mining.pop("since"), mining.pop("until")
@@ -95,6 +110,9 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         allow_sensitive=opts["allow_sensitive"],
         stock=opts["stock"],
         contact=contact,
+        min_audience=opts.get("min_audience", 0),
+        estimate="no_estimate" in opts and not opts["no_estimate"],
+        horizon_days=opts.get("horizon_days", DEFAULT_HORIZON),
     )
 
 
@@ -127,6 +145,12 @@ def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
         plan = plan_list(wh, _request(target, opts, contact=with_contact), progress=progress)
     click.echo(sql_text(plan.sql(wh), wh.dialect, inline=inline_values), nl=False)
     render_plan_header(plan, err)
+    err.print(
+        f"[dim]sizes and build leave out rules whose audience after the exclusions is below "
+        f"--min-audience (default {DEFAULT_MIN_AUDIENCE}); if they report a rule not proposed, "
+        "pass the rules they keep with --rule for their exact SQL.[/]",
+        soft_wrap=True,
+    )
     render_warnings(plan, err)
     render_caution(err)
 
@@ -136,10 +160,12 @@ def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
 @warehouse_options
 @mining_options
 @list_options
+@estimate_options
 @click.option("--state", default=None, metavar="PATH",
               help="Local DuckDB file holding the campaign log (for a read-only warehouse).")
 def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
-    """Preview the list for TARGET: reach per rule, exclusions, list and holdout sizes."""
+    """Preview the list for TARGET: reach per rule, exclusions, list and holdout sizes, and
+    expected buyers within the horizon with an interval from past backtests."""
     from reachlist.campaigns import CampaignLog
     from reachlist.lists import plan_list, preview_list
     from reachlist.render.lists import render_sizes
@@ -149,7 +175,8 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
     try:
         with delayed_status(out, "Mining rules") as progress:
             plan = plan_list(wh, _request(target, opts), progress=progress)
-            progress("Sizing the audience")
+            progress("Sizing the audience" + ("" if opts["no_estimate"] else
+                                              " and backtesting take-up"))
             outcome = preview_list(wh, plan, log)
     finally:
         if log is not None:
@@ -162,6 +189,7 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
 @warehouse_options
 @mining_options
 @list_options
+@estimate_options
 @click.option("--out", "out_path", required=True, metavar="FILE",
               help="List file to write: .csv or .parquet.")
 @click.option("--force", is_flag=True, help="Overwrite an existing list file.")

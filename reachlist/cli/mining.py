@@ -6,8 +6,9 @@ import click
 
 from reachlist.cli import main, out, warehouse_options
 from reachlist.cli.progress import delayed_status
+from reachlist.errors import InputError
 from reachlist.mining import CORRECTIONS, MEASURES
-from reachlist.rules import DEFAULT_MIN_SUPPORT, mine_rules, strongest_rules
+from reachlist.rules import BREADTH_LIFT, DEFAULT_MIN_SUPPORT, mine_rules, strongest_rules
 from reachlist.warehouse import Warehouse
 
 
@@ -43,12 +44,20 @@ def mining_options(fn):  # type: ignore[no-untyped-def]
     return fn
 
 
+BREADTH_NOTE = (
+    "b.lift: added value over shopping breadth (Mantel-Haenszel risk ratio of holding the target "
+    "within deciles of distinct categories held); near 1 = the lift is breadth. Conviction is in "
+    "--json/--csv."
+)
+
+
 @main.command()
 @click.argument("target", required=False)
 @warehouse_options
 @mining_options
 @click.option("--by", "measure", default="lift", show_default=True,
-              type=click.Choice(list(MEASURES)), help="Sort rules by this measure.")
+              type=click.Choice([*MEASURES, BREADTH_LIFT]),
+              help="Sort rules by this measure (breadth_lift: toward a TARGET, customer baskets).")
 @click.option("--top", default=20, show_default=True, type=click.IntRange(1),
               help="Rules shown in the table (all go to --json/--csv).")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
@@ -65,6 +74,12 @@ def rules(
     from reachlist.export import write_list
     from reachlist.render.rules import render_rules, rules_csv_frame, rules_json
 
+    if target is None and measure == BREADTH_LIFT:
+        raise InputError(
+            f"Expected a TARGET to rank by {BREADTH_LIFT}, found none: added value over breadth "
+            "is measured toward one target.",
+            hint="pass a target, for example `reachlist rules SG04-104 --by breadth_lift`",
+        )
     with delayed_status(out, "Mining rules") as progress:
         if target is None:
             exploratory = {k: v for k, v in mining.items() if k != "max_antecedent"}
@@ -91,5 +106,7 @@ def rules(
         f"sig: one-sided Fisher exact test, {correction}-corrected over {tested:,} rules tested "
         "(those meeting --min-support); * = adjusted p < 0.05, ns = not significant.",
         "conf is a historical co-purchase rate, not a take-up forecast.",
+        *([BREADTH_NOTE] if BREADTH_LIFT in frame.columns and target is not None
+          and frame[BREADTH_LIFT].is_not_null().any() else []),
         *( [f"Wrote {frame.height:,} rules to {csv_path}."] if csv_path else [] ),
     ])

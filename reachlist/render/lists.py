@@ -6,11 +6,12 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from reachlist.lists import Built, ListOutcome, Plan
+from reachlist.lists import SKIPPED, Built, ListOutcome, Plan
 from reachlist.overlap import ADVICE, OverlapReport
 from reachlist.query import Dialect, Rendered, literal
 from reachlist.query import inline as inline_values
 from reachlist.render import CAUTION, fmt_count
+from reachlist.render.takeup import estimate_lines, render_holdout_planning
 
 SENSITIVE_WARNING = (
     "Warning: this list uses items of a sensitive category ({items}). Inferring health or "
@@ -58,10 +59,11 @@ def render_caution(console: Console) -> None:
 def rules_table(outcome: ListOutcome) -> Table:
     t = Table(title="Rules, best first", title_justify="left", show_edge=False, pad_edge=False)
     t.add_column("#", justify="right")
-    t.add_column("rule", style="dim", no_wrap=True)
+    t.add_column("rule", style="dim", overflow="fold", min_width=7)
     t.add_column("antecedent", overflow="fold", min_width=12)
-    t.add_column("co-purchase % (95%)", justify="right", no_wrap=True)
+    t.add_column("co-purchase %", justify="right", no_wrap=True)
     t.add_column("lift", justify="right")
+    t.add_column("b.lift", justify="right")
     t.add_column("reach", justify="right")
     t.add_column("kept", justify="right")
     t.add_column("above", justify="right")
@@ -75,6 +77,7 @@ def rules_table(outcome: ListOutcome) -> Table:
             escape(" + ".join(r.antecedent)),
             f"{100 * r.score:.1f} ({100 * low:.1f}-{100 * high:.1f})",
             f"{r.lift:.2f}",
+            "-" if r.breadth_lift is None else f"{r.breadth_lift:.2f}",
             fmt_count(rr.reached),
             fmt_count(rr.kept),
             fmt_count(rr.above),
@@ -111,41 +114,67 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
         "customer id; logged, not contacted).",
         soft_wrap=True,
     )
-    rate = outcome.co_purchase_rate()
-    if rate is not None:
-        est, low, high = rate
-        console.print(
-            f"Historical co-purchase rate of the contacted customers' rules: {_pct(est)} "
-            f"(rules' 95% intervals {_pct(low)}-{_pct(high)}); about "
-            f"{est * outcome.treatment.height:,.0f} customers if they matched past holders.",
-            soft_wrap=True,
-        )
-        console.print(
-            "[dim]This is how often holders of the antecedent also held the target in the "
-            "mining window, not a take-up forecast: far fewer usually buy after an offer.[/]",
-            soft_wrap=True,
-        )
+    render_takeup(outcome, console)
     c = outcome.clearance
     if c is not None:
         basis = (
-            f"{c.units_per_buyer:.2f} units per buyer ({escape(c.units_from)}, "
+            f"{c.basis} x {c.units_per_buyer:.2f} units per buyer ({escape(c.units_from)}, "
             f"{c.buyers_seen:,} buyers)"
         )
         if c.clears:
             console.print(
                 f"[bold]Clearance:[/] stock {c.stock:,} ({c.stock_from}); the first "
-                f"{c.customers:,} of {c.available:,} customers by score are expected to take "
-                f"{c.expected_units:,.0f} units at the co-purchase rate x {basis}.",
+                f"{c.customers:,} of {c.available:,} customers, likeliest buyers first, are "
+                f"expected to take {c.expected_units:,.0f} units at {basis}.",
                 soft_wrap=True,
             )
         else:
             console.print(
                 f"[bold yellow]Clearance:[/] stock {c.stock:,} ({c.stock_from}); all "
                 f"{c.available:,} customers are expected to take only {c.expected_units:,.0f} "
-                f"units ({c.expected_units / c.stock:.0%} of the stock) at the co-purchase rate "
-                f"x {basis}.",
+                f"units ({c.expected_units / c.stock:.0%} of the stock) at {basis}.",
                 soft_wrap=True,
             )
+
+
+def render_takeup(outcome: ListOutcome, console: Console) -> None:
+    """Expected buyers of the contacted customers, with the interval and what it rests on;
+    then the historical co-purchase rate, labelled as that."""
+    r = outcome.takeup
+    if r is not None:
+        e = r.expected
+        console.print(
+            f"[bold]Expected buyers within {r.horizon_days} days:[/] {e.expected:,.0f} "
+            f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) of {r.audience:,} contacted "
+            f"customers ({100 * r.rate:.2f}%), from {e.n_backtests} backtests "
+            f"({escape(e.method)}).",
+            soft_wrap=True,
+        )
+        for line in estimate_lines(r)[1:]:
+            console.print(line, soft_wrap=True)
+        if outcome.plan.stand_in is not None:
+            console.print(
+                f"[yellow]Note:[/] expected buyers are those of the stand-in "
+                f"{escape(str(outcome.plan.stand_in))}, learnt from its past buyers.",
+                soft_wrap=True,
+            )
+    else:
+        why = outcome.estimate_note or "no estimate"
+        tail = ("; run without --no-estimate for expected buyers with an interval from past "
+                "backtests" if why == SKIPPED else "")
+        console.print(f"[yellow]Expected buyers: not estimated[/] ({escape(why)}){tail}.",
+                      soft_wrap=True)
+    if outcome.holdout_plan is not None:
+        render_holdout_planning(outcome.holdout_plan, console)
+    rate = outcome.co_purchase_rate()
+    if rate is not None:
+        est, low, high = rate
+        console.print(
+            f"[dim]Historical co-purchase rate of the contacted customers' rules: {_pct(est)} "
+            f"(rules' 95% intervals {_pct(low)}-{_pct(high)}). This is how often holders of the "
+            "antecedent also held the target in the mining window, not a take-up forecast.[/]",
+            soft_wrap=True,
+        )
 
 
 def render_sizes(outcome: ListOutcome, console: Console) -> None:
@@ -153,7 +182,9 @@ def render_sizes(outcome: ListOutcome, console: Console) -> None:
     render_warnings(outcome.plan, console)
     console.print(rules_table(outcome))
     console.print(
-        "[dim]reach: customers holding the antecedent; kept: left after the exclusions; above: "
+        "[dim]co-purchase %: share of antecedent holders who also held the target (95% "
+        "interval), not take-up; b.lift: added value over shopping breadth; reach: customers "
+        "holding the antecedent; kept: left after the exclusions; above: "
         "kept customers a rule above also reaches; adds: what the rule adds to the list.[/]",
         soft_wrap=True,
     )

@@ -33,8 +33,15 @@ def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) ->
         t.add_column("-> consequent", overflow="fold", ratio=1, min_width=12)
     # With a consequent column there is no room at 100 columns for support and conviction
     # (they stay in --json/--csv).
+    breadth = (
+        not show_consequent
+        and "breadth_lift" in frame.columns
+        and bool(frame["breadth_lift"].is_not_null().any())
+    )
+    # b.lift (added value over breadth) takes conviction's place at 100 columns.
     measures = ("n(X)", "n(X+y)", "conf", "lift", "p adj", "sig") if show_consequent else (
-        "n(X)", "n(X+y)", "supp", "conf", "lift", "conv", "p adj", "sig")
+        "n(X)", "n(X+y)", "supp", "conf", "lift", "b.lift" if breadth else "conv", "p adj",
+        "sig")
     for name in measures:
         t.add_column(name, justify="right", no_wrap=True)
     for r in rows.iter_rows(named=True):
@@ -45,7 +52,9 @@ def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) ->
         if not show_consequent:
             cells.append(_num(r["support"], 4))
         cells += [_num(r["confidence"]), _num(r["lift"], 2)]
-        if not show_consequent:
+        if breadth:
+            cells.append(_num(r["breadth_lift"], 2))
+        elif not show_consequent:
             cells.append(_num(r["conviction"], 2))
         cells += [
             _p(r["p_adjusted"]),

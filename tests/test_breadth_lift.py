@@ -1,0 +1,140 @@
+"""breadth_lift: what a rule adds over shopping breadth (Mantel-Haenszel within breadth deciles)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import polars as pl
+import pytest
+from click.testing import CliRunner
+from statsmodels.stats.contingency_tables import StratifiedTable
+
+from reachlist.cli import main
+from reachlist.errors import EmptyResultError
+from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.query import Query
+from reachlist.rules import RuleSet, basket_breadth, breadth_tables, load_baskets, mine_rules
+from reachlist.sample import KEY_SKUS
+from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
+from reachlist.targets import held_items_query
+from reachlist.warehouse import Warehouse
+from tests import audience_cases as cases
+
+MAT = KEY_SKUS["heated_mat"]  # SG04-104
+PLANTED = [KEY_SKUS["seed_compost"], KEY_SKUS["propagator"]]  # PC06-101 + SG04-101 -> SG04-104
+# The patio cleaner is planted only as the pressure washer's target; like the heated mat it is
+# bought more by broad shoppers, so its link to the mat is breadth alone (sample README).
+UNRELATED = [KEY_SKUS["patio_cleaner"]]  # OL26-101
+
+
+@pytest.fixture(scope="module")
+def sample(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return cases.sample_warehouse(tmp_path_factory)
+
+
+@pytest.fixture(scope="module")
+def ruleset(sample: Path) -> RuleSet:
+    with Warehouse.open(sample, read_only=True) as wh:
+        return mine_rules(wh, MAT)
+
+
+def rule(rs: RuleSet, antecedent: list[str]) -> dict:
+    rows = rs.frame.filter(pl.col("antecedent").list.sort() == sorted(antecedent))
+    assert rows.height == 1, antecedent
+    return rows.row(0, named=True)
+
+
+def test_planted_rule_keeps_its_lift_and_a_breadth_only_rule_loses_it(ruleset: RuleSet) -> None:
+    planted, unrelated = rule(ruleset, PLANTED), rule(ruleset, UNRELATED)
+    assert planted["breadth_lift"] > 1.5  # measured 1.99
+    assert unrelated["lift"] > 1.15  # raw lift credits the rule with breadth (1.24) ...
+    assert abs(unrelated["breadth_lift"] - 1) < 0.1  # ... matched on breadth it is gone (1.04)
+    assert unrelated["breadth_lift"] < unrelated["lift"] - 0.15
+    assert ruleset.frame["breadth_lift"].is_not_null().all()
+
+
+def _reference_tables(wh: Warehouse, rs: RuleSet, antecedent: list[str]) -> np.ndarray:
+    """The strata built independently in polars from the held items: breadth = distinct
+    categories a customer holds in the window, not counting the target itself."""
+    pairs = wh.fetch(held_items_query(rs.window, level="sku", basket="customer"))
+    cats = wh.fetch(Query("SELECT sku, category FROM products", label="test categories"))
+    per = (
+        pairs.join(cats, left_on="item", right_on="sku")
+        .group_by("basket")
+        .agg(
+            pl.col("category").filter(pl.col("item") != MAT).n_unique().alias("breadth"),
+            (pl.col("item") == MAT).any().alias("y"),
+            pl.col("item").is_in(antecedent).sum().alias("held"),
+        )
+        .with_columns((pl.col("held") == len(antecedent)).alias("x"))
+    )
+    b = per["breadth"].to_numpy()
+    per = per.with_columns(pl.Series("d", assign_decile(b, breadth_deciles(b))))
+    k = int(per["d"].max()) + 1
+    out = np.zeros((k, 2, 2))
+    for d, x, y, n in per.group_by("d", "x", "y").len().iter_rows():
+        out[d, 0 if x else 1, 0 if y else 1] = n
+    return out
+
+
+@pytest.mark.parametrize("antecedent", [PLANTED, UNRELATED])
+def test_breadth_lift_is_the_mantel_haenszel_risk_ratio_of_the_strata(
+    sample: Path, ruleset: RuleSet, antecedent: list[str]
+) -> None:
+    with Warehouse.open(sample, read_only=True) as wh:
+        expected = _reference_tables(wh, ruleset, antecedent)
+        baskets = load_baskets(wh, ruleset.target, "sku", "customer", ruleset.window)
+        breadth = basket_breadth(wh, baskets, ruleset.target, "sku", ruleset.window)
+    (got,) = breadth_tables(baskets, breadth, MAT, [antecedent])
+    np.testing.assert_array_equal(got, expected)
+    value = rule(ruleset, antecedent)["breadth_lift"]
+    assert value == pytest.approx(mantel_haenszel_risk_ratio(expected).estimate, rel=1e-12)
+    # Source: statsmodels StratifiedTable.riskratio_pooled on the same strata (tables as 2x2xK)
+    reference = StratifiedTable(np.transpose(expected, (1, 2, 0))).riskratio_pooled
+    assert value == pytest.approx(reference, rel=1e-10)
+
+
+def test_rules_shows_and_ranks_by_breadth_lift(sample: Path) -> None:
+    result = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--by", "breadth_lift",
+                                       "--top", "5", "--json"])
+    assert result.exit_code == 0, result.output
+    rules = json.loads(result.stdout)["rules"]
+    values = [r["breadth_lift"] for r in rules if r["breadth_lift"] is not None]
+    assert values == sorted(values, reverse=True)
+    table = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--top", "5"])
+    assert "b.lift" in table.output and "added value over shopping breadth" in table.output
+    none = CliRunner().invoke(main, ["rules", "-w", str(sample), "--by", "breadth_lift"])
+    assert none.exit_code == 2 and none.output.startswith("Error:")
+    orders = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--basket", "order",
+                                       "--by", "breadth_lift"])
+    assert orders.exit_code == 2 and "--basket customer" in orders.output
+
+
+def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(sample: Path,
+                                                               ruleset: RuleSet) -> None:
+    with Warehouse.open(sample, read_only=True) as wh:
+        by_breadth = plan_list(wh, ListRequest(MAT, rank_by="breadth_lift", campaign_id="b"),
+                               rules=ruleset)
+        values = [r.breadth_lift for r in by_breadth.rules]
+        assert values == sorted(values, reverse=True)  # type: ignore[type-var]
+        plain = preview_list(wh, plan_list(wh, ListRequest(MAT, campaign_id="m"), rules=ruleset))
+        own = {rr.rule.rule_id: rr.kept for rr in plain.per_rule or []}
+        cut = sorted(own.values())[1]  # drops the smallest audience (or two, on a tie)
+        small = {rid for rid, n in own.items() if n < cut}
+        assert small
+        trimmed = preview_list(
+            wh, plan_list(wh, ListRequest(MAT, campaign_id="m", min_audience=cut), rules=ruleset)
+        )
+    assert {r.rule_id for r in trimmed.plan.rules} == set(own) - small
+    assert all(rr.kept >= cut for rr in trimmed.per_rule or [])
+    assert any(n.startswith("Not proposed") and f"--min-audience {cut:,}" in n
+               for n in trimmed.plan.notes)
+    with Warehouse.open(sample, read_only=True) as wh, pytest.raises(EmptyResultError,
+                                                                     match="--min-audience"):
+        preview_list(wh, plan_list(wh, ListRequest(MAT, min_audience=10**6), rules=ruleset))
+    out = CliRunner().invoke(main, ["sizes", MAT, "-w", str(sample), "--no-estimate",
+                                    "--min-audience", str(cut)])
+    assert out.exit_code == 0, out.output
+    assert "Not proposed" in out.output and "b.lift" in out.output

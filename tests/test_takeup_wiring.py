@@ -1,0 +1,106 @@
+"""sizes and build lead with expected buyers (an interval from past backtests), never with
+confidence as take-up; build logs the estimate; a clearance is sized by calibrated buyers."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from reachlist.campaigns import CampaignLog
+from reachlist.cli import main
+from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.sample import KEY_SKUS
+from reachlist.warehouse import Warehouse
+from tests import audience_cases as cases
+
+MAT = KEY_SKUS["heated_mat"]
+FLEECE = KEY_SKUS["frost_fleece"]
+
+
+@pytest.fixture(scope="module")
+def pristine(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return cases.sample_warehouse(tmp_path_factory)
+
+
+@pytest.fixture
+def sample(pristine: Path, tmp_path: Path) -> Path:
+    path = tmp_path / "garden.duckdb"
+    shutil.copy(pristine, path)
+    return path
+
+
+def run(*args: str):  # type: ignore[no-untyped-def]
+    return CliRunner().invoke(main, list(args), catch_exceptions=False)
+
+
+def confidence_never_called_take_up(text: str) -> None:
+    for line in text.splitlines():
+        if "co-purchase" in line.lower() and "take-up" in line:
+            assert "not take-up" in line or "not a take-up forecast" in line, line
+
+
+def test_sizes_leads_with_expected_buyers_and_an_interval(sample: Path) -> None:
+    result = run("sizes", MAT, "-w", str(sample), "--campaign", "p", "--horizon", "30")
+    assert result.exit_code == 0, result.output
+    text = result.output
+    head = next(ln for ln in text.splitlines() if ln.startswith("Expected buyers within 30 days:"))
+    assert "interval" in head and "backtests" in head
+    for expected in ("base rate outside the audience", "Breadth-matched rate",
+                     "Added value over breadth", "Holdout:", "smallest uplift",
+                     "Historical co-purchase rate", "b.lift"):
+        assert expected in text, expected
+    # the estimate comes before the co-purchase rate, which is labelled as that
+    assert text.index("Expected buyers within") < text.index("Historical co-purchase rate")
+    confidence_never_called_take_up(text)
+
+
+def test_no_estimate_says_it_was_skipped(sample: Path) -> None:
+    result = run("sizes", MAT, "-w", str(sample), "--no-estimate")
+    assert result.exit_code == 0, result.output
+    assert "Expected buyers: not estimated (skipped with --no-estimate)" in result.output
+    assert "Expected buyers within" not in result.output
+    confidence_never_called_take_up(result.output)
+
+
+def test_build_logs_the_estimate(sample: Path, tmp_path: Path) -> None:
+    out = tmp_path / "mats.csv"
+    result = run("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "mats",
+                 "--horizon", "21")
+    assert result.exit_code == 0, result.output
+    assert "Expected buyers within 21 days:" in result.output
+    confidence_never_called_take_up(result.output)
+    with Warehouse.open(sample, read_only=True) as wh:
+        record = CampaignLog(wh).campaign("mats")
+    assert record is not None
+    est = record["counts"]["estimate"]
+    assert est["low"] <= est["expected"] <= est["high"]
+    assert est["n_backtests"] >= 5 and est["horizon_days"] == 21 and est["method"]
+    assert est["audience"] == record["counts"]["treatment"]
+    assert record["parameters"]["horizon_days"] == 21
+    skipped = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "quick.csv"),
+                  "--campaign", "quick", "--no-estimate")
+    assert skipped.exit_code == 0, skipped.output
+    with Warehouse.open(sample, read_only=True) as wh:
+        quick = CampaignLog(wh).campaign("quick")
+    assert quick is not None
+    assert quick["counts"]["estimate"] == {"skipped": "skipped with --no-estimate"}
+
+
+def test_clearance_is_sized_by_calibrated_buyers(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh:
+        plan = plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5, estimate=True,
+                                         campaign_id="c"))
+        out = preview_list(wh, plan)
+        naive = preview_list(wh, plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5,
+                                                           campaign_id="c")))
+    c = out.clearance
+    assert c is not None and c.clears and c.basis.startswith("calibrated expected buyers")
+    assert out.takeup is not None and out.takeup.audience == out.treatment.height
+    assert naive.clearance is not None and naive.clearance.basis.startswith("co-purchase rate")
+    # confidence overstates take-up, so the honest list needs more customers for the same stock
+    assert c.customers > naive.clearance.customers
+    cli = run("sizes", FLEECE, "-w", str(pristine), "--purpose", "clear", "--stock", "5")
+    assert "at calibrated expected buyers within 30 days" in cli.output
