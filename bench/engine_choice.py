@@ -21,8 +21,8 @@ import duckdb
 import polars as pl
 
 from reachlist import mining
-from reachlist.query import inline, render
 from reachlist.query import DUCKDB as DIALECT
+from reachlist.query import inline, render
 from reachlist.schema import Mapping
 from reachlist.targets import Window, held_items_query
 
@@ -33,7 +33,9 @@ MIN_SUPPORT = 0.002
 def main(path: str) -> None:
     con = duckdb.connect(path, read_only=True)
     last = con.execute("SELECT max(ordered_at) FROM orders").fetchall()[0][0]
-    until = last.replace(hour=0, minute=0, second=0, microsecond=0) + __import__("datetime").timedelta(days=1)
+    until = last.replace(hour=0, minute=0, second=0, microsecond=0) + __import__(
+        "datetime"
+    ).timedelta(days=1)
     window = Window(until - __import__("datetime").timedelta(days=365), until)
     held_sql = inline(render(held_items_query(window), DIALECT, Mapping.identity()), DIALECT)
     con.execute(f"CREATE TEMP TABLE held AS {held_sql}")
@@ -64,19 +66,26 @@ def main(path: str) -> None:
         pairs = con.sql("SELECT basket, item FROM held").pl()
         labels = pairs["item"].unique().sort()
         codes = pairs["item"].cast(pl.Enum(labels.to_list())).to_physical().to_numpy()
-        baskets = mining.Baskets.from_arrays(pairs["basket"], codes.astype("int64"),
-                                             labels=labels.to_list())
-        in_mem = mining.target_rules(baskets, TARGET, min_count=min_count, max_antecedent=2,
-                                     keep_unproductive=True)
+        baskets = mining.Baskets.from_arrays(
+            pairs["basket"], codes.astype("int64"), labels=labels.to_list()
+        )
+        in_mem = mining.target_rules(
+            baskets, TARGET, min_count=min_count, max_antecedent=2, keep_unproductive=True
+        )
         mem_times.append(time.perf_counter() - t0)
-    got_sql = {tuple(sorted(x for x in (a, b) if x)): (nx, nxy)
-               for a, b, nx, nxy in in_sql.iter_rows()}
-    got_mem = {tuple(sorted(r["antecedent"])): (r["n_antecedent"], r["n_both"])
-               for r in in_mem.iter_rows(named=True)}
+    got_sql = {
+        tuple(sorted(x for x in (a, b) if x)): (nx, nxy) for a, b, nx, nxy in in_sql.iter_rows()
+    }
+    got_mem = {
+        tuple(sorted(r["antecedent"])): (r["n_antecedent"], r["n_both"])
+        for r in in_mem.iter_rows(named=True)
+    }
     same = got_sql == got_mem
     print(f"{path}: {n:,} baskets, {len(got_mem):,} antecedents of 1-2 items, counts agree: {same}")
     print(f"  SQL self-joins  median {statistics.median(sql_times):6.2f} s")
-    print(f"  in memory       median {statistics.median(mem_times):6.2f} s (fetch + bitmaps + mining)")
+    print(
+        f"  in memory       median {statistics.median(mem_times):6.2f} s (fetch + bitmaps + mining)"
+    )
 
 
 if __name__ == "__main__":

@@ -2,7 +2,7 @@
 
 Run by hand (not a test):
 
-    .venv/bin/python bench/lists.py                         # /tmp/s1m.duckdb, 1M customers
+    .venv/bin/python bench/lists.py      # bench/results/garden-1000000.duckdb (bench/rules_speed.py builds it)
     .venv/bin/python bench/lists.py --warehouse bench/results/garden-20000.duckdb --repeats 3
 
 Each run is the real command in a fresh process (imports, rule mining, the audience SQL, the
@@ -67,7 +67,7 @@ def phases(warehouse: str, target_args: list[str]) -> str:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--warehouse", default="/tmp/s1m.duckdb")
+    parser.add_argument("--warehouse", default=str(HERE / "results" / "garden-1000000.duckdb"))
     parser.add_argument("--repeats", type=int, default=2)
     opts = parser.parse_args()
     if not Path(opts.warehouse).exists():

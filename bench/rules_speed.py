@@ -92,8 +92,11 @@ def warehouse(customers: int) -> Path:
     if not path.exists():
         t0 = time.perf_counter()
         s = build_sample(path, customers=customers)
-        print(f"  built {path.name}: {s.order_lines:,} order lines, "
-              f"{s.file_bytes / 2**20:.0f} MiB in {time.perf_counter() - t0:.1f} s", flush=True)
+        print(
+            f"  built {path.name}: {s.order_lines:,} order lines, "
+            f"{s.file_bytes / 2**20:.0f} MiB in {time.perf_counter() - t0:.1f} s",
+            flush=True,
+        )
     return path
 
 
@@ -101,12 +104,18 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[20_000, 100_000, 1_000_000])
     ap.add_argument("--repeats", type=int, default=3)
-    ap.add_argument("--skip-pyfim-above", type=int, default=10**9,
-                    help="skip pyfim for larger warehouses (it can take long)")
+    ap.add_argument(
+        "--skip-pyfim-above",
+        type=int,
+        default=10**9,
+        help="skip pyfim for larger warehouses (it can take long)",
+    )
     args = ap.parse_args()
-    print(f"target {TARGET}, customer baskets, min support {MIN_SUPPORT}, antecedents up to "
-          f"{MAX_ANTECEDENT} items (pyfim mines itemsets up to {MAX_ANTECEDENT + 1}); "
-          f"medians of {args.repeats} runs")
+    print(
+        f"target {TARGET}, customer baskets, min support {MIN_SUPPORT}, antecedents up to "
+        f"{MAX_ANTECEDENT} items (pyfim mines itemsets up to {MAX_ANTECEDENT + 1}); "
+        f"medians of {args.repeats} runs"
+    )
     rows = []
     for customers in args.sizes:
         path = warehouse(customers)
@@ -115,16 +124,20 @@ def main() -> None:
         a = statistics.median(r["seconds"] for r in ours)
         a_mine = statistics.median(r["mine_seconds"] for r in ours)
         a_mem = max(r["peak_mib"] for r in ours)
-        line = (f"{customers:>9,} customers  reachlist {a:7.2f} s  peak {a_mem:6.0f} MiB  "
-                f"rules {int(ours[0]['rules']):,}")
+        line = (
+            f"{customers:>9,} customers  reachlist {a:7.2f} s  peak {a_mem:6.0f} MiB  "
+            f"rules {int(ours[0]['rules']):,}"
+        )
         if customers <= args.skip_pyfim_above:
             ref = [run(RUN_PYFIM.format(**opts)) for _ in range(args.repeats)]
             b = statistics.median(r["seconds"] for r in ref)
             b_mine = statistics.median(r["mine_seconds"] for r in ref)
             b_mem = max(r["peak_mib"] for r in ref)
-            line += (f" | pyfim {b:7.2f} s  peak {b_mem:6.0f} MiB  rules {int(ref[0]['rules']):,}"
-                     f"  itemsets {int(ref[0]['itemsets']):,} | b/a {b / a:5.1f}"
-                     f" | mining only: {a_mine:.2f} s vs {b_mine:.2f} s, b/a {b_mine / a_mine:5.1f}")
+            line += (
+                f" | pyfim {b:7.2f} s  peak {b_mem:6.0f} MiB  rules {int(ref[0]['rules']):,}"
+                f"  itemsets {int(ref[0]['itemsets']):,} | b/a {b / a:5.1f}"
+                f" | mining only: {a_mine:.2f} s vs {b_mine:.2f} s, b/a {b_mine / a_mine:5.1f}"
+            )
             rows.append((customers, a, b, b / a))
         print(line, flush=True)
 

@@ -95,7 +95,7 @@ def _expand_lists(sql: str, params: dict[str, Any]) -> tuple[str, dict[str, Any]
                 values = [None]
             names = [f"{key}_{i}" for i in range(len(values))]
             sql = re.sub(rf"(?<![:\w]):{key}(?!\w)", ", ".join(f":{n}" for n in names), sql)
-            out.update(zip(names, values))
+            out.update(zip(names, values, strict=False))
         else:
             out[key] = value
     return sql, out

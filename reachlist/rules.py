@@ -85,7 +85,9 @@ def load_baskets(
     pairs = wh.fetch(held_items_query(window, level=level, basket=basket))
     if target is not None and target.level != level:
         related = _related_items(wh, target, level)
-        held = wh.fetch(held_items_query(window, level=target.level, basket=basket, only=target.name))
+        held = wh.fetch(
+            held_items_query(window, level=target.level, basket=basket, only=target.name)
+        )
         pairs = pl.concat(
             [
                 pairs.filter(~pl.col("item").is_in(list(related))),
@@ -159,7 +161,9 @@ def mine_rules(
     )
     if frame.height == 0:
         raise EmptyResultError(
-            _why_empty(baskets, label, min_support, min_confidence, min_lift, keep_unproductive, options),
+            _why_empty(
+                baskets, label, min_support, min_confidence, min_lift, keep_unproductive, options
+            ),
             hint="relax the threshold named, or widen the window",
         )
     values: list[float | None] = [None] * frame.height
@@ -246,15 +250,17 @@ def breadth_tables(
         holders = None
         for item in dict.fromkeys(items):
             rows = baskets.baskets_holding(baskets.item_index(item))
-            holders = rows if holders is None else np.intersect1d(holders, rows,
-                                                                  assume_unique=True)
+            holders = rows if holders is None else np.intersect1d(holders, rows, assume_unique=True)
         assert holders is not None
         d, y = decile[holders], has_y[holders]
         a = np.bincount(d[y], minlength=k)
         n1 = np.bincount(d, minlength=k)
         c = total_y - a
-        out.append(np.stack([np.stack([a, n1 - a], axis=1),
-                             np.stack([c, total - n1 - c], axis=1)], axis=1).astype(float))
+        out.append(
+            np.stack(
+                [np.stack([a, n1 - a], axis=1), np.stack([c, total - n1 - c], axis=1)], axis=1
+            ).astype(float)
+        )
     return out
 
 
@@ -296,7 +302,12 @@ def _why_empty(
             f"{n_y / n:.3%}"
         )
     every = mining.target_rules(
-        baskets, label, min_confidence=0.0, min_lift=0.0, keep_unproductive=True, **options  # type: ignore[arg-type]
+        baskets,
+        label,
+        min_confidence=0.0,
+        min_lift=0.0,
+        keep_unproductive=True,
+        **options,  # type: ignore[arg-type]
     )
     if every.height == 0:
         return (
@@ -352,7 +363,9 @@ def strongest_rules(
     say(f"Reading {kind} baskets for {window}")
     baskets = load_baskets(wh, None, lvl, kind, window)
     if baskets.n_baskets == 0:
-        raise EmptyResultError(f"No {kind} basket holds any item in {window}.", hint="widen the window")
+        raise EmptyResultError(
+            f"No {kind} basket holds any item in {window}.", hint="widen the window"
+        )
     say(f"Mining frequent itemsets in {baskets.n_baskets:,} baskets")
     frame = mining.top_rules(
         baskets,

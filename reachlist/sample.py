@@ -769,13 +769,13 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     # ---- general orders --------------------------------------------------------------------
     n_orders = rng.poisson(0.5 + 7.0 * breadth)
     o_cust = np.repeat(np.arange(n), n_orders)
-    O = len(o_cust)
-    o_day = np.searchsorted(day_cdf, rng.random(O), side="right").clip(0, _DAYS - 1)
-    o_online = rng.random(O) < online_share[o_cust]
-    sod = np.where(o_online, rng.integers(0, 86_400, O), rng.integers(8 * 3600, 20 * 3600, O))
+    n_general = len(o_cust)
+    o_day = np.searchsorted(day_cdf, rng.random(n_general), side="right").clip(0, _DAYS - 1)
+    o_online = rng.random(n_general) < online_share[o_cust]
+    sod = np.where(o_online, rng.integers(0, 86_400, n_general), rng.integers(8 * 3600, 20 * 3600, n_general))
     o_t = o_day.astype(np.int64) * 86_400 + sod
-    n_lines = 1 + rng.poisson(1.6, O)
-    l_order = np.repeat(np.arange(O), n_lines)
+    n_lines = 1 + rng.poisson(1.6, n_general)
+    l_order = np.repeat(np.arange(n_general), n_lines)
     l_cust = o_cust[l_order]
     l_sku, l_qty, l_cents = _draw_lines(rng, cat, gen_cats, gen_p, fav, nfav, l_cust,
                                         o_day[l_order])
@@ -867,7 +867,7 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     qty_t = np.concatenate(p_qty)
     t_online = np.concatenate(p_online)
     T = len(t_cust)
-    t_order = O + np.arange(T)
+    t_order = n_general + np.arange(T)
     cents_t = cat.price_cents[t_sku] * qty_t
     n_fill = rng.poisson(0.8, T)
     f_order_local = np.repeat(np.arange(T), n_fill)
@@ -885,7 +885,7 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     tr_sku = np.concatenate(r_sku_t)
     tr_qty = np.concatenate(r_qty_t)
     tr_online = np.concatenate(r_online_t)
-    tr_order = O + T + np.arange(len(tr_cust))
+    tr_order = n_general + T + np.arange(len(tr_cust))
     tr_cents = -(cat.price_cents[tr_sku] * tr_qty)
 
     n_general = len(l_order)
@@ -1016,7 +1016,7 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     has_email = np.concatenate([c.has_email for c in chunks])
     domain = np.concatenate([c.domain for c in chunks])
     emails = [f"shopper{i}@{_DOMAINS[d]}" if h else None
-              for i, d, h in zip(cid.tolist(), domain.tolist(), has_email.tolist())]
+              for i, d, h in zip(cid.tolist(), domain.tolist(), has_email.tolist(), strict=False)]
     consent_day = np.concatenate([c.consent_day for c in chunks])
     age_known = np.concatenate([c.age_known for c in chunks])
     customers = pa.table({
@@ -1038,13 +1038,13 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     })
     suppressions = pa.table({
         "customer_id": pa.array(np.concatenate(
-            [cid[o + c.supp_cust] for c, o in zip(chunks, cust_off)])),
+            [cid[o + c.supp_cust] for c, o in zip(chunks, cust_off, strict=False)])),
         "reason": _dict(np.concatenate([c.supp_reason for c in chunks]), _REASONS),
         "suppressed_at": _dates(np.concatenate([c.supp_day for c in chunks])),
     })
 
     # orders: ids increase with time (ties broken by customer)
-    o_cust = np.concatenate([c.o_cust + o for c, o in zip(chunks, cust_off)])
+    o_cust = np.concatenate([c.o_cust + o for c, o in zip(chunks, cust_off, strict=False)])
     o_t = np.concatenate([c.o_t for c in chunks])
     o_online = np.concatenate([c.o_online for c in chunks])
     rank_order = np.lexsort((o_cust, o_t))
@@ -1059,7 +1059,7 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     del rank_order
 
     # lines, sorted by order id (stable: lines keep their order inside an order)
-    l_oid = np.concatenate([order_id[c.l_order + o] for c, o in zip(chunks, ord_off)])
+    l_oid = np.concatenate([order_id[c.l_order + o] for c, o in zip(chunks, ord_off, strict=False)])
     l_sku = np.concatenate([c.l_sku for c in chunks])
     l_qty = np.concatenate([c.l_qty for c in chunks])
     l_cents = np.concatenate([c.l_cents for c in chunks])
@@ -1082,7 +1082,7 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     ])
     for ri, r in enumerate(PLANTED_RULES):
         cols = [np.concatenate([c.planted[ri][j] for c in chunks]) for j in range(7)]
-        who = np.concatenate([c.planted[ri][0] + o for c, o in zip(chunks, cust_off)])
+        who = np.concatenate([c.planted[ri][0] + o for c, o in zip(chunks, cust_off, strict=False)])
         _, hold, tgt, src, tsku, n_pur, n_ret = cols
         parts.append(pa.table({
             "rule_id": pa.array([r["rule_id"]] * len(who), pa.string()),

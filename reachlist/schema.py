@@ -223,7 +223,7 @@ class Mapping:
                 )
             if not isinstance(section, dict):
                 raise InputError(
-                    f"Mapping {source}: [{key}] must be a table of name = \"value\" lines, "
+                    f'Mapping {source}: [{key}] must be a table of name = "value" lines, '
                     f"found {type(section).__name__}.",
                     hint=f'write [{key}] on its own line, then table = "your_table"',
                 )

@@ -48,7 +48,7 @@ def parse_target(text: str) -> Target:
         if not rest.strip():
             raise InputError(
                 f"Expected a name after {prefix}:, found nothing in {text!r}.",
-                hint=f"write {prefix}:NAME, for example {prefix}:\"Bird food\"",
+                hint=f'write {prefix}:NAME, for example {prefix}:"Bird food"',
             )
         return Target(prefix.lower(), rest.strip())  # type: ignore[arg-type]
     return Target("sku", text)

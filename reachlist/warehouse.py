@@ -252,7 +252,9 @@ class Warehouse:
             self._conn.register("_reachlist_frame", frame.to_arrow())
             try:
                 src = ", ".join(quote_ident(c) for c in frame.columns)
-                self._conn.execute(f"INSERT INTO {target} ({cols}) SELECT {src} FROM _reachlist_frame")
+                self._conn.execute(
+                    f"INSERT INTO {target} ({cols}) SELECT {src} FROM _reachlist_frame"
+                )
             finally:
                 self._conn.unregister("_reachlist_frame")
         elif self.dialect.name == "postgresql" and frame.height > 1000:

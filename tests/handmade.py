@@ -33,7 +33,9 @@ def product(sku: str, category: str = "cat", department: str = "dept", **kw: Any
     )
 
 
-def customer(cid: int, consent: bool = True, birth: date | None = date(1980, 1, 1), **kw: Any) -> tuple:
+def customer(
+    cid: int, consent: bool = True, birth: date | None = date(1980, 1, 1), **kw: Any
+) -> tuple:
     return (
         cid,
         kw.get("email", f"c{cid}@example.invalid"),
@@ -58,8 +60,12 @@ def build(
     names = names or {}
     for t, ddl in DDL.items():
         con.execute(f"CREATE TABLE {names.get(t, t)} ({ddl})")
-    con.executemany(f"INSERT INTO {names.get('customers', 'customers')} VALUES (?,?,?,?,?,?)", customers)
-    con.executemany(f"INSERT INTO {names.get('products', 'products')} VALUES (?,?,?,?,?,?,?,?)", products)
+    con.executemany(
+        f"INSERT INTO {names.get('customers', 'customers')} VALUES (?,?,?,?,?,?)", customers
+    )
+    con.executemany(
+        f"INSERT INTO {names.get('products', 'products')} VALUES (?,?,?,?,?,?,?,?)", products
+    )
     orders: dict[tuple[int, str], int] = {}
     lines = []
     for cid, day, sku, qty in purchases:
@@ -69,8 +75,12 @@ def build(
         f"INSERT INTO {names.get('orders', 'orders')} VALUES (?,?,?,?)",
         [(oid, cid, datetime.fromisoformat(day), "store") for (cid, day), oid in orders.items()],
     )
-    con.executemany(f"INSERT INTO {names.get('order_lines', 'order_lines')} VALUES (?,?,?,?)", lines)
+    con.executemany(
+        f"INSERT INTO {names.get('order_lines', 'order_lines')} VALUES (?,?,?,?)", lines
+    )
     if suppressions:
-        con.executemany(f"INSERT INTO {names.get('suppressions', 'suppressions')} VALUES (?,?,?)", suppressions)
+        con.executemany(
+            f"INSERT INTO {names.get('suppressions', 'suppressions')} VALUES (?,?,?)", suppressions
+        )
     con.close()
     return path

@@ -151,7 +151,9 @@ def test_cli_prints_one_error_line_and_no_traceback(tiny: Path) -> None:
 
 
 @pytest.mark.postgres
-def test_postgres_gives_the_same_counts(tiny: Path, pg_url: str, pg_schema: str, tmp_path: Path) -> None:
+def test_postgres_gives_the_same_counts(
+    tiny: Path, pg_url: str, pg_schema: str, tmp_path: Path
+) -> None:
     from reachlist.transfer import copy_warehouse
 
     copied = copy_warehouse(str(tiny), pg_url, schema=pg_schema)

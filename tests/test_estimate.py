@@ -95,13 +95,20 @@ def test_holdout_planning_small_list_says_so() -> None:
     p = holdout_planning(300, 0.1, 0.02, wanted_uplift=1.0)
     assert p.needed is None
     assert any("cannot be detected" in line for line in p.lines())
-    assert p.detectable is not None and (p.detectable.relative > 1 or math.isinf(p.detectable.relative))
+    assert p.detectable is not None and (
+        p.detectable.relative > 1 or math.isinf(p.detectable.relative)
+    )
 
 
 def test_report_as_dict_is_plain(takeup_sample: Path) -> None:
     with Warehouse.open(takeup_sample, read_only=True) as wh:
-        r = estimate_takeup(wh, HEATED_MAT, customers=pl.Series([1000001, 1000002, 1000003]),
-                            as_of=CUTOFF, max_cutoffs=3)
+        r = estimate_takeup(
+            wh,
+            HEATED_MAT,
+            customers=pl.Series([1000001, 1000002, 1000003]),
+            as_of=CUTOFF,
+            max_cutoffs=3,
+        )
     d = r.as_dict()
     assert d["n_backtests"] == r.expected.n_backtests
     assert d["added_value_over_breadth"] is None

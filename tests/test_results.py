@@ -37,20 +37,27 @@ def state(takeup_sample: Path, tmp_path_factory: pytest.TempPathFactory) -> Path
         "ORDER BY customer_id"
     ).pl()["customer_id"]
     con.close()
-    contacts = pl.DataFrame({
-        "customer_id": ids,
-        "contact_group": ["holdout" if i % 4 == 0 else "treatment" for i in range(ids.len())],
-        "score": 0.5,
-        "reason": "hand-made",
-    })
+    contacts = pl.DataFrame(
+        {
+            "customer_id": ids,
+            "contact_group": ["holdout" if i % 4 == 0 else "treatment" for i in range(ids.len())],
+            "score": 0.5,
+            "reason": "hand-made",
+        }
+    )
     path = tmp_path_factory.mktemp("state") / "state.duckdb"
-    with Warehouse.open(takeup_sample, read_only=True) as wh, CampaignLog.open(wh, str(path)) as log:
+    with (
+        Warehouse.open(takeup_sample, read_only=True) as wh,
+        CampaignLog.open(wh, str(path)) as log,
+    ):
         # The record carries the rules and window, as build_list logs them, so the estimate can
         # rebuild the audience at past cutoffs.
-        rule = ChosenRule(1, "hand", ("SG04-101", "PC06-101"), "SG04-104", 0.5, 2.9, 100, 50,
-                          True)
+        rule = ChosenRule(1, "hand", ("SG04-101", "PC06-101"), "SG04-104", 0.5, 2.9, 100, 50, True)
         record = CampaignRecord(
-            "mats-hand", SENT, "SG04-104", "introduce",
+            "mats-hand",
+            SENT,
+            "SG04-104",
+            "introduce",
             parameters={"window": [datetime(2025, 6, 1), SENT], "level": "sku"},
             rules=[asdict(rule)],
         )
@@ -59,7 +66,10 @@ def state(takeup_sample: Path, tmp_path_factory: pytest.TempPathFactory) -> Path
 
 
 def test_results_against_direct_count(takeup_sample: Path, state: Path) -> None:
-    with Warehouse.open(takeup_sample, read_only=True) as wh, CampaignLog.open(wh, str(state)) as log:
+    with (
+        Warehouse.open(takeup_sample, read_only=True) as wh,
+        CampaignLog.open(wh, str(state)) as log,
+    ):
         r = campaign_results(wh, log, "mats-hand", horizon_days=30)
         contacts = log.contacts("mats-hand")
     # Independent count: first purchases of the mat recorded by the generator (sample_planted).
@@ -75,8 +85,9 @@ def test_results_against_direct_count(takeup_sample: Path, state: Path) -> None:
         expected = hit.filter(pl.col("contact_group") == g.group).height
         assert abs(g.buyers - expected) <= 3  # full returns inside the horizon do not count
         assert g.customers == contacts.filter(pl.col("contact_group") == g.group).height
-    d = difference_interval(r.treatment.buyers, r.treatment.customers, r.holdout.buyers,
-                            r.holdout.customers)
+    d = difference_interval(
+        r.treatment.buyers, r.treatment.customers, r.holdout.buyers, r.holdout.customers
+    )
     assert r.difference == d
     # The offer did nothing here (the log was made after the fact), so no uplift is detected.
     assert r.ratio is not None and r.ratio.low < 1 < r.ratio.high

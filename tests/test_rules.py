@@ -39,9 +39,13 @@ DOCUMENTED_CONFIDENCE = {
 
 
 @pytest.mark.parametrize("rule_id", sorted(DOCUMENTED_CONFIDENCE))
-def test_planted_rules_are_recovered_with_their_documented_strength(garden: Path, rule_id: str) -> None:
+def test_planted_rules_are_recovered_with_their_documented_strength(
+    garden: Path, rule_id: str
+) -> None:
     planted = next(r for r in planted_rules() if r["rule_id"] == rule_id)
-    target = planted["target"] if planted["target_level"] == "sku" else f"category:{planted['target']}"
+    target = (
+        planted["target"] if planted["target_level"] == "sku" else f"category:{planted['target']}"
+    )
     with Warehouse.open(garden, read_only=True) as wh:
         rs = mine_rules(wh, target, level=planted["antecedent_level"], keep_unproductive=True)
     hit = rs.frame.filter(pl.col("antecedent").list.sort() == sorted(planted["antecedent"]))
@@ -62,7 +66,9 @@ def test_two_item_rule_beats_each_single_item(garden: Path) -> None:
     assert pair > conf[("SG04-101",)] + 0.1 and pair > conf[("PC06-101",)] + 0.1
 
 
-def _independent_rules(path: Path, target: str, since: str, until: str) -> dict[tuple[str, ...], tuple[int, int]]:
+def _independent_rules(
+    path: Path, target: str, since: str, until: str
+) -> dict[tuple[str, ...], tuple[int, int]]:
     """Customer baskets counted straight from the raw tables with polars: n(X), n(X+y)."""
     import duckdb
 
@@ -73,9 +79,12 @@ def _independent_rules(path: Path, target: str, since: str, until: str) -> dict[
     con.close()
     held = (
         lines.join(orders, on="order_id")
-        .filter((pl.col("ordered_at") >= pl.lit(since).str.to_datetime())
-                & (pl.col("ordered_at") < pl.lit(until).str.to_datetime()))
-        .group_by("customer_id", "sku").agg(pl.col("quantity").sum())
+        .filter(
+            (pl.col("ordered_at") >= pl.lit(since).str.to_datetime())
+            & (pl.col("ordered_at") < pl.lit(until).str.to_datetime())
+        )
+        .group_by("customer_id", "sku")
+        .agg(pl.col("quantity").sum())
         .filter((pl.col("quantity") > 0) & pl.col("sku").is_in(list(skus)))
     )
     baskets = [set(s) for s in held.group_by("customer_id").agg("sku")["sku"].to_list()]
@@ -94,22 +103,42 @@ def test_counts_follow_returns_duplicates_and_unknown_skus(tmp_path: Path) -> No
     products = [hm.product(s) for s in ("A", "B", "T")]
     customers = [hm.customer(i) for i in range(1, 7)]
     purchases = [
-        (1, "2025-03-01", "A", 1), (1, "2025-03-02", "T", 1),
-        (2, "2025-03-01", "A", 1), (2, "2025-03-01", "A", 1),  # duplicate line: counts once
-        (2, "2025-03-05", "A", -1),                            # returns the single purchase
+        (1, "2025-03-01", "A", 1),
+        (1, "2025-03-02", "T", 1),
+        (2, "2025-03-01", "A", 1),
+        (2, "2025-03-01", "A", 1),  # duplicate line: counts once
+        (2, "2025-03-05", "A", -1),  # returns the single purchase
         (2, "2025-03-06", "T", 1),
-        (3, "2025-03-01", "A", 2), (3, "2025-03-01", "B", 1), (3, "2025-03-02", "T", 1),
-        (3, "2025-03-09", "T", -1),                            # target bought once and returned
-        (4, "2025-03-01", "B", 1), (4, "2025-03-01", "T", 1), (4, "2025-03-01", "ZZ", 1),
-        (5, "2025-03-01", "A", 1), (5, "2025-03-01", "B", 0),  # zero quantity: not a purchase
-        (6, "2024-01-01", "A", 1), (6, "2025-03-01", "T", 1),  # outside the window
+        (3, "2025-03-01", "A", 2),
+        (3, "2025-03-01", "B", 1),
+        (3, "2025-03-02", "T", 1),
+        (3, "2025-03-09", "T", -1),  # target bought once and returned
+        (4, "2025-03-01", "B", 1),
+        (4, "2025-03-01", "T", 1),
+        (4, "2025-03-01", "ZZ", 1),
+        (5, "2025-03-01", "A", 1),
+        (5, "2025-03-01", "B", 0),  # zero quantity: not a purchase
+        (6, "2024-01-01", "A", 1),
+        (6, "2025-03-01", "T", 1),  # outside the window
     ]
-    path = hm.build(tmp_path / "w.duckdb", customers=customers, products=products, purchases=purchases)
+    path = hm.build(
+        tmp_path / "w.duckdb", customers=customers, products=products, purchases=purchases
+    )
     with Warehouse.open(path) as wh:
-        rs = mine_rules(wh, "T", since="2025-01-01", until="2025-12-31", min_support=1e-9,
-                        min_lift=0.0, keep_unproductive=True, max_antecedent=2)
-    got = {tuple(sorted(r["antecedent"])): (r["n_antecedent"], r["n_both"])
-           for r in rs.frame.iter_rows(named=True)}
+        rs = mine_rules(
+            wh,
+            "T",
+            since="2025-01-01",
+            until="2025-12-31",
+            min_support=1e-9,
+            min_lift=0.0,
+            keep_unproductive=True,
+            max_antecedent=2,
+        )
+    got = {
+        tuple(sorted(r["antecedent"])): (r["n_antecedent"], r["n_both"])
+        for r in rs.frame.iter_rows(named=True)
+    }
     expected = _independent_rules(path, "T", "2025-01-01", "2025-12-31")
     assert got == expected
     assert got[("A",)] == (3, 1)  # customers 1, 3, 5 hold A; only 1 also holds T
@@ -119,8 +148,13 @@ def test_counts_follow_returns_duplicates_and_unknown_skus(tmp_path: Path) -> No
 def test_category_target_leaves_out_its_own_skus(garden: Path) -> None:
     with Warehouse.open(garden, read_only=True) as wh:
         rs = mine_rules(wh, "category:Bird Feeders & Tables", level="sku")
-        inside = set(wh.fetch(__import__("reachlist.query", fromlist=["Query"]).Query(
-            "SELECT sku FROM products WHERE category = :c", {"c": "Bird Feeders & Tables"}))["sku"])
+        inside = set(
+            wh.fetch(
+                __import__("reachlist.query", fromlist=["Query"]).Query(
+                    "SELECT sku FROM products WHERE category = :c", {"c": "Bird Feeders & Tables"}
+                )
+            )["sku"]
+        )
     used = {i for a in rs.frame["antecedent"].to_list() for i in a}
     assert used and not (used & inside)
     assert rs.target_label == "category:Bird Feeders & Tables"
@@ -165,13 +199,17 @@ def test_cli_table_json_and_csv(garden: Path, tmp_path: Path) -> None:
 
 
 def test_strongest_rules_across_consequents(garden: Path) -> None:
-    result = CliRunner().invoke(main, ["rules", "-w", str(garden), "--level", "category", "--top", "5"])
+    result = CliRunner().invoke(
+        main, ["rules", "-w", str(garden), "--level", "category", "--top", "5"]
+    )
     assert result.exit_code == 0, result.output
     assert "Strongest rules by lift" in result.output
 
 
 @pytest.mark.postgres
-def test_postgres_gives_the_same_rules_and_check_counts(garden: Path, pg_url: str, pg_schema: str) -> None:
+def test_postgres_gives_the_same_rules_and_check_counts(
+    garden: Path, pg_url: str, pg_schema: str
+) -> None:
     from reachlist.transfer import copy_warehouse
 
     copy_warehouse(str(garden), pg_url, schema=pg_schema)

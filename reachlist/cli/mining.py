@@ -16,28 +16,60 @@ def mining_options(fn):  # type: ignore[no-untyped-def]
     """Options shared by every command that mines rules (rules, sql, sizes, build, ...)."""
     for option in reversed(
         [
-            click.option("--level", default="sku", show_default=True,
-                         type=click.Choice(["sku", "category", "department"]),
-                         help="Item level of the antecedents."),
-            click.option("--basket", default="customer", show_default=True,
-                         type=click.Choice(["customer", "order"]),
-                         help="Count co-occurrence per customer or per order."),
-            click.option("--since", default=None, help="Start of the mining window (YYYY-MM-DD); "
-                         "default 12 months before --until."),
-            click.option("--until", default=None, help="End of the mining window (exclusive); "
-                         "default the day after the last order."),
-            click.option("--min-support", default=DEFAULT_MIN_SUPPORT, show_default=True,
-                         type=click.FloatRange(0, 1, min_open=True), help="Minimum share of baskets holding X+y."),
-            click.option("--min-confidence", default=0.0, show_default=True,
-                         type=click.FloatRange(0, 1)),
+            click.option(
+                "--level",
+                default="sku",
+                show_default=True,
+                type=click.Choice(["sku", "category", "department"]),
+                help="Item level of the antecedents.",
+            ),
+            click.option(
+                "--basket",
+                default="customer",
+                show_default=True,
+                type=click.Choice(["customer", "order"]),
+                help="Count co-occurrence per customer or per order.",
+            ),
+            click.option(
+                "--since",
+                default=None,
+                help="Start of the mining window (YYYY-MM-DD); default 12 months before --until.",
+            ),
+            click.option(
+                "--until",
+                default=None,
+                help="End of the mining window (exclusive); default the day after the last order.",
+            ),
+            click.option(
+                "--min-support",
+                default=DEFAULT_MIN_SUPPORT,
+                show_default=True,
+                type=click.FloatRange(0, 1, min_open=True),
+                help="Minimum share of baskets holding X+y.",
+            ),
+            click.option(
+                "--min-confidence", default=0.0, show_default=True, type=click.FloatRange(0, 1)
+            ),
             click.option("--min-lift", default=1.0, show_default=True, type=click.FloatRange(0)),
-            click.option("--max-antecedent", default=3, show_default=True,
-                         type=click.IntRange(1, 5), help="Most items in an antecedent."),
-            click.option("--keep-unproductive", is_flag=True,
-                         help="Keep rules that a shorter antecedent matches or beats."),
-            click.option("--correction", default="holm", show_default=True,
-                         type=click.Choice(list(CORRECTIONS)),
-                         help="Multiple-testing correction of the Fisher p-values."),
+            click.option(
+                "--max-antecedent",
+                default=3,
+                show_default=True,
+                type=click.IntRange(1, 5),
+                help="Most items in an antecedent.",
+            ),
+            click.option(
+                "--keep-unproductive",
+                is_flag=True,
+                help="Keep rules that a shorter antecedent matches or beats.",
+            ),
+            click.option(
+                "--correction",
+                default="holm",
+                show_default=True,
+                type=click.Choice(list(CORRECTIONS)),
+                help="Multiple-testing correction of the Fisher p-values.",
+            ),
         ]
     ):
         fn = option(fn)
@@ -55,17 +87,33 @@ BREADTH_NOTE = (
 @click.argument("target", required=False)
 @warehouse_options
 @mining_options
-@click.option("--by", "measure", default="lift", show_default=True,
-              type=click.Choice([*MEASURES, BREADTH_LIFT]),
-              help="Sort rules by this measure (breadth_lift: toward a TARGET, customer baskets).")
-@click.option("--top", default=20, show_default=True, type=click.IntRange(1),
-              help="Rules shown in the table (all go to --json/--csv).")
+@click.option(
+    "--by",
+    "measure",
+    default="lift",
+    show_default=True,
+    type=click.Choice([*MEASURES, BREADTH_LIFT]),
+    help="Sort rules by this measure (breadth_lift: toward a TARGET, customer baskets).",
+)
+@click.option(
+    "--top",
+    default=20,
+    show_default=True,
+    type=click.IntRange(1),
+    help="Rules shown in the table (all go to --json/--csv).",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
 @click.option("--csv", "csv_path", default=None, help="Also write every rule to this CSV file.")
 @click.option("--force", is_flag=True, help="Overwrite an existing --csv file.")
 def rules(
-    wh: Warehouse, target: str | None, measure: str, top: int, as_json: bool,
-    csv_path: str | None, force: bool, **mining: object,
+    wh: Warehouse,
+    target: str | None,
+    measure: str,
+    top: int,
+    as_json: bool,
+    csv_path: str | None,
+    force: bool,
+    **mining: object,
 ) -> None:
     """Rules toward TARGET (a SKU, category:NAME or department:NAME) with every measure.
 
@@ -84,29 +132,49 @@ def rules(
         if target is None:
             exploratory = {k: v for k, v in mining.items() if k != "max_antecedent"}
             frame, window, n = strongest_rules(
-                wh, measure=measure, top=None if (as_json or csv_path) else top,  # type: ignore[arg-type]
+                wh,
+                measure=measure,
+                top=None if (as_json or csv_path) else top,  # type: ignore[arg-type]
                 max_antecedent=min(int(mining["max_antecedent"]), 2),  # type: ignore[call-overload]
-                progress=progress, **exploratory,  # type: ignore[arg-type]
+                progress=progress,
+                **exploratory,  # type: ignore[arg-type]
             )
             title = f"Strongest rules by {measure}, {n:,} {mining['basket']} baskets, {window}"
             correction = str(mining["correction"])
         else:
             rs = mine_rules(wh, target, sort_by=measure, progress=progress, **mining)  # type: ignore[arg-type]
             frame, window, n, correction = rs.frame, rs.window, rs.n_baskets, rs.correction
-            title = (f"Rules toward {rs.target} ({rs.level} antecedents), {n:,} "
-                     f"{rs.basket} baskets, {window}")
+            title = (
+                f"Rules toward {rs.target} ({rs.level} antecedents), {n:,} "
+                f"{rs.basket} baskets, {window}"
+            )
     if csv_path:
         write_list(rules_csv_frame(frame), csv_path, force=force)
     if as_json:
-        click.echo(rules_json(frame, {"target": target, "window": str(window), "n_baskets": n,
-                                      "correction": correction}))
+        click.echo(
+            rules_json(
+                frame,
+                {"target": target, "window": str(window), "n_baskets": n, "correction": correction},
+            )
+        )
         return
     tested = int(frame["n_tested"][0]) if frame.height else 0
-    render_rules(frame, out, title=title, limit=top, footer=[
-        f"sig: one-sided Fisher exact test, {correction}-corrected over {tested:,} rules tested "
-        "(those meeting --min-support); * = adjusted p < 0.05, ns = not significant.",
-        "conf is a historical co-purchase rate, not a take-up forecast.",
-        *([BREADTH_NOTE] if BREADTH_LIFT in frame.columns and target is not None
-          and frame[BREADTH_LIFT].is_not_null().any() else []),
-        *( [f"Wrote {frame.height:,} rules to {csv_path}."] if csv_path else [] ),
-    ])
+    render_rules(
+        frame,
+        out,
+        title=title,
+        limit=top,
+        footer=[
+            f"sig: one-sided Fisher exact test, {correction}-corrected over {tested:,} rules tested "
+            "(those meeting --min-support); * = adjusted p < 0.05, ns = not significant.",
+            "conf is a historical co-purchase rate, not a take-up forecast.",
+            *(
+                [BREADTH_NOTE]
+                if BREADTH_LIFT in frame.columns
+                and target is not None
+                and frame[BREADTH_LIFT].is_not_null().any()
+                else []
+            ),
+            *([f"Wrote {frame.height:,} rules to {csv_path}."] if csv_path else []),
+        ],
+    )
