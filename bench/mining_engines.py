@@ -88,6 +88,8 @@ def main() -> None:
     ap.add_argument("--target-share", type=float, default=0.05)
     ap.add_argument("--skip-pyfim", action="store_true")
     ap.add_argument("--skip-full", action="store_true", help="skip full frequent-itemset mining")
+    ap.add_argument("--sweep", action="store_true",
+                    help="also time target_rules for targets of several popularities")
     args = ap.parse_args()
 
     b, i = generate(args.baskets)
@@ -112,6 +114,16 @@ def main() -> None:
     mem = traced_peak_mib(lambda: target_rules(baskets, target, min_count=min_count))
     print(f"target_rules (|X|<=3)         {t_rules:8.3f} s   {rules.height:,} rules "
           f"({n_prod:,} productive; allocates at most {mem:,.0f} MiB)")
+
+    if args.sweep:
+        for share in (0.005, 0.02, 0.1, 0.2, 0.4, 1.0):
+            tg = pick_target(baskets, share)
+            t_s, out = median_time(
+                lambda tg=tg: target_rules(baskets, tg, min_count=min_count,
+                                           keep_unproductive=True), args.runs)
+            k = baskets.item_index(tg)
+            print(f"  target in {baskets.item_counts[k] / n:6.1%} of baskets: {t_s:7.3f} s, "
+                  f"{out.height:,} rules")
 
     if not args.skip_full:
         t_fi, fi = median_time(lambda: frequent_itemsets(baskets, min_count, 4), args.runs)

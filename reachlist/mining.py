@@ -108,7 +108,7 @@ ITEMSET_COLUMNS = {
 
 _U64 = np.dtype("<u8")
 _NO_LIMIT = 1 << 30
-_LINE_COST = 20.0  # cost of cutting out one basket line, in AND+popcount word operations
+_LINE_COST = 10.0  # cost of cutting out one basket line, in AND+popcount word operations
 _CUT_OVERHEAD = 20_000.0  # fixed cost of one cut, in the same unit
 _PAIR_BLOCK = 1 << 18  # words of the AND buffer in _frequent_pairs
 _PACK_BUFFER = 1 << 26  # bytes of the bit-scatter buffer in _pack_bits
@@ -466,10 +466,14 @@ def _project(baskets: Baskets, rows: np.ndarray, keep_items: np.ndarray):
     total = int(lens.sum())
     if total == 0 or n_keep == 0:
         return np.zeros((n_keep, width), dtype=_U64), np.zeros(n_keep, dtype=np.int64)
-    offsets = np.repeat(starts - (np.cumsum(lens) - lens), lens)
-    items = baskets.indices[np.arange(total, dtype=np.int64) + offsets]
+    lines = np.repeat(starts - (np.cumsum(lens) - lens), lens)
+    lines += np.arange(total, dtype=np.int64)
     local = np.repeat(np.arange(rows.size, dtype=np.int64), lens)
-    s = slot[items]
+    s = slot[baskets.indices[lines]]
+    if 4 * n_keep >= 3 * baskets.n_items:  # most items kept: send the rest to a spare row
+        s[s < 0] = n_keep
+        bits = _pack_bits(s, local, n_keep + 1, width)[:n_keep]
+        return bits, np.bincount(s, minlength=n_keep + 1)[:n_keep].astype(np.int64)
     sel = s >= 0
     s, local = s[sel], local[sel]
     return _pack_bits(s, local, n_keep, width), np.bincount(s, minlength=n_keep).astype(np.int64)
@@ -616,7 +620,9 @@ def _search(
         # successors that would stay frequent if they were independent of the item
         cut_cost = counts[k] * (mean_len + 4) * _LINE_COST + _CUT_OVERHEAD
         guess = np.count_nonzero(counts[k + 1 :] * counts[k] >= min_count * n_rows)
-        work = succ.size + (guess * guess / 2 if max_size >= 3 else 0.0)
+        work = succ.size  # rows ANDed here, and (all guessed to survive) on the levels below
+        if max_size >= 3:
+            work += guess * guess / 2 * (1.0 + (guess / 3 if max_size >= 4 else 0.0))
         if cut_cost + work * counts[k] / 64 < work * n_words:
             sub, cc = cut(k, succ)
             keep = np.flatnonzero(cc >= min_count)
@@ -648,7 +654,11 @@ def _mine_all(baskets: Baskets, min_count: int, max_size: int) -> _Found:
 
 def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> np.ndarray:
     """Number of the baskets ``rows`` (None = all) holding each itemset found (in the order of
-    ``found.matrix``): one AND + popcount per search node, on bitmaps cut to those baskets."""
+    ``found.matrix``; one extension item per group).
+
+    One AND + popcount per search node. The nodes below one first item either run on the rows
+    as they are or, when cheaper, on rows cut down to the baskets holding that first item.
+    """
     groups = [(p, e[:, 0]) for p, e, _ in found.groups]
     if not groups:
         return np.zeros(0, np.int64)
@@ -657,11 +667,42 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
     bits = baskets.bitmaps(needed) if rows is None else _project(baskets, rows, needed)[0]
     slot = np.full(baskets.n_items, -1, dtype=np.int64)
     slot[needed] = np.arange(needed.size)
+    n_words = bits.shape[1]
+    mean_len = baskets.indices.size / max(baskets.n_baskets, 1)
+    out: list[np.ndarray | None] = [None] * len(groups)
+    by_first: dict[int, list[int]] = {}
+    for g, (prefix, ext) in enumerate(groups):
+        if prefix:
+            by_first.setdefault(prefix[0], []).append(g)
+        else:
+            out[g] = _popcounts(bits[slot[ext]])
+    for first, members in by_first.items():
+        n_first = int(_popcounts(bits[slot[first]]))
+        work = sum(groups[g][1].size + len(groups[g][0]) for g in members)
+        cut_cost = n_first * (mean_len + 4) * _LINE_COST + _CUT_OVERHEAD
+        if cut_cost + work * n_first / 64 < work * n_words:
+            # every basket of the cut holds ``first``: drop it from the prefixes
+            local = _bit_positions(bits[slot[first]])
+            items = np.unique(np.concatenate(
+                [np.array(groups[g][0][1:], dtype=np.int64) for g in members]
+                + [groups[g][1] for g in members]))
+            sub, _ = _project(baskets, local if rows is None else rows[local], items)
+            sub_slot = np.full(baskets.n_items, -1, dtype=np.int64)
+            sub_slot[items] = np.arange(items.size)
+            _count_under(sub, sub_slot, [(groups[g][0][1:], groups[g][1]) for g in members],
+                         members, out)
+        else:
+            _count_under(bits, slot, [groups[g] for g in members], members, out)
+    return np.concatenate(out)  # type: ignore[arg-type]
+
+
+def _count_under(bits: np.ndarray, slot: np.ndarray, groups: list, where: list[int],
+                 out: list) -> None:
+    """Counts of prefix + (e,) for the groups (prefix, ext), put at ``out[where[k]]``."""
     prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
-    out = []
-    for prefix, ext in groups:
+    for (prefix, ext), g in zip(groups, where, strict=True):
         if not prefix:
-            out.append(_popcounts(bits[slot[ext]]))
+            out[g] = _popcounts(bits[slot[ext]])
             continue
         row = prefix_rows.get(prefix)
         if row is None:
@@ -669,8 +710,7 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
             for k in prefix[1:]:
                 row = row & bits[slot[k]]
             prefix_rows[prefix] = row
-        out.append(_popcounts(bits[slot[ext]] & row))
-    return np.concatenate(out) if out else np.zeros(0, np.int64)
+        out[g] = _popcounts(bits[slot[ext]] & row)
 
 
 # --------------------------------------------------------------------------------------------

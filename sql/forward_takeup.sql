@@ -10,15 +10,29 @@
 -- (returns cancel purchases), exact duplicate lines count once, SKUs missing from products are
 -- ignored. Nothing at or after :outcome_until is read; with :outcome_until = :cutoff the query
 -- reads nothing after the cutoff and every customer has bought = 0.
-WITH clean_lines AS (
-    SELECT DISTINCT order_id, sku, quantity, net_amount
-    FROM order_lines
+WITH window_orders AS (
+    -- only orders that can matter: the breadth window up to the end of the outcome horizon
+    SELECT order_id, customer_id, ordered_at
+    FROM orders
+    WHERE ordered_at >= :breadth_since AND ordered_at < :outcome_until
+),
+target_orders AS (
+    -- plus every earlier order, for the target's own SKUs only (to know who held it before)
+    SELECT order_id, customer_id, ordered_at
+    FROM orders
+    WHERE ordered_at < :outcome_until
 ),
 lines AS (
-    SELECT o.customer_id, o.ordered_at, l.sku, l.quantity
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at < :outcome_until
+    -- exact duplicate lines count once
+    SELECT DISTINCT o.customer_id, o.ordered_at, l.order_id, l.sku, l.quantity, l.net_amount
+    FROM order_lines AS l
+    JOIN window_orders AS o ON o.order_id = l.order_id
+),
+target_lines AS (
+    SELECT DISTINCT o.customer_id, o.ordered_at, l.order_id, l.sku, l.quantity, l.net_amount
+    FROM order_lines AS l
+    JOIN target_orders AS o ON o.order_id = l.order_id
+    WHERE l.sku IN (SELECT sku FROM products WHERE {target_level} = :target)
 ),
 held_before AS (
     -- SKUs each customer holds in the breadth window
@@ -33,11 +47,6 @@ breadth AS (
     FROM held_before AS h
     JOIN products AS p ON p.sku = h.sku
     GROUP BY h.customer_id
-),
-target_lines AS (
-    SELECT customer_id, ordered_at, sku, quantity
-    FROM lines
-    WHERE sku IN (SELECT sku FROM products WHERE {target_level} = :target)
 ),
 had_target AS (
     SELECT DISTINCT customer_id
