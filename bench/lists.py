@@ -69,20 +69,24 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--warehouse", default=str(HERE / "results" / "garden-1000000.duckdb"))
     parser.add_argument("--repeats", type=int, default=2)
+    parser.add_argument("--extra", default="", help="options added to sizes and build, e.g. "
+                        "'--cutoffs 2' or '--no-estimate'")
     opts = parser.parse_args()
     if not Path(opts.warehouse).exists():
         sys.exit(
             f"{opts.warehouse} does not exist; build it with "
             f"`reachlist sample --customers 1000000 --out {opts.warehouse}`"
         )
-    print(f"warehouse {opts.warehouse}, {opts.repeats} repeat(s), median wall time")
+    extra = opts.extra.split()
+    print(f"warehouse {opts.warehouse}, {opts.repeats} repeat(s), median wall time, "
+          f"options: {' '.join(extra) or '(defaults)'}")
     failed = False
     with tempfile.TemporaryDirectory() as tmp:
         for label, target_args in CASES:
             for command in ("sizes", "build"):
                 runs = []
                 for i in range(opts.repeats):
-                    args = [REACHLIST, command, *target_args, "-w", opts.warehouse]
+                    args = [REACHLIST, command, *target_args, "-w", opts.warehouse, *extra]
                     if command == "build":
                         args += ["--out", f"{tmp}/list-{i}.parquet", "--force",
                                  "--state", f"{tmp}/state.duckdb", "--replace",

@@ -39,6 +39,7 @@ from reachlist.estimate import (
     Calibrated,
     HoldoutPlanning,
     TakeUpReport,
+    MAX_CUTOFFS,
     calibrate_audience,
     holdout_planning,
 )
@@ -110,6 +111,9 @@ class ListRequest:
     # library computes it only when asked; the CLI asks by default (--no-estimate skips it).
     estimate: bool = False
     horizon_days: int = DEFAULT_HORIZON
+    # Past cutoffs the estimate is calibrated on (each costs one pass over the order history;
+    # on very large warehouses fewer cutoffs keep a preview quick, with a wider interval).
+    cutoffs: int = MAX_CUTOFFS
     # Rules whose own audience after exclusions is smaller are not proposed (0: no minimum;
     # the CLI's --min-audience defaults to DEFAULT_MIN_AUDIENCE).
     min_audience: int = 0
@@ -300,6 +304,11 @@ def plan_list(
         raise InputError(
             f"Expected --cap-days of at least 0, found {request.cap_days}.",
             hint="pass --cap-days 14, or 0 to switch the frequency cap off",
+        )
+    if request.cutoffs < 1:
+        raise InputError(
+            f"Expected --cutoffs of at least 1, found {request.cutoffs}.",
+            hint="pass --cutoffs 3 for a quick estimate on a large warehouse, or --no-estimate",
         )
     if request.horizon_days < 1:
         raise InputError(
@@ -574,6 +583,7 @@ def _calibrate(
             spec=plan.spec,
             customers=kept["customer_id"],
             horizon_days=plan.request.horizon_days,
+            max_cutoffs=plan.request.cutoffs,
         )
     except ReachlistError as exc:
         return None, f"unavailable: {exc.message}"

@@ -104,3 +104,15 @@ def test_clearance_is_sized_by_calibrated_buyers(pristine: Path) -> None:
     assert c.customers > naive.clearance.customers
     cli = run("sizes", FLEECE, "-w", str(pristine), "--purpose", "clear", "--stock", "5")
     assert "at calibrated expected buyers within 30 days" in cli.output
+
+
+def test_cutoffs_option_limits_the_backtests(tmp_path_factory: pytest.TempPathFactory) -> None:
+    from reachlist.sample import build_sample
+
+    path = tmp_path_factory.mktemp("cut") / "g.duckdb"
+    build_sample(path)
+    result = CliRunner().invoke(main, ["sizes", "GP20-101", "-w", str(path), "--cutoffs", "2"])
+    assert result.exit_code == 0, result.output
+    assert "2 cutoffs" in result.output
+    bad = CliRunner().invoke(main, ["sizes", "GP20-101", "-w", str(path), "--cutoffs", "0"])
+    assert bad.exit_code == 2

@@ -12,7 +12,7 @@ from reachlist.audience import RANK_MEASURES, Filters
 from reachlist.cli import err, main, out, warehouse_options
 from reachlist.cli.mining import mining_options
 from reachlist.cli.progress import delayed_status
-from reachlist.estimate import DEFAULT_HORIZON
+from reachlist.estimate import DEFAULT_HORIZON, MAX_CUTOFFS
 from reachlist.holdout import DEFAULT_SHARE
 from reachlist.lists import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, ListRequest
 from reachlist.warehouse import Warehouse
@@ -81,6 +81,10 @@ def estimate_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     fn = click.option("--no-estimate", is_flag=True,
                       help="Skip the take-up estimate (a quicker preview; a clearance is then "
                       "sized by the co-purchase rate).")(fn)
+    fn = click.option("--cutoffs", default=MAX_CUTOFFS, show_default=True,
+                      type=click.IntRange(1), metavar="N",
+                      help="Past cutoffs the estimate is calibrated on; fewer is quicker on a "
+                      "large warehouse, with a wider interval.")(fn)
     return click.option("--horizon", "horizon_days", default=DEFAULT_HORIZON, show_default=True,
                         type=click.IntRange(1), metavar="DAYS",
                         help="Expected buyers within this many days.")(fn)
@@ -113,6 +117,7 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         min_audience=opts.get("min_audience", 0),
         estimate="no_estimate" in opts and not opts["no_estimate"],
         horizon_days=opts.get("horizon_days", DEFAULT_HORIZON),
+        cutoffs=opts.get("cutoffs", MAX_CUTOFFS),
     )
 
 

@@ -28,6 +28,9 @@ _json = click.option("--json", "as_json", is_flag=True, help="Print JSON instead
 @mining_options
 @list_options
 @_horizon
+@click.option("--cutoffs", default=13, show_default=True, type=click.IntRange(1), metavar="N",
+              help="Past cutoffs the estimate is calibrated on; fewer is quicker on a large "
+              "warehouse, with a wider interval.")
 @click.option("--uplift", default=0.5, show_default=True, type=click.FloatRange(0, min_open=True),
               help="Relative uplift the holdout should detect (0.5 = +50%).")
 @click.option("--state", default=None, metavar="PATH",
@@ -50,7 +53,8 @@ def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state
             progress("Backtesting the estimate")
             report = estimate_takeup(wh, plan.target, spec=plan.spec,
                                      customers=outcome.treatment["customer_id"],
-                                     horizon_days=horizon_days)
+                                     horizon_days=horizon_days,
+                                     max_cutoffs=plan.request.cutoffs)
     finally:
         if log is not None:
             log.close()
