@@ -36,10 +36,10 @@ from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
+    MAX_CUTOFFS,
     Calibrated,
     HoldoutPlanning,
     TakeUpReport,
-    MAX_CUTOFFS,
     calibrate_audience,
     holdout_planning,
 )
