@@ -51,6 +51,7 @@ from reachlist.targets import (
     LEVEL_COLUMN,
     Target,
     check_level,
+    item_buyers_query,
     mining_window,
     parse_target,
     resolve_target,
@@ -417,13 +418,13 @@ def item_facts(wh: Warehouse, item: Target) -> dict[str, Any]:
     return wh.fetch(q).row(0, named=True)
 
 
+HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
+
+
 def item_buyers(wh: Warehouse, item: Target, until: datetime) -> tuple[int, float]:
     """Customers holding ``item`` before ``until`` and the net units they hold."""
-    q = Query.from_template(
-        "item_units", {"item": item.name, "until": until}, level=LEVEL_COLUMN[item.level]
-    )
-    buyers, units = wh.fetch(q).row(0)
-    return int(buyers or 0), float(units or 0)
+    held = wh.fetch(item_buyers_query(item, HISTORY_START, until))
+    return held.height, float(held["units"].sum() or 0) if held.height else 0.0
 
 
 def sensitive_items(

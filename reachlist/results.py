@@ -2,7 +2,7 @@
 
 Contacts come from the campaign log (which may live in another database than the orders); buyers
 of the target within the horizon after each contact's send time come from the warehouse
-(``sql/takeup_buyers.sql``) and are joined in memory.
+(``sql/item_buyers.sql``) and are joined in memory.
 
 >>> r = campaign_results(wh, log, "spring-mats-2026", horizon_days=30)    # doctest: +SKIP
 >>> r.sentence()                                                           # doctest: +SKIP
@@ -30,7 +30,13 @@ from reachlist.stats import (
     ratio_interval,
     wilson_interval,
 )
-from reachlist.targets import LEVEL_COLUMN, Target, Window, last_order_day, parse_target
+from reachlist.targets import (
+    Target,
+    Window,
+    item_buyers_query,
+    last_order_day,
+    parse_target,
+)
 from reachlist.warehouse import Warehouse
 
 __all__ = ["CampaignResults", "GroupTakeUp", "buyers_query", "campaign_results"]
@@ -38,11 +44,7 @@ __all__ = ["CampaignResults", "GroupTakeUp", "buyers_query", "campaign_results"]
 
 def buyers_query(target: Target, since: datetime, until: datetime) -> Query:
     """Customers who bought ``target`` in ``[since, until)`` and their net units."""
-    return Query.from_template(
-        "takeup_buyers",
-        {"target": target.name, "since": since, "until": until},
-        target_level=LEVEL_COLUMN[target.level],
-    )
+    return item_buyers_query(target, since, until)
 
 
 @dataclass(frozen=True)

@@ -184,3 +184,13 @@ def held_items_query(
         level=LEVEL_COLUMN[level],
         only_item=only_item,
     )
+
+
+def item_buyers_query(item: Target, since: datetime, until: datetime) -> Query:
+    """Customers who bought ``item`` in ``[since, until)`` and their net units
+    (sql/item_buyers.sql)."""
+    return Query.from_template(
+        "item_buyers",
+        {"item": item.name, "since": since, "until": until},
+        level=LEVEL_COLUMN[item.level],
+    )

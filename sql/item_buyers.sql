@@ -1,11 +1,13 @@
--- reachlist campaign results: customers who bought the target in [:since, :until), with the net
+-- Customers who bought an item (a SKU, category or department) in [:since, :until), with the net
 -- units they took. "Bought" follows held_items.sql: net quantity per customer and SKU inside the
 -- window is positive (a purchase returned in full does not count), exact duplicate lines count
--- once. The campaign log may live in another database, so the join to contacts happens after.
+-- once, SKUs missing from products are ignored.
+-- Used for campaign results (buyers after a send; the campaign log may live in another database,
+-- so the join to contacts happens after) and for units per buyer when sizing a clearance.
 WITH target_lines AS (
     SELECT DISTINCT order_id, sku, quantity, net_amount
     FROM order_lines
-    WHERE sku IN (SELECT sku FROM products WHERE {target_level} = :target)
+    WHERE sku IN (SELECT sku FROM products WHERE {level} = :item)
 ),
 bought_skus AS (
     SELECT o.customer_id, l.sku, sum(l.quantity) AS units
