@@ -117,7 +117,7 @@ def mine_rules(
     max_antecedent: int = 3,
     keep_unproductive: bool = False,
     correction: str = "holm",
-    sort_by: str = "lift",
+    sort_by: str = "leverage",
     progress: Progress | None = None,
 ) -> RuleSet:
     """Every rule X -> target (1..max_antecedent items at ``level``) meeting the thresholds.
@@ -341,7 +341,7 @@ def strongest_rules(
     basket: str = "customer",
     since: str | None = None,
     until: str | None = None,
-    measure: str = "lift",
+    measure: str = "leverage",
     top: int = 20,
     min_support: float = 0.01,
     min_confidence: float = 0.0,

@@ -203,7 +203,7 @@ def test_strongest_rules_across_consequents(garden: Path) -> None:
         main, ["rules", "-w", str(garden), "--level", "category", "--top", "5"]
     )
     assert result.exit_code == 0, result.output
-    assert "Strongest rules by lift" in result.output
+    assert "Strongest rules by leverage" in result.output
 
 
 @pytest.mark.postgres

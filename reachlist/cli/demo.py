@@ -37,8 +37,7 @@ def demo(directory: str) -> None:
         out.print(sample_summary(summary))
     w = ["-w", str(path)]
     campaign = ["--campaign", "demo-heated-mat"]
-    _step("1. Rules toward the heated seedling mat, by leverage (the ranking lists use)",
-          ["rules", DEMO_TARGET, *w, "--top", "5", "--by", "leverage"])
+    _step("1. Rules toward the heated seedling mat", ["rules", DEMO_TARGET, *w, "--top", "5"])
     _step("2. Preview the list", ["sizes", DEMO_TARGET, *w, *campaign])
     _step("3. Build it (the demo replaces its own earlier list and campaign)",
           ["build", DEMO_TARGET, *w, "--out", str(folder / "heated-mat.csv"), "--force",

@@ -90,7 +90,10 @@ BREADTH_NOTE = (
 @click.option(
     "--by",
     "measure",
-    default="lift",
+    # Leverage by default: sorting by lift or confidence puts chance extensions of real rules
+    # (three items, a few dozen holders) on top; leverage weighs strength and reach together,
+    # as the list builder's default ranking does.
+    default="leverage",
     show_default=True,
     type=click.Choice([*MEASURES, BREADTH_LIFT]),
     help="Sort rules by this measure (breadth_lift: toward a TARGET, customer baskets).",
