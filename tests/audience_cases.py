@@ -95,17 +95,3 @@ def build_world(path: Path) -> Path:
     con.execute("UPDATE orders SET channel = 'web' WHERE customer_id = 15")
     con.close()
     return path
-
-
-_SAMPLE: dict[str, Path] = {}
-
-
-def sample_warehouse(factory) -> Path:
-    """The default sample warehouse, built once per test session."""
-    if "default" not in _SAMPLE:
-        from reachlist.sample import build_sample
-
-        path = factory.mktemp("sample") / "garden.duckdb"
-        build_sample(path)
-        _SAMPLE["default"] = path
-    return _SAMPLE["default"]

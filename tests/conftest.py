@@ -1,8 +1,10 @@
 from __future__ import annotations
 
 import os
+import shutil
 import uuid
 from collections.abc import Iterator
+from pathlib import Path
 
 import pytest
 
@@ -42,3 +44,22 @@ def pg_schema(pg_url: str) -> Iterator[str]:
     with engine.begin() as conn:
         conn.execute(sa.text(f'DROP SCHEMA IF EXISTS "{name}" CASCADE'))
     engine.dispose()
+
+
+@pytest.fixture(scope="session")
+def pristine(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The default sample warehouse (20,000 customers, seed 7), built once per test session.
+    Open it read-only; a test that writes (a campaign log, changed orders) uses ``sample``."""
+    from reachlist.sample import build_sample
+
+    path = tmp_path_factory.mktemp("sample") / "garden.duckdb"
+    build_sample(path)
+    return path
+
+
+@pytest.fixture
+def sample(pristine: Path, tmp_path: Path) -> Path:
+    """A private, writable copy of the default sample warehouse."""
+    path = tmp_path / "garden.duckdb"
+    shutil.copy(pristine, path)
+    return path

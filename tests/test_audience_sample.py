@@ -17,31 +17,25 @@ from reachlist.rules import mine_rules
 from reachlist.sample import KEY_SKUS, PERIOD_START, planted_rules
 from reachlist.targets import Target, Window, last_order_day
 from reachlist.warehouse import Warehouse
-from tests import audience_cases as cases
 from tests import audience_reference as ref
 
 NOW = datetime(2026, 10, 1, 9, 0)
 
 
 @pytest.fixture(scope="module")
-def sample(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return cases.sample_warehouse(tmp_path_factory)
+def tables(pristine: Path) -> dict[str, pl.DataFrame]:
+    return ref.load(pristine)
 
 
 @pytest.fixture(scope="module")
-def tables(sample: Path) -> dict[str, pl.DataFrame]:
-    return ref.load(sample)
-
-
-@pytest.fixture(scope="module")
-def wh(sample: Path) -> Warehouse:
-    with Warehouse.open(sample, read_only=True) as w:
+def wh(pristine: Path) -> Warehouse:
+    with Warehouse.open(pristine, read_only=True) as w:
         yield w
 
 
 @pytest.mark.parametrize("planted", planted_rules(), ids=lambda r: r["rule_id"])
 def test_planted_rule_audience_is_who_the_generator_planted(
-    wh: Warehouse, sample: Path, planted: dict
+    wh: Warehouse, pristine: Path, planted: dict
 ) -> None:
     """Over the whole history, "holds the antecedent and lacks the target" must pick out exactly
     the customers the generator made antecedent holders without the target (sample_planted).
@@ -56,7 +50,7 @@ def test_planted_rule_audience_is_who_the_generator_planted(
     got = wh.fetch(audience_query(spec))
     reached = set(got["customer_id"].to_list())
     lacking = set(got.filter(~pl.col("has_target"))["customer_id"].to_list())
-    con = duckdb.connect(str(sample), read_only=True)
+    con = duckdb.connect(str(pristine), read_only=True)
     try:
         rows = con.execute(
             "SELECT customer_id, target_purchases - target_full_returns AS held "

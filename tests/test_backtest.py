@@ -1,4 +1,3 @@
-# ruff: noqa: F811  (the shared session fixture is imported, then requested by name)
 """Backtests on the sample warehouse: the estimator recovers planted take-up, naive confidence
 overshoots, and nothing after the cutoff leaks into the audience or the estimate."""
 
@@ -17,15 +16,14 @@ from reachlist.backtest import Backtest, backtest
 from reachlist.cli import main
 from reachlist.render.takeup import gains_chart_text, gains_svg
 from reachlist.warehouse import Warehouse
-from tests.takeup_fixtures import takeup_sample  # noqa: F401
 
 CUTOFF = "2026-07-01"
 CUTS = 8  # calibration cutoffs: 7 monthly backtests per audience, enough and fast
 
 
 @pytest.fixture(scope="module")
-def mat_backtest(takeup_sample: Path) -> Backtest:
-    with Warehouse.open(takeup_sample, read_only=True) as wh:
+def mat_backtest(pristine: Path) -> Backtest:
+    with Warehouse.open(pristine, read_only=True) as wh:
         return backtest(wh, "SG04-104", cutoff=CUTOFF, max_cutoffs=CUTS)
 
 
@@ -54,10 +52,10 @@ def test_combined_list_estimate_and_naive(mat_backtest: Backtest) -> None:
     assert mat_backtest.gains["cum_share_buyers"][0] > mat_backtest.gains["cum_share_customers"][0]
 
 
-def test_no_leakage_after_cutoff(takeup_sample: Path, tmp_path: Path,
+def test_no_leakage_after_cutoff(pristine: Path, tmp_path: Path,
                                  mat_backtest: Backtest) -> None:
     changed = tmp_path / "changed.duckdb"
-    shutil.copy(takeup_sample, changed)
+    shutil.copy(pristine, changed)
     con = duckdb.connect(str(changed))
     # Every audience customer buys the target right after the cutoff, and later orders vanish.
     ids = mat_backtest.calibration.members(0)["customer_id"].head(300).to_list()
@@ -90,10 +88,10 @@ def test_gains_chart_text_and_svg(mat_backtest: Backtest) -> None:
     assert svg.startswith("<svg") and "Gains &lt;mat&gt;" in svg and svg.count("<polyline") == 2
 
 
-def test_backtest_cli_json(takeup_sample: Path, tmp_path: Path) -> None:
+def test_backtest_cli_json(pristine: Path, tmp_path: Path) -> None:
     chart = tmp_path / "gains.svg"
     res = CliRunner().invoke(main, ["backtest", "TW18-101", "--cutoff", CUTOFF, "-w",
-                                    str(takeup_sample), "--json", "--chart", str(chart),
+                                    str(pristine), "--json", "--chart", str(chart),
                                     "--top", "2"])
     assert res.exit_code == 0, res.output
     data = json.loads(res.output)
@@ -102,7 +100,7 @@ def test_backtest_cli_json(takeup_sample: Path, tmp_path: Path) -> None:
     assert chart.read_text().startswith("<svg")
 
 
-def test_backtest_cli_bad_cutoff(takeup_sample: Path) -> None:
+def test_backtest_cli_bad_cutoff(pristine: Path) -> None:
     res = CliRunner().invoke(main, ["backtest", "SG04-104", "--cutoff", "2026-07-01x", "-w",
-                                    str(takeup_sample)])
+                                    str(pristine)])
     assert res.exit_code != 0 and "Expected --cutoff as a date" in res.output

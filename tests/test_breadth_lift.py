@@ -20,7 +20,6 @@ from reachlist.sample import KEY_SKUS
 from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
 from reachlist.targets import held_items_query
 from reachlist.warehouse import Warehouse
-from tests import audience_cases as cases
 
 MAT = KEY_SKUS["heated_mat"]  # SG04-104
 PLANTED = [KEY_SKUS["seed_compost"], KEY_SKUS["propagator"]]  # PC06-101 + SG04-101 -> SG04-104
@@ -30,13 +29,8 @@ UNRELATED = [KEY_SKUS["patio_cleaner"]]  # OL26-101
 
 
 @pytest.fixture(scope="module")
-def sample(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return cases.sample_warehouse(tmp_path_factory)
-
-
-@pytest.fixture(scope="module")
-def ruleset(sample: Path) -> RuleSet:
-    with Warehouse.open(sample, read_only=True) as wh:
+def ruleset(pristine: Path) -> RuleSet:
+    with Warehouse.open(pristine, read_only=True) as wh:
         return mine_rules(wh, MAT)
 
 
@@ -81,9 +75,9 @@ def _reference_tables(wh: Warehouse, rs: RuleSet, antecedent: list[str]) -> np.n
 
 @pytest.mark.parametrize("antecedent", [PLANTED, UNRELATED])
 def test_breadth_lift_is_the_mantel_haenszel_risk_ratio_of_the_strata(
-    sample: Path, ruleset: RuleSet, antecedent: list[str]
+    pristine: Path, ruleset: RuleSet, antecedent: list[str]
 ) -> None:
-    with Warehouse.open(sample, read_only=True) as wh:
+    with Warehouse.open(pristine, read_only=True) as wh:
         expected = _reference_tables(wh, ruleset, antecedent)
         baskets = load_baskets(wh, ruleset.target, "sku", "customer", ruleset.window)
         breadth = basket_breadth(wh, baskets, ruleset.target, "sku", ruleset.window)
@@ -96,25 +90,25 @@ def test_breadth_lift_is_the_mantel_haenszel_risk_ratio_of_the_strata(
     assert value == pytest.approx(reference, rel=1e-10)
 
 
-def test_rules_shows_and_ranks_by_breadth_lift(sample: Path) -> None:
-    result = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--by", "breadth_lift",
+def test_rules_shows_and_ranks_by_breadth_lift(pristine: Path) -> None:
+    result = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--by", "breadth_lift",
                                        "--top", "5", "--json"])
     assert result.exit_code == 0, result.output
     rules = json.loads(result.stdout)["rules"]
     values = [r["breadth_lift"] for r in rules if r["breadth_lift"] is not None]
     assert values == sorted(values, reverse=True)
-    table = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--top", "5"])
+    table = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--top", "5"])
     assert "b.lift" in table.output and "added value over shopping breadth" in table.output
-    none = CliRunner().invoke(main, ["rules", "-w", str(sample), "--by", "breadth_lift"])
+    none = CliRunner().invoke(main, ["rules", "-w", str(pristine), "--by", "breadth_lift"])
     assert none.exit_code == 2 and none.output.startswith("Error:")
-    orders = CliRunner().invoke(main, ["rules", MAT, "-w", str(sample), "--basket", "order",
+    orders = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--basket", "order",
                                        "--by", "breadth_lift"])
     assert orders.exit_code == 2 and "--basket customer" in orders.output
 
 
-def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(sample: Path,
+def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(pristine: Path,
                                                                ruleset: RuleSet) -> None:
-    with Warehouse.open(sample, read_only=True) as wh:
+    with Warehouse.open(pristine, read_only=True) as wh:
         by_breadth = plan_list(wh, ListRequest(MAT, rank_by="breadth_lift", campaign_id="b"),
                                rules=ruleset)
         values = [r.breadth_lift for r in by_breadth.rules]
@@ -131,10 +125,10 @@ def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(sample: Path,
     assert all(rr.kept >= cut for rr in trimmed.per_rule or [])
     assert any(n.startswith("Not proposed") and f"--min-audience {cut:,}" in n
                for n in trimmed.plan.notes)
-    with Warehouse.open(sample, read_only=True) as wh, pytest.raises(EmptyResultError,
+    with Warehouse.open(pristine, read_only=True) as wh, pytest.raises(EmptyResultError,
                                                                      match="--min-audience"):
         preview_list(wh, plan_list(wh, ListRequest(MAT, min_audience=10**6), rules=ruleset))
-    out = CliRunner().invoke(main, ["sizes", MAT, "-w", str(sample), "--no-estimate",
+    out = CliRunner().invoke(main, ["sizes", MAT, "-w", str(pristine), "--no-estimate",
                                     "--min-audience", str(cut)])
     assert out.exit_code == 0, out.output
     assert "Not proposed" in out.output and "b.lift" in out.output

@@ -1,4 +1,3 @@
-# ruff: noqa: F811  (the shared session fixture is imported, then requested by name)
 """Take-up estimates on the sample warehouse, and the holdout planning lines."""
 
 from __future__ import annotations
@@ -15,21 +14,20 @@ from reachlist.errors import InputError
 from reachlist.estimate import estimate_takeup, forward_query, holdout_planning
 from reachlist.targets import Target
 from reachlist.warehouse import Warehouse
-from tests.takeup_fixtures import takeup_sample  # noqa: F401
 
 HEATED_MAT = Target("sku", "SG04-104")
 CUTOFF = datetime(2026, 7, 1)  # history up to and including 2026-06-30
 
 
-def test_forward_query_recovers_planted_holder_rate(takeup_sample: Path) -> None:
+def test_forward_query_recovers_planted_holder_rate(pristine: Path) -> None:
     # Source: sample_warehouse/README.md, "Measured on the default build": heated-mat holders
     # lacking the target at cutoff 2026-06-30, n = 192 who never bought it, planted 30-day take-up
     # 0.25, checked within 4 binomial SE ("Tolerances"). Under net holding, customers who returned
     # the mat in full lack it again (the README: "returns re-open the hazard"), so n is a little
     # larger here.
-    with Warehouse.open(takeup_sample, read_only=True) as wh:
+    with Warehouse.open(pristine, read_only=True) as wh:
         people = wh.fetch(forward_query(HEATED_MAT, CUTOFF, datetime(2026, 7, 31)))
-    con = duckdb.connect(str(takeup_sample), read_only=True)
+    con = duckdb.connect(str(pristine), read_only=True)
     holders = con.sql(
         "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
         "AND antecedent_held_at < TIMESTAMP '2026-07-01'"
@@ -41,8 +39,8 @@ def test_forward_query_recovers_planted_holder_rate(takeup_sample: Path) -> None
     assert abs(rate - 0.25) <= 4 * math.sqrt(0.25 * 0.75 / held.height)
 
 
-def test_forward_query_reads_nothing_after_outcome_window(takeup_sample: Path) -> None:
-    with Warehouse.open(takeup_sample, read_only=True) as wh:
+def test_forward_query_reads_nothing_after_outcome_window(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh:
         snap = wh.fetch(forward_query(HEATED_MAT, CUTOFF, CUTOFF))
         with pytest.raises(InputError, match="Expected the outcome window"):
             forward_query(HEATED_MAT, CUTOFF, datetime(2026, 6, 1))
@@ -50,14 +48,14 @@ def test_forward_query_reads_nothing_after_outcome_window(takeup_sample: Path) -
     assert snap["breadth"].min() >= 0
 
 
-def test_estimate_from_customer_ids(takeup_sample: Path) -> None:
-    con = duckdb.connect(str(takeup_sample), read_only=True)
+def test_estimate_from_customer_ids(pristine: Path) -> None:
+    con = duckdb.connect(str(pristine), read_only=True)
     ids = con.sql(
         "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
         "AND antecedent_held_at < TIMESTAMP '2026-07-01' ORDER BY 1"
     ).pl()["customer_id"]
     con.close()
-    with Warehouse.open(takeup_sample, read_only=True) as wh:
+    with Warehouse.open(pristine, read_only=True) as wh:
         r = estimate_takeup(wh, HEATED_MAT, customers=ids, as_of=CUTOFF, max_cutoffs=6)
     assert 192 <= r.audience <= 200 and r.already_hold == ids.n_unique() - r.audience
     e = r.expected
@@ -70,8 +68,8 @@ def test_estimate_from_customer_ids(takeup_sample: Path) -> None:
     assert r.units_per_buyer >= 1
 
 
-def test_estimate_needs_an_audience(takeup_sample: Path) -> None:
-    with Warehouse.open(takeup_sample, read_only=True) as wh, pytest.raises(InputError):
+def test_estimate_needs_an_audience(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh, pytest.raises(InputError):
         estimate_takeup(wh, HEATED_MAT)
 
 
@@ -100,8 +98,8 @@ def test_holdout_planning_small_list_says_so() -> None:
     )
 
 
-def test_report_as_dict_is_plain(takeup_sample: Path) -> None:
-    with Warehouse.open(takeup_sample, read_only=True) as wh:
+def test_report_as_dict_is_plain(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh:
         r = estimate_takeup(
             wh,
             HEATED_MAT,

@@ -2,12 +2,10 @@
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
 import duckdb
 import polars as pl
-import pytest
 from click.testing import CliRunner
 
 from reachlist.campaigns import CampaignLog
@@ -19,18 +17,6 @@ from tests import audience_cases as cases
 
 MAT = KEY_SKUS["heated_mat"]
 CAUTION_START = CAUTION[:40]
-
-
-@pytest.fixture(scope="module")
-def pristine(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return cases.sample_warehouse(tmp_path_factory)
-
-
-@pytest.fixture
-def sample(pristine: Path, tmp_path: Path) -> Path:
-    path = tmp_path / "garden.duckdb"
-    shutil.copy(pristine, path)
-    return path
 
 
 def run(*args: str) -> object:

@@ -1,4 +1,3 @@
-# ruff: noqa: F811  (the shared session fixture is imported, then requested by name)
 """Campaign results on a hand-made campaign in the sample warehouse."""
 
 from __future__ import annotations
@@ -20,16 +19,15 @@ from reachlist.errors import InputError
 from reachlist.results import campaign_results
 from reachlist.stats import difference_interval
 from reachlist.warehouse import Warehouse
-from tests.takeup_fixtures import takeup_sample  # noqa: F401
 
 SENT = datetime(2026, 6, 1)
 
 
 @pytest.fixture(scope="module")
-def state(takeup_sample: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
+def state(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A campaign log in a local state file: heated-mat holders lacking the mat on 2026-06-01,
     every fourth one held out."""
-    con = duckdb.connect(str(takeup_sample), read_only=True)
+    con = duckdb.connect(str(pristine), read_only=True)
     ids = con.sql(
         "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
         "AND antecedent_held_at < TIMESTAMP '2026-06-01' "
@@ -47,7 +45,7 @@ def state(takeup_sample: Path, tmp_path_factory: pytest.TempPathFactory) -> Path
     )
     path = tmp_path_factory.mktemp("state") / "state.duckdb"
     with (
-        Warehouse.open(takeup_sample, read_only=True) as wh,
+        Warehouse.open(pristine, read_only=True) as wh,
         CampaignLog.open(wh, str(path)) as log,
     ):
         # The record carries the rules and window, as build_list logs them, so the estimate can
@@ -65,15 +63,15 @@ def state(takeup_sample: Path, tmp_path_factory: pytest.TempPathFactory) -> Path
     return path
 
 
-def test_results_against_direct_count(takeup_sample: Path, state: Path) -> None:
+def test_results_against_direct_count(pristine: Path, state: Path) -> None:
     with (
-        Warehouse.open(takeup_sample, read_only=True) as wh,
+        Warehouse.open(pristine, read_only=True) as wh,
         CampaignLog.open(wh, str(state)) as log,
     ):
         r = campaign_results(wh, log, "mats-hand", horizon_days=30)
         contacts = log.contacts("mats-hand")
     # Independent count: first purchases of the mat recorded by the generator (sample_planted).
-    con = duckdb.connect(str(takeup_sample), read_only=True)
+    con = duckdb.connect(str(pristine), read_only=True)
     truth = con.sql(
         "SELECT DISTINCT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
         "AND target_bought_at >= TIMESTAMP '2026-06-01' "
@@ -98,17 +96,17 @@ def test_results_against_direct_count(takeup_sample: Path, state: Path) -> None:
     assert r.complete
 
 
-def test_results_unknown_campaign(takeup_sample: Path, state: Path) -> None:
+def test_results_unknown_campaign(pristine: Path, state: Path) -> None:
     with (
-        Warehouse.open(takeup_sample, read_only=True) as wh,
+        Warehouse.open(pristine, read_only=True) as wh,
         CampaignLog.open(wh, str(state)) as log,
         pytest.raises(InputError, match="no such campaign"),
     ):
         campaign_results(wh, log, "nope")
 
 
-def test_results_cli(takeup_sample: Path, state: Path) -> None:
-    args = ["results", "mats-hand", "-w", str(takeup_sample), "--state", str(state)]
+def test_results_cli(pristine: Path, state: Path) -> None:
+    args = ["results", "mats-hand", "-w", str(pristine), "--state", str(state)]
     res = CliRunner().invoke(main, [*args, "--no-estimate"])
     assert res.exit_code == 0, res.output
     assert "treatment" in res.output and "holdout" in res.output and "holdout" in res.output

@@ -14,17 +14,15 @@ from click.testing import CliRunner
 from reachlist.cli import main
 from reachlist.errors import EmptyResultError, InputError
 from reachlist.rules import mine_rules
-from reachlist.sample import build_sample, planted_rules
+from reachlist.sample import planted_rules
 from reachlist.schema import Mapping
 from reachlist.warehouse import Warehouse
 from tests import handmade as hm
 
 
 @pytest.fixture(scope="module")
-def garden(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    path = tmp_path_factory.mktemp("rules") / "garden.duckdb"
-    build_sample(path)
-    return path
+def garden(pristine: Path) -> Path:
+    return pristine
 
 
 # Confidence of each planted rule over the 12 months ending 2026-09-30, as documented in

@@ -3,10 +3,8 @@ confidence as take-up; build logs the estimate; a clearance is sized by calibrat
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
-import pytest
 from click.testing import CliRunner
 
 from reachlist.campaigns import CampaignLog
@@ -14,22 +12,9 @@ from reachlist.cli import main
 from reachlist.lists import ListRequest, plan_list, preview_list
 from reachlist.sample import KEY_SKUS
 from reachlist.warehouse import Warehouse
-from tests import audience_cases as cases
 
 MAT = KEY_SKUS["heated_mat"]
 FLEECE = KEY_SKUS["frost_fleece"]
-
-
-@pytest.fixture(scope="module")
-def pristine(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return cases.sample_warehouse(tmp_path_factory)
-
-
-@pytest.fixture
-def sample(pristine: Path, tmp_path: Path) -> Path:
-    path = tmp_path / "garden.duckdb"
-    shutil.copy(pristine, path)
-    return path
 
 
 def run(*args: str):  # type: ignore[no-untyped-def]
@@ -106,11 +91,8 @@ def test_clearance_is_sized_by_calibrated_buyers(pristine: Path) -> None:
     assert "at calibrated expected buyers within 30 days" in cli.output
 
 
-def test_cutoffs_option_limits_the_backtests(tmp_path_factory: pytest.TempPathFactory) -> None:
-    from reachlist.sample import build_sample
-
-    path = tmp_path_factory.mktemp("cut") / "g.duckdb"
-    build_sample(path)
+def test_cutoffs_option_limits_the_backtests(pristine: Path) -> None:
+    path = pristine
     result = CliRunner().invoke(main, ["sizes", "GP20-101", "-w", str(path), "--cutoffs", "2"])
     assert result.exit_code == 0, result.output
     assert "2 cutoffs" in result.output
