@@ -56,7 +56,14 @@ from reachlist.stats import (
     minimum_detectable_uplift,
     rule_weight,
 )
-from reachlist.targets import LEVEL_COLUMN, Target, Window, _as_datetime, last_order_day
+from reachlist.targets import (
+    LEVEL_COLUMN,
+    Target,
+    Window,
+    _as_datetime,
+    first_order_time,
+    last_order_day,
+)
 from reachlist.warehouse import Warehouse
 
 __all__ = [
@@ -186,16 +193,6 @@ class TakeUpReport:
 
 
 # -- history ------------------------------------------------------------------------------------
-def _first_order(wh: Warehouse) -> datetime:
-    first = wh.scalar(Query("SELECT min(ordered_at) AS first FROM orders", label="first order"))
-    if first is None:
-        raise InputError(
-            "Expected order history, found no orders in the warehouse.",
-            hint="load orders first; `reachlist check` shows what the warehouse holds",
-        )
-    return _as_datetime(first, "the first order time")
-
-
 def _cutoffs(first: datetime, as_of: datetime, horizon: int, most: int) -> list[datetime]:
     """``as_of - horizon``, then one horizon further back each time, while history allows."""
     out: list[datetime] = []
@@ -326,7 +323,7 @@ def _history(
     ids: pl.Series | None,
     max_cutoffs: int,
 ) -> _History:
-    ats = _cutoffs(_first_order(wh), as_of, horizon, max_cutoffs)
+    ats = _cutoffs(first_order_time(wh), as_of, horizon, max_cutoffs)
     if not ats:
         raise EmptyResultError(
             f"Expected at least {MIN_HISTORY_DAYS + horizon} days of order history before "

@@ -133,14 +133,24 @@ def _as_datetime(value: date | datetime | str, what: str) -> datetime:
         ) from None
 
 
-def last_order_day(wh: Warehouse) -> datetime:
-    last = wh.scalar(Query("SELECT max(ordered_at) AS last FROM orders", label="last order"))
-    if last is None:
+def _order_time(wh: Warehouse, aggregate: str) -> datetime:
+    """The first (min) or last (max) order time; one clear error when there are no orders."""
+    value = wh.scalar(Query(f"SELECT {aggregate}(ordered_at) AS t FROM orders", label="order time"))
+    if value is None:
         raise InputError(
             "Expected order history, found no orders in the warehouse.",
             hint="load orders first; `reachlist check` shows what the warehouse holds",
         )
-    last = _as_datetime(last, "the last order time")
+    return _as_datetime(value, "an order time")
+
+
+def first_order_time(wh: Warehouse) -> datetime:
+    return _order_time(wh, "min")
+
+
+def last_order_day(wh: Warehouse) -> datetime:
+    """The day after the last order: the default end of every window."""
+    last = _order_time(wh, "max")
     return datetime(last.year, last.month, last.day) + timedelta(days=1)
 
 
