@@ -20,6 +20,7 @@ import pytest
 from scipy.stats import fisher_exact
 
 from reachlist.mining import Baskets, frequent_itemsets, target_rules, top_rules
+from tests.reference_data import check_values
 
 pd = pytest.importorskip("pandas")
 fp = pytest.importorskip("mlxtend.frequent_patterns")
@@ -119,13 +120,7 @@ def test_pyfim_quirk_fim1_itemset_in_every_basket() -> None:
 
 
 def _quirks() -> list[dict]:
-    import json
-    from pathlib import Path
-
-    path = Path(__file__).parents[2] / "shared" / "reference" / "check-values.json"
-    if not path.is_file():
-        pytest.skip(f"reference check values not found at {path}")
-    return json.loads(path.read_text())["library_quirks"]
+    return check_values()["library_quirks"]
 
 
 def _targets() -> list[str]:

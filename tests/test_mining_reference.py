@@ -13,10 +13,8 @@ whose id contains "from memory", and its messages say so.
 
 from __future__ import annotations
 
-import json
 import math
 from fractions import Fraction
-from pathlib import Path
 
 import polars as pl
 import pytest
@@ -28,11 +26,9 @@ from reachlist.mining import (
     target_rules,
     top_rules,
 )
+from tests.reference_data import check_values
 
-REFERENCE = Path(__file__).parents[2] / "shared" / "reference" / "check-values.json"
-if not REFERENCE.is_file():
-    pytest.skip(f"reference check values not found at {REFERENCE}", allow_module_level=True)
-DATA = json.loads(REFERENCE.read_text())
+DATA = check_values()  # tests/data/reference/check-values.json, a copy of the shared values
 EXAMPLES = {e["id"]: e for e in DATA["examples"]}
 
 # Source of each example (shortened from check-values.json `source`):
