@@ -53,6 +53,7 @@ from reachlist.targets import (
     check_level,
     item_buyers_query,
     mining_window,
+    order_history,
     parse_target,
     resolve_target,
 )
@@ -331,8 +332,12 @@ def plan_list(
     rules_target = (
         resolve_target(wh, parse_target(request.stand_in)) if request.stand_in else target
     )
-    window = rules.window if rules is not None else mining_window(wh, request.since, request.until)
-    notes: list[str] = []
+    history = order_history(wh, now.date())
+    if rules is not None:
+        window = rules.window
+    else:
+        window = mining_window(wh, request.since, request.until, history=history)
+    notes: list[str] = history.notes(default_end=rules is None and request.until is None)
     if rules_target != target:
         notes.append(
             f"Rules and scores are borrowed from the stand-in {rules_target}: {target} is "
@@ -475,7 +480,7 @@ def _excluded(
         flag = pl.lit(False)
     frame = frame.with_columns(flag.alias("contacted_recently"))
 
-    in_use = {"has_target"}
+    in_use = {"has_target", "returned_target"}
     notes: dict[str, str] = {}
     if req.ignore_consent:
         notes["no_consent"] = "switched off (--ignore-consent)"

@@ -162,3 +162,23 @@ def test_overlap_flags_items_that_sell_together(sample: Path) -> None:
     assert f"{KEY_SKUS['pressure_washer']} + {KEY_SKUS['patio_cleaner']}" in result.output
     assert "Advice:" in result.output and "holm-corrected" in result.output
     assert "2 to 15" in one_error_line(run("overlap", MAT, "-w", str(sample)))
+
+
+def test_orders_without_customer_or_from_the_future_do_not_break_sizes(sample: Path) -> None:
+    con = duckdb.connect(str(sample))
+    # the sample declares orders.customer_id NOT NULL; a real warehouse may not
+    con.execute("CREATE TABLE orders_copy AS SELECT * FROM orders")
+    con.execute("DROP TABLE orders")
+    con.execute("ALTER TABLE orders_copy RENAME TO orders")
+    con.execute("UPDATE orders SET customer_id = NULL WHERE order_id % 50 = 0")
+    nulls = con.execute("SELECT count(*) FROM orders WHERE customer_id IS NULL").fetchone()[0]
+    last = con.execute("SELECT max(ordered_at) FROM orders").fetchone()[0]
+    con.execute("UPDATE orders SET ordered_at = TIMESTAMP '2062-05-01 10:00' "
+                "WHERE order_id = (SELECT min(order_id) FROM orders)")
+    con.close()
+    result = run("sizes", MAT, "-w", str(sample), "--no-estimate", "--campaign", "n")
+    assert result.exit_code == 0, result.output
+    text = " ".join(result.output.split())
+    assert f"{nulls:,} order(s) have no customer id and were ignored" in text
+    assert "1 order(s) are dated after today" in text and "the latest 2062-05-01" in text
+    assert f".. {last:%Y-%m-%d} (sku items" in text  # the window still ends at the last order

@@ -1,0 +1,134 @@
+"""Lists that must not be wrong, on small hand-built warehouses: bought-and-returned customers,
+orders dated in the future, orders without a customer, duplicate customer rows, filter values
+checked against the warehouse, the contact cap over every campaign log, and CSV cells that a
+spreadsheet would run as formulas."""
+
+from __future__ import annotations
+
+from datetime import date, datetime
+from pathlib import Path
+
+import duckdb
+import polars as pl
+import pytest
+
+from reachlist.campaigns import CampaignLog
+from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.targets import Target, Window, last_order_day, mining_window, order_history
+from reachlist.warehouse import Warehouse
+from tests import audience_reference as ref
+from tests import handmade as hm
+
+NOW = datetime(2026, 1, 5, 12, 0)
+TODAY = NOW.date()
+WINDOW = Window(datetime(2025, 1, 1), datetime(2026, 1, 1))
+RULES = ref.make_ruleset(Target("sku", "T"), [("R1", ("A",), 0.4)], window=WINDOW)
+
+PRODUCTS = [hm.product("A"), hm.product("T", stock_on_hand=10), hm.product("T2", stock_on_hand=3)]
+
+
+def world(path: Path, purchases: list[tuple], customers: list[tuple] | None = None) -> Path:
+    ids = sorted({p[0] for p in purchases if p[0] is not None})
+    return hm.build(
+        path,
+        customers=customers if customers is not None else [hm.customer(c) for c in ids],
+        products=PRODUCTS,
+        purchases=purchases,
+    )
+
+
+def request(**kw: object) -> ListRequest:
+    base: dict[str, object] = {"target": "T", "campaign_id": "c1", "holdout": 0.0}
+    base.update(kw)
+    return ListRequest(**base)  # type: ignore[arg-type]
+
+
+def excluded_by(outcome) -> dict[object, str | None]:
+    return dict(outcome.customers.select("customer_id", "excluded_by").iter_rows())
+
+
+# -- bought and returned ---------------------------------------------------------------------------
+RETURNS = [
+    *[(c, "2025-03-01", "A", 1) for c in (1, 2, 3, 4, 5, 6)],
+    (1, "2025-04-01", "T", 1), (1, "2025-04-09", "T", -1),  # bought T and returned it all
+    (2, "2025-04-01", "T", 2), (2, "2025-04-09", "T", -1),  # returned half: still holds T
+    (3, "2025-04-01", "T", 1), (3, "2025-04-09", "T", -2),  # returned more than bought
+    (4, "2025-04-09", "T", -1),  # a return with no purchase on record: not a buyer
+    # 5 never touched T
+    (6, "2025-04-01", "T", 1), (6, "2025-04-09", "T", -1),
+    (6, "2025-05-01", "T2", 1),  # T2 is a different SKU: not the target
+]
+
+
+@pytest.mark.parametrize("purpose", ["introduce", "clear"])
+def test_bought_and_returned_customers_are_their_own_step(tmp_path: Path, purpose: str) -> None:
+    path = world(tmp_path / "w.duckdb", RETURNS)
+    with Warehouse.open(path, read_only=True) as wh:
+        plan = plan_list(wh, request(purpose=purpose, stock=100), rules=RULES, now=NOW)
+        out = preview_list(wh, plan)
+    by = excluded_by(out)
+    assert by[1] == by[3] == by[6] == "returned_target"
+    assert by[2] == "has_target"
+    assert by[4] is None and by[5] is None
+    keys = [s.key for s in out.waterfall]
+    assert keys[:3] == ["has_target", "returned_target", "no_consent"]
+    step = out.waterfall[1]
+    assert step.in_use and step.removed == 3 and step.label == "bought the target and returned it all"
+    assert out.waterfall[0].remaining - step.removed == step.remaining
+
+
+def test_a_category_target_counts_a_returner_only_when_nothing_is_held(tmp_path: Path) -> None:
+    # T and T2 share category "cat" with A in hm.product; give them a category of their own
+    path = world(tmp_path / "w.duckdb", RETURNS)
+    con = duckdb.connect(str(path))
+    con.execute("UPDATE products SET category = 'mats' WHERE sku IN ('T', 'T2')")
+    con.close()
+    rules = ref.make_ruleset(Target("category", "mats"), [("R1", ("A",), 0.4)], window=WINDOW)
+    with Warehouse.open(path, read_only=True) as wh:
+        plan = plan_list(wh, request(target="category:mats"), rules=rules, now=NOW)
+        by = excluded_by(preview_list(wh, plan))
+    assert by[6] == "has_target"  # returned T but holds T2, another SKU of the category
+    assert by[1] == by[3] == "returned_target" and by[2] == "has_target"
+
+
+# -- the default window and orders dated in the future --------------------------------------------
+def test_an_order_dated_in_the_future_does_not_move_the_window(tmp_path: Path) -> None:
+    purchases = [(1, "2025-03-01", "A", 1), (2, "2025-12-20", "T", 1), (3, "2062-05-01", "A", 1),
+                 (3, "2061-02-01", "A", 1)]
+    path = world(tmp_path / "w.duckdb", purchases)
+    with Warehouse.open(path, read_only=True) as wh:
+        history = order_history(wh, TODAY)
+        assert history.last_order == datetime(2025, 12, 20)
+        assert (history.later_orders, history.latest_later) == (2, datetime(2062, 5, 1))
+        assert last_order_day(wh, TODAY) == datetime(2025, 12, 21)
+        assert mining_window(wh, today=TODAY) == Window(datetime(2024, 12, 21),
+                                                          datetime(2025, 12, 21))
+        # on a later "today" those orders are history like any other
+        assert last_order_day(wh, date(2070, 1, 1)) == datetime(2062, 5, 2)
+        plan = plan_list(wh, request(), now=NOW, rules=RULES)
+        note = [n for n in history.notes() if "after today" in n]
+    assert note and "2 order(s)" in note[0] and "2062-05-01" in note[0]
+    # rules given with their own window: the note about the default window does not apply
+    assert not any("after today" in n for n in plan.notes)
+
+
+def test_every_order_in_the_future_is_one_clear_error(tmp_path: Path) -> None:
+    from reachlist.errors import InputError
+
+    path = world(tmp_path / "w.duckdb", [(1, "2062-05-01", "A", 1)])
+    with Warehouse.open(path, read_only=True) as wh, pytest.raises(InputError, match="after today"):
+        last_order_day(wh, TODAY)
+
+
+# -- orders without a customer ---------------------------------------------------------------------
+def test_orders_without_a_customer_are_ignored_and_counted(tmp_path: Path) -> None:
+    purchases = [*[(c, "2025-03-01", "A", 1) for c in (1, 2, 3)], (3, "2025-05-01", "T", 1),
+                 (None, "2025-03-02", "A", 1), (None, "2025-03-02", "T", 1),
+                 (None, "2025-03-03", "A", 1)]
+    path = world(tmp_path / "w.duckdb", purchases)
+    with Warehouse.open(path, read_only=True) as wh:
+        assert order_history(wh, TODAY).without_customer == 2  # one order per (customer, day)
+        plan = plan_list(wh, request(), now=NOW, rules=RULES)
+        out = preview_list(wh, plan)
+    assert sorted(excluded_by(out).items()) == [(1, None), (2, None), (3, "has_target")]
+    assert any("2 order(s) have no customer id and were ignored" in n for n in plan.notes)
