@@ -12,6 +12,7 @@ the stock -> file (``reachlist.export``) and campaign log (``reachlist.campaigns
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import math
 import re
 from collections.abc import Callable
@@ -33,7 +34,7 @@ from reachlist.audience import (
     rule_rate_interval,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
-from reachlist.errors import EmptyResultError, InputError, ReachlistError
+from reachlist.errors import ContractError, EmptyResultError, InputError, ReachlistError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
     MAX_CUTOFFS,
@@ -107,6 +108,10 @@ class ListRequest:
     ignore_consent: bool = False
     ignore_suppressions: bool = False
     allow_sensitive: bool = False
+    # A customer id on several rows of customers is refused; with this, each such customer is
+    # read by its strictest row (no consent if any row says none, adult only if every row says
+    # so) and listed once.
+    merge_duplicates: bool = False
     stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
     contact: bool = False  # add contact fields (email) to the exported list
     # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
@@ -328,6 +333,8 @@ def plan_list(
             hint="leave it out to use products.stock_on_hand",
         )
     now = now or datetime.now(UTC).replace(tzinfo=None)
+    merged = check_duplicate_customers(wh, merge=request.merge_duplicates)
+    filters = check_filters(wh, request.filters)
     target = resolve_target(wh, parse_target(request.target))
     rules_target = (
         resolve_target(wh, parse_target(request.stand_in)) if request.stand_in else target
@@ -338,6 +345,11 @@ def plan_list(
     else:
         window = mining_window(wh, request.since, request.until, history=history)
     notes: list[str] = history.notes(default_end=rules is None and request.until is None)
+    if merged:
+        notes.append(
+            f"{merged:,} customer id(s) are on more than one row of customers "
+            "(--merge-duplicates): each is listed once and read by its strictest row."
+        )
     if rules_target != target:
         notes.append(
             f"Rules and scores are borrowed from the stand-in {rules_target}: {target} is "
@@ -395,7 +407,7 @@ def plan_list(
         bought_within_days=request.bought_within_days,
         age_restricted=bool(facts["age_restricted"]),
         adult_born_by=adult_born_by(now.date(), request.adult_age),
-        filters=request.filters,
+        filters=filters,
         contact=request.contact,
     )
     return Plan(
@@ -411,6 +423,89 @@ def plan_list(
         notes=tuple(notes),
         overrides=tuple(overrides),
     )
+
+
+def check_duplicate_customers(wh: Warehouse, *, merge: bool = False) -> int:
+    """How many customer ids are on more than one row of customers; refused unless ``merge``.
+
+    A list built on such rows could contact a customer whose other row says no consent, and
+    would list them twice: the audience SQL reads each id by its strictest row either way, but
+    only when the user has said that is what they want."""
+    row = wh.fetch(Query.from_template("duplicate_customers")).row(0, named=True)
+    ids, rows = int(row["duplicated_ids"] or 0), int(row["duplicate_rows"] or 0)
+    if ids and not merge:
+        raise ContractError(
+            f"Expected one row per customer id in customers, found {ids:,} id(s) on more than "
+            f"one row ({rows:,} rows); rows that disagree on consent or age make the list "
+            "unsafe.",
+            hint="run `reachlist check` to see them and fix the table, or pass "
+            "--merge-duplicates to read each such customer by its strictest row",
+        )
+    return ids
+
+
+# Filter values are checked against these columns (fixed fragments, never user text).
+_FILTER_COLUMNS = {
+    "region": ("customers", "region", "--region"),
+    "channel": ("orders", "channel", "--channel"),
+}
+MAX_SUGGESTION_VALUES = 10_000  # distinct values read to suggest a near miss
+
+
+def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tuple[str, ...]:
+    """``values`` when each is present in the warehouse; else one InputError naming the first
+    missing value and the closest present ones (``north`` -> ``North``)."""
+    if not values:
+        return values
+    table, column, option = _FILTER_COLUMNS[kind]
+    present = wh.fetch(
+        Query(
+            f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IN (:values)",
+            {"values": list(values)},
+            label=f"{kind} values",
+        )
+    )
+    found = {str(v) for v in present["value"].to_list()}
+    missing = [v for v in values if v not in found]
+    if not missing:
+        return values
+    known = [
+        str(v)
+        for v in wh.fetch(
+            Query(
+                f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IS NOT NULL "
+                f"ORDER BY 1 LIMIT {MAX_SUGGESTION_VALUES}",
+                label=f"known {kind} values",
+            )
+        )["value"].to_list()
+    ]
+    value = missing[0]
+    lowered = {k.lower(): k for k in known}
+    close = ([lowered[value.lower()]] if value.lower() in lowered else []) + [
+        c for c in difflib.get_close_matches(value, known, n=3, cutoff=0.6)
+        if c.lower() != value.lower()
+    ]
+    if close:
+        hint = f"did you mean {option} {close[0]!r}?" + (
+            f" (or {', '.join(repr(c) for c in close[1:3])})" if close[1:] else ""
+        )
+    elif known:
+        shown = ", ".join(repr(k) for k in known[:8]) + (", ..." if len(known) > 8 else "")
+        hint = f"use one of the values in {table}.{column}: {shown}"
+    else:
+        hint = f"{table}.{column} holds no values; leave {option} out"
+    raise InputError(
+        f"Expected {option} values present in {table}.{column}, found {value!r}, which no "
+        f"{'customer' if table == 'customers' else 'order'} has (values are case-sensitive).",
+        hint=hint,
+    )
+
+
+def check_filters(wh: Warehouse, filters: Filters) -> Filters:
+    """Region and channel filters checked against the warehouse (see ``check_filter_values``)."""
+    check_filter_values(wh, "region", filters.regions)
+    check_filter_values(wh, "channel", filters.channels)
+    return filters
 
 
 def default_campaign_id(target: Target, purpose: str, day: date) -> str:

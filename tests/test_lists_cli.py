@@ -182,3 +182,9 @@ def test_orders_without_customer_or_from_the_future_do_not_break_sizes(sample: P
     assert f"{nulls:,} order(s) have no customer id and were ignored" in text
     assert "1 order(s) are dated after today" in text and "the latest 2062-05-01" in text
     assert f".. {last:%Y-%m-%d} (sku items" in text  # the window still ends at the last order
+
+
+def test_a_misspelt_region_is_an_input_error_with_a_suggestion(sample: Path) -> None:
+    line = one_error_line(run("sizes", MAT, "-w", str(sample), "--region", "north",
+                              "--min-audience", "0"))
+    assert "found 'north'" in line and "did you mean --region 'North'?" in line

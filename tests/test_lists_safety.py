@@ -12,6 +12,7 @@ import duckdb
 import polars as pl
 import pytest
 
+from reachlist.audience import Filters
 from reachlist.campaigns import CampaignLog
 from reachlist.lists import ListRequest, plan_list, preview_list
 from reachlist.targets import Target, Window, last_order_day, mining_window, order_history
@@ -132,3 +133,70 @@ def test_orders_without_a_customer_are_ignored_and_counted(tmp_path: Path) -> No
         out = preview_list(wh, plan)
     assert sorted(excluded_by(out).items()) == [(1, None), (2, None), (3, "has_target")]
     assert any("2 order(s) have no customer id and were ignored" in n for n in plan.notes)
+
+
+# -- duplicate customer rows -----------------------------------------------------------------------
+def test_duplicate_customer_rows_are_refused_or_read_by_their_strictest_row(
+    tmp_path: Path,
+) -> None:
+    from reachlist.errors import ContractError
+
+    purchases = [*[(c, "2025-03-01", "A", 1) for c in (1, 2, 3, 4, 5)], (6, "2025-03-01", "T", 1)]
+    customers = [
+        hm.customer(6),
+        hm.customer(1), hm.customer(1),  # the same row twice: harmless, still listed once
+        hm.customer(2), hm.customer(2, consent=False),  # one row says no consent
+        hm.customer(3), hm.customer(3, birth=None),  # one row does not know the age
+        hm.customer(4), hm.customer(4, region="south"),  # one row in another region
+        hm.customer(5),
+    ]
+    path = world(tmp_path / "w.duckdb", purchases, customers)
+    with Warehouse.open(path, read_only=True) as wh:
+        with pytest.raises(ContractError, match=r"found 4 id\(s\) on more than one row") as exc:
+            plan_list(wh, request(), rules=RULES, now=NOW)
+        assert "reachlist check" in str(exc.value) and "--merge-duplicates" in str(exc.value)
+        plan = plan_list(wh, request(merge_duplicates=True), rules=RULES, now=NOW)
+        out = preview_list(wh, plan)
+        assert any("4 customer id(s) are on more than one row" in n for n in plan.notes)
+        assert out.customers["customer_id"].is_duplicated().sum() == 0  # never listed twice
+        assert excluded_by(out) == {1: None, 2: "no_consent", 3: None, 4: None, 5: None}
+        # strictest row for age (an age-restricted target) and for a region filter
+        regional = preview_list(wh, plan_list(
+            wh, request(merge_duplicates=True, filters=Filters(regions=("north",))),
+            rules=RULES, now=NOW))
+        assert excluded_by(regional)[4] == "outside_region"
+    con = duckdb.connect(str(path))
+    con.execute("UPDATE products SET age_restricted = TRUE WHERE sku = 'T'")
+    con.close()
+    with Warehouse.open(path, read_only=True) as wh:
+        adult = preview_list(wh, plan_list(wh, request(merge_duplicates=True), rules=RULES,
+                                           now=NOW))
+    assert excluded_by(adult) == {1: None, 2: "no_consent", 3: "not_adult", 4: None, 5: None}
+    assert adult.listed.height == 3
+
+
+# -- region and channel values ---------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("filters", "match"),
+    [
+        (Filters(regions=("North",)), r"found 'North'.*did you mean --region 'north'\?"),
+        (Filters(regions=("north", "sout")), r"found 'sout'.*did you mean --region 'south'\?"),
+        (Filters(regions=("moon",)), r"found 'moon'.*use one of the values in "
+                                     r"customers.region: 'north', 'south'"),
+        (Filters(channels=("Store",)), r"--channel values present in orders.channel, found "
+                                       r"'Store'.*did you mean --channel 'store'\?"),
+    ],
+)
+def test_filter_values_are_checked_against_the_warehouse(
+    tmp_path: Path, filters: Filters, match: str
+) -> None:
+    from reachlist.errors import InputError
+
+    purchases = [(c, "2025-03-01", "A", 1) for c in (1, 2)] + [(3, "2025-03-01", "T", 1)]
+    customers = [hm.customer(1), hm.customer(2, region="south"), hm.customer(3)]
+    path = world(tmp_path / "w.duckdb", purchases, customers)
+    with Warehouse.open(path, read_only=True) as wh:
+        with pytest.raises(InputError, match=match):
+            plan_list(wh, request(filters=filters), rules=RULES, now=NOW)
+        ok = plan_list(wh, request(filters=Filters(("south",), ("store",))), rules=RULES, now=NOW)
+        assert excluded_by(preview_list(wh, ok)) == {1: "outside_region", 2: None}
