@@ -1,7 +1,10 @@
 """Write a contact list to a file, atomically: a temporary file beside the destination, moved into
 place with ``os.replace`` only once it is complete. An existing file is kept unless ``force``.
 
-The format follows the extension: ``.csv`` or ``.parquet``.
+The format follows the extension: ``.csv`` or ``.parquet``. In CSV, a text cell that a spreadsheet
+would read as a formula (it starts with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return: a
+hostile product code, say) is written with a leading single quote, as the OWASP "CSV Injection"
+guidance advises; numbers (a negative score) and Parquet files are written as they are.
 
 >>> staged = stage_list(frame, "mats.csv")     # doctest: +SKIP
 >>> staged.publish()                           # doctest: +SKIP
@@ -19,9 +22,32 @@ import polars as pl
 
 from reachlist.errors import InputError, StateError
 
-__all__ = ["FORMATS", "StagedFile", "check_destination", "list_format", "stage_list", "write_list"]
+__all__ = [
+    "FORMATS",
+    "StagedFile",
+    "check_destination",
+    "list_format",
+    "neutralise_formulas",
+    "stage_list",
+    "write_list",
+]
 
 FORMATS = {".csv": "csv", ".parquet": "parquet"}
+FORMULA_START = r"^[=+\-@\t\r]"  # what a spreadsheet may run as a formula (OWASP CSV Injection)
+
+
+def neutralise_formulas(frame: pl.DataFrame) -> pl.DataFrame:
+    """Text cells that start like a formula get a leading single quote; other columns (numbers,
+    dates, booleans) are left alone, so a negative number stays a number."""
+    text = [c for c, t in frame.schema.items() if t in (pl.String, pl.Categorical) or
+            isinstance(t, pl.Enum)]
+    return frame.with_columns(
+        pl.when(pl.col(c).cast(pl.String).str.contains(FORMULA_START))
+        .then(pl.lit("'") + pl.col(c).cast(pl.String))
+        .otherwise(pl.col(c).cast(pl.String))
+        .alias(c)
+        for c in text
+    )
 
 
 def list_format(path: str | os.PathLike[str]) -> str:
@@ -99,7 +125,7 @@ def stage_list(
     temp = Path(name)
     try:
         if fmt == "csv":
-            frame.write_csv(temp)
+            neutralise_formulas(frame).write_csv(temp)
         else:
             frame.write_parquet(temp)
     except BaseException:

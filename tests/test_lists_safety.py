@@ -200,3 +200,42 @@ def test_filter_values_are_checked_against_the_warehouse(
             plan_list(wh, request(filters=filters), rules=RULES, now=NOW)
         ok = plan_list(wh, request(filters=Filters(("south",), ("store",))), rules=RULES, now=NOW)
         assert excluded_by(preview_list(wh, ok)) == {1: "outside_region", 2: None}
+
+
+# -- CSV cells a spreadsheet would run -------------------------------------------------------------
+# Source: OWASP, "CSV Injection" (owasp.org/www-community/attacks/CSV_Injection): cells beginning
+# with = + - @, tab (0x09) or carriage return (0x0D) are read as formulas; prefix them with a single
+# quote. Parquet is not opened by spreadsheets as text and is written unchanged.
+HOSTILE = '=HYPERLINK("http://example.invalid/x","click")'
+
+
+def test_csv_cells_that_start_like_formulas_are_neutralised(tmp_path: Path) -> None:
+    from reachlist.export import neutralise_formulas
+    from reachlist.lists import build_list
+
+    frame = pl.DataFrame({
+        "code": ["=1+1", "+1", "-1", "@SUM(A1)", "\tx", "\rx", "plain", "a=b", None],
+        "score": [-1.5, 2.0, -3.0, 0.0, 1.0, 1.0, 1.0, 1.0, 1.0],
+        "n": [-1, 2, -3, 4, 5, 6, 7, 8, 9],
+    })
+    out = neutralise_formulas(frame)
+    assert out["code"].to_list() == ["'=1+1", "'+1", "'-1", "'@SUM(A1)", "'\tx", "'\rx",
+                                     "plain", "a=b", None]
+    assert out["score"].equals(frame["score"]) and out["n"].equals(frame["n"])  # numbers stay
+
+    products = [hm.product(HOSTILE), hm.product("T", stock_on_hand=10)]
+    path = hm.build(tmp_path / "w.duckdb", customers=[hm.customer(c) for c in (1, 2, 3)],
+                    products=products,
+                    purchases=[(1, "2025-03-01", HOSTILE, 1), (2, "2025-03-01", HOSTILE, 1),
+                               (3, "2025-03-01", "T", 1)])
+    rules = ref.make_ruleset(Target("sku", "T"), [("-R1", (HOSTILE,), 0.4)], window=WINDOW)
+    with Warehouse.open(path) as wh:
+        plan = plan_list(wh, request(), rules=rules, now=NOW)
+        build_list(wh, plan, tmp_path / "l.csv", log=CampaignLog.open(wh))
+        build_list(wh, plan, tmp_path / "l.parquet", log=CampaignLog.open(wh), replace=True)
+    csv = pl.read_csv(tmp_path / "l.csv")
+    assert set(csv["reason"]) == {"'" + HOSTILE + " -> T"}
+    assert set(csv["rule_id"]) == {"'-R1"}
+    assert csv["customer_id"].to_list() == [1, 2]  # integer ids are numbers, not text cells
+    parquet = pl.read_parquet(tmp_path / "l.parquet")
+    assert set(parquet["reason"]) == {HOSTILE + " -> T"} and set(parquet["rule_id"]) == {"-R1"}
