@@ -45,7 +45,7 @@ from reachlist.estimate import (
     holdout_planning,
 )
 from reachlist.exclusions import STEPS, StepCount, apply_exclusions
-from reachlist.export import check_destination, stage_list
+from reachlist.export import check_destination, clear_leftovers, stage_list
 from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
 from reachlist.query import Query, Rendered
 from reachlist.targets import (
@@ -65,6 +65,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "PURPOSES",
+    "BUILD_STAGES",
     "Built",
     "Clearance",
     "ListOutcome",
@@ -286,6 +287,19 @@ class Built:
     path: Path
     rows: int
     log_where: str
+    notes: tuple[str, ...] = ()  # staging files of interrupted builds removed or found
+
+
+BUILD_STAGES = (
+    "list staged",  # the list is complete in a hidden file beside the destination
+    "log written",  # the campaign and its contacts are written, not yet committed
+    "list in place",  # the file is at its destination; the log has not committed
+    "log committed",  # done: file and log agree
+)
+"""What ``build_list`` reports to ``progress`` (label, n done, of len(BUILD_STAGES)). A build
+stopped at any point leaves either nothing, or the file without the log (stopped after the file
+is in place and before the commit: rerun with --force to log it), or both; never a log without
+its file."""
 
 
 # -- planning ------------------------------------------------------------------------------------
@@ -589,6 +603,8 @@ def _excluded(
         in_use.add("contacted_recently")
         if log is None:
             notes["contacted_recently"] = "no campaign log to read"
+        elif log.also:
+            notes["contacted_recently"] = "read " + " and ".join(log.read_from)
     else:
         notes["contacted_recently"] = "not used (--cap-days 0)"
     if plan.spec.age_restricted:
@@ -891,12 +907,15 @@ def build_list(
     log: CampaignLog,
     force: bool = False,
     replace: bool = False,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> Built:
     """Write the treatment group to ``out`` and log the campaign (both or neither).
 
-    The file is staged first, the log is written in one transaction, and only then is the file
-    moved into place, so a logged campaign never lacks its file for long and a failed log leaves
-    no file behind.
+    The list is staged in a hidden file, the log is written in one transaction, the file is
+    moved into place, and only then does the log commit. If the move fails the log rolls back;
+    if the commit fails the file is taken back (a file it replaced returns). So contacts are
+    never logged for a list that does not exist. Staging files that interrupted builds left
+    beside ``out`` are removed first (or reported when their process may still run).
     """
     check_destination(out, force=force)
     log.refuse_existing(plan.campaign_id, replace=replace)
@@ -913,9 +932,17 @@ def build_list(
             f"and holdout (rules reached {outcome.reached:,}{why}); nothing was written.",
             hint="run `reachlist sizes` with the same options to see the waterfall",
         )
+    leftovers = clear_leftovers(out)
+    total = len(BUILD_STAGES)
+
+    def stage(n: int) -> None:
+        if progress is not None:
+            progress(BUILD_STAGES[n - 1], n, total)
+
     staged = stage_list(list_frame(outcome), out, force=force)
-    ran = plan.sql(wh)
     try:
+        stage(1)
+        ran = plan.sql(wh)
         record = CampaignRecord(
             campaign_id=plan.campaign_id,
             created_at=plan.now,
@@ -931,6 +958,7 @@ def build_list(
                 "output": str(Path(out).resolve()),
                 "sensitive": list(plan.sensitive),
                 "audience_sql": {"dialect": wh.dialect.name, "sql": ran.sql, "values": ran.params},
+                "cap_read": log.read_from if plan.request.cap_days > 0 else [],
             },
             rules=[asdict(r) for r in plan.rules],
             counts=outcome.counts(),
@@ -939,9 +967,13 @@ def build_list(
         contacts = outcome.listed.select(
             "customer_id", "contact_group", "score", pl.col("rule_id").alias("reason")
         )
-        log.record(record, contacts, replace=replace)
+        with log.recording(record, contacts, replace=replace):
+            stage(2)
+            path = staged.publish()
+            stage(3)
     except BaseException:
-        staged.discard()
+        staged.withdraw()
         raise
-    path = staged.publish()
-    return Built(outcome, path, staged.rows, log.where)
+    staged.settle()
+    stage(4)
+    return Built(outcome, path, staged.rows, log.where, tuple(leftovers.notes()))

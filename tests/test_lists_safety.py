@@ -239,3 +239,39 @@ def test_csv_cells_that_start_like_formulas_are_neutralised(tmp_path: Path) -> N
     assert csv["customer_id"].to_list() == [1, 2]  # integer ids are numbers, not text cells
     parquet = pl.read_parquet(tmp_path / "l.parquet")
     assert set(parquet["reason"]) == {HOSTILE + " -> T"} and set(parquet["rule_id"]) == {"-R1"}
+
+
+# -- the contact cap reads every campaign log ------------------------------------------------------
+def test_the_cap_reads_the_warehouse_log_and_the_state_file(tmp_path: Path) -> None:
+    from reachlist.lists import build_list
+
+    purchases = [*[(c, "2025-03-01", "A", 1) for c in range(1, 9)], (9, "2025-03-01", "T", 1)]
+    path = world(tmp_path / "w.duckdb", purchases)
+    state = tmp_path / "state.duckdb"
+    with Warehouse.open(path) as wh:
+        # an earlier campaign logged in the warehouse itself contacted everyone
+        first = build_list(wh, plan_list(wh, request(campaign_id="in-warehouse"), rules=RULES,
+                                         now=NOW), tmp_path / "a.csv", log=CampaignLog.open(wh))
+        contacted = set(first.outcome.treatment["customer_id"].to_list())
+        assert contacted == set(range(1, 9))
+        # a build that keeps its log in a state file still honours that campaign
+        plan = plan_list(wh, request(campaign_id="next", cap_days=30), rules=RULES,
+                         now=datetime(2026, 1, 20))
+        with CampaignLog.open(wh, str(state)) as log:
+            assert log.read_from == [str(state), str(path)]
+            out = preview_list(wh, plan, log)
+            cap = next(s for s in out.waterfall if s.key == "contacted_recently")
+            assert cap.removed == 8 and out.listed.height == 0
+            assert cap.note == f"read {state} and {path}"
+        # and once the cap has passed, the state file's own campaigns count too
+        later = plan_list(wh, request(campaign_id="later", cap_days=14), rules=RULES,
+                          now=datetime(2026, 2, 20))
+        with CampaignLog.open(wh, str(state)) as log:
+            from reachlist.campaigns import CampaignRecord
+
+            log.record(CampaignRecord("in-state", datetime(2026, 2, 15), "T", "introduce"),
+                       pl.DataFrame({"customer_id": [1, 2], "contact_group": ["treatment"] * 2,
+                                     "score": [0.4, 0.4], "reason": ["R1", "R1"]}))
+            assert sorted(log.recent_contacts(datetime(2026, 2, 6)).to_list()) == [1, 2]
+            out = preview_list(wh, later, log)
+        assert excluded_by(out)[1] == "contacted_recently" and excluded_by(out)[3] is None
