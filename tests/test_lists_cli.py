@@ -188,3 +188,26 @@ def test_a_misspelt_region_is_an_input_error_with_a_suggestion(sample: Path) -> 
     line = one_error_line(run("sizes", MAT, "-w", str(sample), "--region", "north",
                               "--min-audience", "0"))
     assert "found 'north'" in line and "did you mean --region 'North'?" in line
+
+
+def test_build_with_state_caps_on_campaigns_logged_in_the_warehouse(
+    sample: Path, tmp_path: Path
+) -> None:
+    common = ("-w", str(sample), "--no-estimate")
+    first = run("build", MAT, *common, "--out", str(tmp_path / "a.csv"), "--campaign", "wh-1")
+    assert first.exit_code == 0, first.output
+    contacted = set(pl.read_csv(tmp_path / "a.csv")["customer_id"])
+    state = tmp_path / "state.duckdb"
+    # a preview with a state file that does not exist yet still reads the warehouse's log
+    preview = run("sizes", MAT, *common, "--state", str(state), "--campaign", "st-1")
+    line = next(ln for ln in preview.output.splitlines() if "frequency cap" in ln)
+    assert f"{len(contacted):,}" in line
+    second = run("build", MAT, *common, "--out", str(tmp_path / "b.csv"), "--state", str(state),
+                 "--campaign", "st-1", "--min-audience", "0")
+    assert second.exit_code == 0, second.output
+    line = next(ln for ln in second.output.splitlines() if "frequency cap" in ln)
+    assert line.split("│")[1].strip() == f"{len(contacted):,}"  # every earlier contact removed
+    assert contacted.isdisjoint(pl.read_csv(tmp_path / "b.csv")["customer_id"])
+    with Warehouse.open(state, read_only=True) as db:
+        record = CampaignLog(db).campaign("st-1")
+    assert record is not None and record["parameters"]["cap_read"] == [str(state), str(sample)]

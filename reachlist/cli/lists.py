@@ -180,8 +180,9 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
     from reachlist.lists import plan_list, preview_list
     from reachlist.render.lists import render_sizes
 
-    # A preview writes nothing: a --state file that does not exist yet is not created.
-    log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else None
+    # A preview writes nothing: a --state file that does not exist yet is not created (the
+    # warehouse's own log, when it has one, is still read for the contact cap).
+    log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else CampaignLog(wh)
     try:
         with delayed_status(out, "Mining rules") as progress:
             plan = plan_list(wh, _request(target, opts), progress=progress)
