@@ -170,6 +170,27 @@ class CampaignLog:
     def present(self) -> bool:
         return all(self.db.physical_columns(t) is not None for t in LOG_TABLES)
 
+    def unkeyed(self) -> list[str]:
+        """Log tables present without a unique key (created by an earlier reachlist): for them,
+        concurrent builds of one campaign are not prevented."""
+        out = []
+        for table in LOG_TABLES:
+            if self.db.physical_columns(table) is None:
+                continue
+            parts = self.db.mapping.table(table).physical
+            schema = "table_schema = current_schema()" if len(parts) == 1 else (
+                "table_schema = :schema")
+            q = Query(
+                "SELECT count(*) AS n FROM information_schema.table_constraints\n"
+                f"WHERE table_name = :name AND {schema}\n"
+                "  AND constraint_type IN ('PRIMARY KEY', 'UNIQUE')",
+                {"name": parts[-1], **({"schema": parts[-2]} if len(parts) > 1 else {})},
+                label="log table keys",
+            )
+            if not self.db.scalar(q):
+                out.append(self.db.mapping.table(table).physical_name)
+        return out
+
     def has_campaign(self, campaign_id: str) -> bool:
         if self.db.physical_columns("campaigns") is None:
             return False

@@ -933,6 +933,14 @@ def build_list(
             hint="run `reachlist sizes` with the same options to see the waterfall",
         )
     leftovers = clear_leftovers(out)
+    notes = leftovers.notes()
+    unkeyed = log.unkeyed()
+    if unkeyed:
+        notes.append(
+            f"The campaign log table(s) {', '.join(unkeyed)} in {log.where} have no unique key "
+            "(created by an earlier reachlist): two builds of one campaign at the same time "
+            "could both log it. The README says how to recreate them with keys."
+        )
     total = len(BUILD_STAGES)
 
     def stage(n: int) -> None:
@@ -976,4 +984,4 @@ def build_list(
         raise
     staged.settle()
     stage(4)
-    return Built(outcome, path, staged.rows, log.where, tuple(leftovers.notes()))
+    return Built(outcome, path, staged.rows, log.where, tuple(notes))

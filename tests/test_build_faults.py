@@ -181,7 +181,8 @@ def test_log_tables_get_unique_keys_and_old_keyless_tables_keep_working(
 ) -> None:
     with Warehouse.open(world) as wh:
         plan = plan_list(wh, request(), rules=RULESET, now=NOW)
-        build_list(wh, plan, tmp_path / "a.csv", log=CampaignLog.open(wh))
+        first = build_list(wh, plan, tmp_path / "a.csv", log=CampaignLog.open(wh))
+        assert CampaignLog(wh).unkeyed() == [] and first.notes == ()
     con = duckdb.connect(str(world))
     keys = con.execute("SELECT table_name, constraint_type FROM information_schema."
                        "table_constraints WHERE constraint_type = 'PRIMARY KEY' "
@@ -196,8 +197,10 @@ def test_log_tables_get_unique_keys_and_old_keyless_tables_keep_working(
         con.execute(f"ALTER TABLE {t}_old RENAME TO {t}")
     con.close()
     with Warehouse.open(world) as wh:
+        assert CampaignLog(wh).unkeyed() == ["campaigns", "campaign_contacts"]
         built = build_list(wh, plan, tmp_path / "b.csv", log=CampaignLog.open(wh), replace=True)
         assert CampaignLog(wh).contacts("c1").height == built.outcome.listed.height
+    assert any("have no unique key" in n for n in built.notes)
 
 
 @pytest.mark.postgres
@@ -251,6 +254,8 @@ def test_concurrent_replace_builds_on_postgres_log_a_campaign_once(
     for t in threads:
         t.join(120)
     with Warehouse.open(pg_url, mapping) as wh:
+        assert CampaignLog(wh).unkeyed() == ([] if keys else [f"{pg_schema}.campaigns",
+                                                              f"{pg_schema}.campaign_contacts"])
         logged = CampaignLog(wh).contacts("c1").height
         records = wh.scalar(ref_count_query())
     listed = next(r.outcome.listed.height for r in results.values()
