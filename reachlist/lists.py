@@ -287,7 +287,7 @@ class Built:
     path: Path
     rows: int
     log_where: str
-    notes: tuple[str, ...] = ()  # staging files of interrupted builds removed or found
+    notes: tuple[str, ...] = ()  # staging left-overs removed or found; a log without keys
 
 
 BUILD_STAGES = (
