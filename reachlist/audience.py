@@ -246,8 +246,9 @@ _LIST_SELECT = """SELECT
     b.score,
     {flags}{contact}
 FROM best AS b
-LEFT JOIN customers AS c ON c.customer_id = b.customer_id
+LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
 LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
+LEFT JOIN returned_target AS r ON r.customer_id = b.customer_id
 LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id{filter_joins}
 ORDER BY b.score DESC, b.customer_id"""
 _REACH_SELECT = """SELECT customer_id, rule_rank
@@ -275,12 +276,17 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     params = _params(spec)
     f = spec.filters
     ctes, joins = "", ""
+    # per row of customers (customer_facts keeps the strictest row of a duplicated id) ...
+    not_adult_row = outside_region_row = "FALSE"
+    # ... and per listed customer (no row in customers: age and region unknown)
     not_adult = outside_region = outside_channel = inactive = "FALSE"
     if spec.age_restricted:
-        not_adult = "(c.birth_date IS NULL OR c.birth_date > :adult_born_by)"
+        not_adult_row = "birth_date IS NULL OR birth_date > :adult_born_by"
+        not_adult = "coalesce(c.not_adult = 1, TRUE)"
         params["adult_born_by"] = spec.adult_born_by
     if f.regions:
-        outside_region = "NOT coalesce(c.region IN (:regions), FALSE)"
+        outside_region_row = "NOT coalesce(region IN (:regions), FALSE)"
+        outside_region = "coalesce(c.outside_region = 1, TRUE)"
         params["regions"] = list(f.regions)
     if f.channels:
         ctes += _CHANNEL_CTE
@@ -298,7 +304,8 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     else:
         flags = {
             "has_target": "t.customer_id IS NOT NULL",
-            "no_consent": "c.marketing_consent IS NOT TRUE",
+            "returned_target": "r.customer_id IS NOT NULL",
+            "no_consent": "coalesce(c.no_consent = 1, TRUE)",
             "suppressed": "s.customer_id IS NOT NULL",
             "not_adult": not_adult,
             "outside_region": outside_region,
@@ -315,6 +322,8 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         target_level=LEVEL_COLUMN[spec.target.level],
         rule_blocks=",\n".join(_RULE_BLOCK.format(k=r.rank) for r in spec.rules),
         reached_union="\n    UNION ALL\n".join(_REACHED_LINE.format(k=r.rank) for r in spec.rules),
+        not_adult_row=not_adult_row,
+        outside_region_row=outside_region_row,
         filter_ctes=ctes,
         final=final,
     )
@@ -328,7 +337,8 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
 
 def audience_query(spec: AudienceSpec) -> Query:
     """One row per reached customer: customer_id, rule_id, score and one boolean per exclusion
-    (has_target, no_consent, suppressed, not_adult, outside_region, outside_channel, inactive),
+    (has_target, returned_target, no_consent, suppressed, not_adult, outside_region,
+    outside_channel, inactive),
     plus email when ``spec.contact``; best score first."""
     return _build(spec, per_rule=False)
 

@@ -7,26 +7,39 @@ log lives in the warehouse, or in a local state DuckDB file when the warehouse i
 (``CampaignLog.open(wh, state="state.duckdb")``). A campaign and all its contacts are written in
 one transaction; the same campaign id is refused unless ``replace=True``.
 
+The contact cap reads every log that applies: with a state file, both the state file's log and
+the campaign tables already in the warehouse (when it has them).
+
+Unique keys: tables reachlist creates get ``PRIMARY KEY (campaign_id)`` and ``PRIMARY KEY
+(campaign_id, customer_id)``, so two builds of one campaign running at once cannot both log it:
+the second waits for the first and is refused. Log tables created earlier without keys keep
+working as they are: reachlist does not alter a table it finds (it may be the warehouse owner's,
+and adding a key fails when old rows repeat), so for them concurrent builds are not prevented;
+recreate them (copy, drop, let reachlist create them, copy back) to get the keys.
+
 >>> log = CampaignLog.open(wh)                                            # doctest: +SKIP
 >>> log.record(record, contacts)                                          # doctest: +SKIP
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
 import re
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any, Self
 
 import polars as pl
 
-from reachlist.errors import InputError, StateError, WarehouseError
+from reachlist.errors import InputError, ReachlistError, StateError, WarehouseError
 from reachlist.query import Query, quote_ident, quote_qualified
 from reachlist.schema import CONTRACT, LOG_TABLES, Kind, Mapping
 from reachlist.warehouse import Warehouse
 
-__all__ = ["GROUPS", "CampaignLog", "CampaignRecord", "check_campaign_id", "log_table_ddl"]
+__all__ = ["GROUPS", "KEYS", "CampaignLog", "CampaignRecord", "check_campaign_id",
+           "log_table_ddl"]
 
 GROUPS = ("treatment", "holdout")
 _SQL_TYPE: dict[Kind, str] = {
@@ -37,6 +50,11 @@ _SQL_TYPE: dict[Kind, str] = {
     "timestamp": "TIMESTAMP",
     "number": "DOUBLE PRECISION",
 }
+KEYS: dict[str, tuple[str, ...]] = {
+    "campaigns": ("campaign_id",),
+    "campaign_contacts": ("campaign_id", "customer_id"),
+}
+"""The unique key of each log table: one record per campaign, one row per customer in it."""
 _ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._:-]{0,79}")
 
 
@@ -58,7 +76,8 @@ def log_table_ddl(mapping: Mapping, table: str) -> str:
         + ("" if c.nullable else " NOT NULL")
         for c in CONTRACT[table].columns
     ]
-    body = ",\n    ".join(cols)
+    key = ", ".join(quote_ident(tmap.column(c)) for c in KEYS[table])
+    body = ",\n    ".join([*cols, f"PRIMARY KEY ({key})"])
     return f"CREATE TABLE IF NOT EXISTS {quote_qualified(tmap.physical)} (\n    {body}\n)"
 
 
@@ -106,13 +125,18 @@ class CampaignRecord:
 class CampaignLog:
     """The campaign log in one database (the warehouse, or a local state file)."""
 
-    def __init__(self, db: Warehouse, *, owned: bool = False) -> None:
+    def __init__(
+        self, db: Warehouse, *, owned: bool = False, also: tuple[CampaignLog, ...] = ()
+    ) -> None:
         self.db = db
         self._owned = owned  # opened here (a state file): closed by close()
+        self.also = also  # more logs the contact cap reads (never written)
 
     @classmethod
     def open(cls, warehouse: Warehouse, state: str | None = None) -> CampaignLog:
-        """The log in ``state`` (a DuckDB file, created when missing) or else in the warehouse."""
+        """The log in ``state`` (a DuckDB file, created when missing) or else in the warehouse.
+
+        With ``state``, the warehouse's own log (when it has one) is read too, for the cap."""
         if state is None:
             return cls(warehouse)
         if "://" in state:
@@ -120,7 +144,7 @@ class CampaignLog:
                 f"Expected --state to be a local DuckDB file, found the URL {state!r}.",
                 hint="pass a path such as reachlist-state.duckdb",
             )
-        return cls(Warehouse.open(state, create=True), owned=True)
+        return cls(Warehouse.open(state, create=True), owned=True, also=(cls(warehouse),))
 
     def close(self) -> None:
         if self._owned:
@@ -136,8 +160,36 @@ class CampaignLog:
     def where(self) -> str:
         return self.db.display_name
 
+    @property
+    def read_from(self) -> list[str]:
+        """Where the contact cap reads: this log and every other log that has contacts."""
+        others = [log.where for log in self.also
+                  if log.db.physical_columns("campaign_contacts") is not None]
+        return [self.where, *others]
+
     def present(self) -> bool:
         return all(self.db.physical_columns(t) is not None for t in LOG_TABLES)
+
+    def unkeyed(self) -> list[str]:
+        """Log tables present without a unique key (created by an earlier reachlist): for them,
+        concurrent builds of one campaign are not prevented."""
+        out = []
+        for table in LOG_TABLES:
+            if self.db.physical_columns(table) is None:
+                continue
+            parts = self.db.mapping.table(table).physical
+            schema = "table_schema = current_schema()" if len(parts) == 1 else (
+                "table_schema = :schema")
+            q = Query(
+                "SELECT count(*) AS n FROM information_schema.table_constraints\n"
+                f"WHERE table_name = :name AND {schema}\n"
+                "  AND constraint_type IN ('PRIMARY KEY', 'UNIQUE')",
+                {"name": parts[-1], **({"schema": parts[-2]} if len(parts) > 1 else {})},
+                label="log table keys",
+            )
+            if not self.db.scalar(q):
+                out.append(self.db.mapping.table(table).physical_name)
+        return out
 
     def has_campaign(self, campaign_id: str) -> bool:
         if self.db.physical_columns("campaigns") is None:
@@ -158,7 +210,16 @@ class CampaignLog:
             )
 
     def recent_contacts(self, since: datetime, *, other_than: str | None = None) -> pl.Series:
-        """Customers contacted (treatment group) at or after ``since`` by any other campaign."""
+        """Customers contacted (treatment group) at or after ``since`` by any other campaign,
+        in this log or any log in ``also``."""
+        found = [self._recent(since, other_than)]
+        found += [log._recent(since, other_than) for log in self.also]
+        found = [f for f in found if f.len()]
+        if not found:
+            return pl.Series("customer_id", [], dtype=pl.Int64)
+        return pl.concat(found, how="vertical_relaxed").unique().sort()
+
+    def _recent(self, since: datetime, other_than: str | None) -> pl.Series:
         if self.db.physical_columns("campaign_contacts") is None:
             return pl.Series("customer_id", [], dtype=pl.Int64)
         q = Query(
@@ -175,6 +236,16 @@ class CampaignLog:
     ) -> None:
         """Write the campaign and its contacts (customer_id, contact_group, score, reason) in one
         transaction, creating the log tables first when they are absent."""
+        with self.recording(record, contacts, replace=replace):
+            pass
+
+    @contextlib.contextmanager
+    def recording(
+        self, record: CampaignRecord, contacts: pl.DataFrame, *, replace: bool = False
+    ) -> Iterator[None]:
+        """As ``record``, but the transaction commits only when the ``with`` block ends without
+        an error: ``build_list`` moves the list file into place inside it, so the log never
+        commits for a list that is not there. An error in the block rolls everything back."""
         check_campaign_id(record.campaign_id)
         groups = set(contacts["contact_group"].unique().to_list())
         if not groups <= set(GROUPS):
@@ -192,22 +263,40 @@ class CampaignLog:
         exists = not missing and self.has_campaign(record.campaign_id)
         if exists and not replace:
             self.refuse_existing(record.campaign_id, replace=False)
-        with self.db.transaction():
-            for table in missing:
-                try:
-                    self.db.run_statement(log_table_ddl(self.db.mapping, table))
-                except WarehouseError as exc:
-                    raise StateError(
-                        f"Could not create the campaign log table {table} in {self.where} "
-                        f"({exc.message.rstrip('.')}); nothing was written.",
-                        hint="when the warehouse is read-only, keep the log locally with "
-                        "--state PATH",
-                    ) from None
-            if exists:
-                for table in LOG_TABLES:
-                    self._delete(table, record.campaign_id)
-            self._append("campaigns", record.frame())
-            self._append("campaign_contacts", rows)
+        inside = False  # the caller's block is running: its errors are its own
+        try:
+            with self.db.transaction():
+                for table in missing:
+                    try:
+                        self.db.run_statement(log_table_ddl(self.db.mapping, table))
+                    except WarehouseError as exc:
+                        if _is_key_clash(exc.message):  # another build created it just now
+                            raise StateError(
+                                f"Another build created the campaign log table {table} in "
+                                f"{self.where} while this one ran; this build wrote nothing "
+                                "(no log rows, no list file).",
+                                hint="run the build again",
+                            ) from None
+                        raise StateError(
+                            f"Could not create the campaign log table {table} in {self.where} "
+                            f"({exc.message.rstrip('.')}); nothing was written.",
+                            hint="when the warehouse is read-only, keep the log locally with "
+                            "--state PATH",
+                        ) from None
+                if exists:
+                    for table in LOG_TABLES:
+                        self._delete(table, record.campaign_id)
+                self._append("campaigns", record.frame(), record.campaign_id)
+                self._append("campaign_contacts", rows, record.campaign_id)
+                inside = True
+                yield
+                inside = False
+        except ReachlistError:
+            raise
+        except Exception as exc:
+            if inside:
+                raise
+            raise self._write_error("campaigns", exc, record.campaign_id) from None
 
     def _delete(self, table: str, campaign_id: str) -> None:
         tmap = self.db.mapping.table(table)
@@ -220,15 +309,26 @@ class CampaignLog:
             )
         )
 
-    def _append(self, table: str, frame: pl.DataFrame) -> None:
+    def _append(self, table: str, frame: pl.DataFrame, campaign_id: str) -> None:
         try:
             self.db.load_frame(table, frame)
-        except Exception as exc:  # a read-only database or a missing privilege
-            raise StateError(
-                f"Could not write the campaign log table {table} in {self.where} "
-                f"({str(exc).splitlines()[0]}); nothing was written.",
-                hint="when the warehouse is read-only, keep the log locally with --state PATH",
-            ) from None
+        except Exception as exc:  # a read-only database, a missing privilege, a unique key
+            raise self._write_error(table, exc, campaign_id) from None
+
+    def _write_error(self, table: str, exc: BaseException, campaign_id: str) -> StateError:
+        text = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+        if _is_key_clash(text):
+            return StateError(
+                f"Campaign {campaign_id!r} was logged in {self.where} by another build while "
+                "this one ran; this build wrote nothing (no log rows, no list file).",
+                hint="check `reachlist results` for the campaign that was logged; pass --replace "
+                "to replace it with this build's list",
+            )
+        return StateError(
+            f"Could not write the campaign log table {table} in {self.where} "
+            f"({text}); nothing was written.",
+            hint="when the warehouse is read-only, keep the log locally with --state PATH",
+        )
 
     # -- reading ---------------------------------------------------------------------------------
     def campaign(self, campaign_id: str) -> dict[str, Any] | None:
@@ -260,3 +360,9 @@ class CampaignLog:
                 label="campaign contacts",
             )
         )
+
+
+def _is_key_clash(text: str) -> bool:
+    """A unique key refused a row: another writer got there first (engine messages differ)."""
+    lowered = text.lower()
+    return any(k in lowered for k in ("duplicate key", "unique constraint", "primary key"))

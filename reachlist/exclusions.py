@@ -24,6 +24,7 @@ class Step:
 
 STEPS: tuple[Step, ...] = (
     Step("has_target", "already has the target"),
+    Step("returned_target", "bought the target and returned it all"),
     Step("no_consent", "no marketing consent"),
     Step("suppressed", "on the suppression list"),
     Step("contacted_recently", "contacted within the frequency cap"),

@@ -12,6 +12,7 @@ the stock -> file (``reachlist.export``) and campaign log (``reachlist.campaigns
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import math
 import re
 from collections.abc import Callable
@@ -33,7 +34,7 @@ from reachlist.audience import (
     rule_rate_interval,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
-from reachlist.errors import EmptyResultError, InputError, ReachlistError
+from reachlist.errors import ContractError, EmptyResultError, InputError, ReachlistError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
     MAX_CUTOFFS,
@@ -44,7 +45,7 @@ from reachlist.estimate import (
     holdout_planning,
 )
 from reachlist.exclusions import STEPS, StepCount, apply_exclusions
-from reachlist.export import check_destination, stage_list
+from reachlist.export import check_destination, clear_leftovers, stage_list
 from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
 from reachlist.query import Query, Rendered
 from reachlist.targets import (
@@ -53,6 +54,7 @@ from reachlist.targets import (
     check_level,
     item_buyers_query,
     mining_window,
+    order_history,
     parse_target,
     resolve_target,
 )
@@ -63,6 +65,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "PURPOSES",
+    "BUILD_STAGES",
     "Built",
     "Clearance",
     "ListOutcome",
@@ -106,6 +109,10 @@ class ListRequest:
     ignore_consent: bool = False
     ignore_suppressions: bool = False
     allow_sensitive: bool = False
+    # A customer id on several rows of customers is refused; with this, each such customer is
+    # read by its strictest row (no consent if any row says none, adult only if every row says
+    # so) and listed once.
+    merge_duplicates: bool = False
     stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
     contact: bool = False  # add contact fields (email) to the exported list
     # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
@@ -280,6 +287,19 @@ class Built:
     path: Path
     rows: int
     log_where: str
+    notes: tuple[str, ...] = ()  # staging left-overs removed or found; a log without keys
+
+
+BUILD_STAGES = (
+    "list staged",  # the list is complete in a hidden file beside the destination
+    "log written",  # the campaign and its contacts are written, not yet committed
+    "list in place",  # the file is at its destination; the log has not committed
+    "log committed",  # done: file and log agree
+)
+"""What ``build_list`` reports to ``progress`` (label, n done, of len(BUILD_STAGES)). A build
+stopped at any point leaves either nothing, or the file without the log (stopped after the file
+is in place and before the commit: rerun with --force to log it), or both; never a log without
+its file."""
 
 
 # -- planning ------------------------------------------------------------------------------------
@@ -327,12 +347,23 @@ def plan_list(
             hint="leave it out to use products.stock_on_hand",
         )
     now = now or datetime.now(UTC).replace(tzinfo=None)
+    merged = check_duplicate_customers(wh, merge=request.merge_duplicates)
+    filters = check_filters(wh, request.filters)
     target = resolve_target(wh, parse_target(request.target))
     rules_target = (
         resolve_target(wh, parse_target(request.stand_in)) if request.stand_in else target
     )
-    window = rules.window if rules is not None else mining_window(wh, request.since, request.until)
-    notes: list[str] = []
+    history = order_history(wh, now.date())
+    if rules is not None:
+        window = rules.window
+    else:
+        window = mining_window(wh, request.since, request.until, history=history)
+    notes: list[str] = history.notes(default_end=rules is None and request.until is None)
+    if merged:
+        notes.append(
+            f"{merged:,} customer id(s) are on more than one row of customers "
+            "(--merge-duplicates): each is listed once and read by its strictest row."
+        )
     if rules_target != target:
         notes.append(
             f"Rules and scores are borrowed from the stand-in {rules_target}: {target} is "
@@ -390,7 +421,7 @@ def plan_list(
         bought_within_days=request.bought_within_days,
         age_restricted=bool(facts["age_restricted"]),
         adult_born_by=adult_born_by(now.date(), request.adult_age),
-        filters=request.filters,
+        filters=filters,
         contact=request.contact,
     )
     return Plan(
@@ -406,6 +437,89 @@ def plan_list(
         notes=tuple(notes),
         overrides=tuple(overrides),
     )
+
+
+def check_duplicate_customers(wh: Warehouse, *, merge: bool = False) -> int:
+    """How many customer ids are on more than one row of customers; refused unless ``merge``.
+
+    A list built on such rows could contact a customer whose other row says no consent, and
+    would list them twice: the audience SQL reads each id by its strictest row either way, but
+    only when the user has said that is what they want."""
+    row = wh.fetch(Query.from_template("duplicate_customers")).row(0, named=True)
+    ids, rows = int(row["duplicated_ids"] or 0), int(row["duplicate_rows"] or 0)
+    if ids and not merge:
+        raise ContractError(
+            f"Expected one row per customer id in customers, found {ids:,} id(s) on more than "
+            f"one row ({rows:,} rows); rows that disagree on consent or age make the list "
+            "unsafe.",
+            hint="run `reachlist check` to see them and fix the table, or pass "
+            "--merge-duplicates to read each such customer by its strictest row",
+        )
+    return ids
+
+
+# Filter values are checked against these columns (fixed fragments, never user text).
+_FILTER_COLUMNS = {
+    "region": ("customers", "region", "--region"),
+    "channel": ("orders", "channel", "--channel"),
+}
+MAX_SUGGESTION_VALUES = 10_000  # distinct values read to suggest a near miss
+
+
+def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tuple[str, ...]:
+    """``values`` when each is present in the warehouse; else one InputError naming the first
+    missing value and the closest present ones (``north`` -> ``North``)."""
+    if not values:
+        return values
+    table, column, option = _FILTER_COLUMNS[kind]
+    present = wh.fetch(
+        Query(
+            f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IN (:values)",
+            {"values": list(values)},
+            label=f"{kind} values",
+        )
+    )
+    found = {str(v) for v in present["value"].to_list()}
+    missing = [v for v in values if v not in found]
+    if not missing:
+        return values
+    known = [
+        str(v)
+        for v in wh.fetch(
+            Query(
+                f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IS NOT NULL "
+                f"ORDER BY 1 LIMIT {MAX_SUGGESTION_VALUES}",
+                label=f"known {kind} values",
+            )
+        )["value"].to_list()
+    ]
+    value = missing[0]
+    lowered = {k.lower(): k for k in known}
+    close = ([lowered[value.lower()]] if value.lower() in lowered else []) + [
+        c for c in difflib.get_close_matches(value, known, n=3, cutoff=0.6)
+        if c.lower() != value.lower()
+    ]
+    if close:
+        hint = f"did you mean {option} {close[0]!r}?" + (
+            f" (or {', '.join(repr(c) for c in close[1:3])})" if close[1:] else ""
+        )
+    elif known:
+        shown = ", ".join(repr(k) for k in known[:8]) + (", ..." if len(known) > 8 else "")
+        hint = f"use one of the values in {table}.{column}: {shown}"
+    else:
+        hint = f"{table}.{column} holds no values; leave {option} out"
+    raise InputError(
+        f"Expected {option} values present in {table}.{column}, found {value!r}, which no "
+        f"{'customer' if table == 'customers' else 'order'} has (values are case-sensitive).",
+        hint=hint,
+    )
+
+
+def check_filters(wh: Warehouse, filters: Filters) -> Filters:
+    """Region and channel filters checked against the warehouse (see ``check_filter_values``)."""
+    check_filter_values(wh, "region", filters.regions)
+    check_filter_values(wh, "channel", filters.channels)
+    return filters
 
 
 def default_campaign_id(target: Target, purpose: str, day: date) -> str:
@@ -475,7 +589,7 @@ def _excluded(
         flag = pl.lit(False)
     frame = frame.with_columns(flag.alias("contacted_recently"))
 
-    in_use = {"has_target"}
+    in_use = {"has_target", "returned_target"}
     notes: dict[str, str] = {}
     if req.ignore_consent:
         notes["no_consent"] = "switched off (--ignore-consent)"
@@ -489,6 +603,8 @@ def _excluded(
         in_use.add("contacted_recently")
         if log is None:
             notes["contacted_recently"] = "no campaign log to read"
+        elif log.also:
+            notes["contacted_recently"] = "read " + " and ".join(log.read_from)
     else:
         notes["contacted_recently"] = "not used (--cap-days 0)"
     if plan.spec.age_restricted:
@@ -791,12 +907,15 @@ def build_list(
     log: CampaignLog,
     force: bool = False,
     replace: bool = False,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> Built:
     """Write the treatment group to ``out`` and log the campaign (both or neither).
 
-    The file is staged first, the log is written in one transaction, and only then is the file
-    moved into place, so a logged campaign never lacks its file for long and a failed log leaves
-    no file behind.
+    The list is staged in a hidden file, the log is written in one transaction, the file is
+    moved into place, and only then does the log commit. If the move fails the log rolls back;
+    if the commit fails the file is taken back (a file it replaced returns). So contacts are
+    never logged for a list that does not exist. Staging files that interrupted builds left
+    beside ``out`` are removed first (or reported when their process may still run).
     """
     check_destination(out, force=force)
     log.refuse_existing(plan.campaign_id, replace=replace)
@@ -813,9 +932,25 @@ def build_list(
             f"and holdout (rules reached {outcome.reached:,}{why}); nothing was written.",
             hint="run `reachlist sizes` with the same options to see the waterfall",
         )
+    leftovers = clear_leftovers(out)
+    notes = leftovers.notes()
+    unkeyed = log.unkeyed()
+    if unkeyed:
+        notes.append(
+            f"The campaign log table(s) {', '.join(unkeyed)} in {log.where} have no unique key "
+            "(created by an earlier reachlist): two builds of one campaign at the same time "
+            "could both log it. The README says how to recreate them with keys."
+        )
+    total = len(BUILD_STAGES)
+
+    def stage(n: int) -> None:
+        if progress is not None:
+            progress(BUILD_STAGES[n - 1], n, total)
+
     staged = stage_list(list_frame(outcome), out, force=force)
-    ran = plan.sql(wh)
     try:
+        stage(1)
+        ran = plan.sql(wh)
         record = CampaignRecord(
             campaign_id=plan.campaign_id,
             created_at=plan.now,
@@ -831,6 +966,7 @@ def build_list(
                 "output": str(Path(out).resolve()),
                 "sensitive": list(plan.sensitive),
                 "audience_sql": {"dialect": wh.dialect.name, "sql": ran.sql, "values": ran.params},
+                "cap_read": log.read_from if plan.request.cap_days > 0 else [],
             },
             rules=[asdict(r) for r in plan.rules],
             counts=outcome.counts(),
@@ -839,9 +975,13 @@ def build_list(
         contacts = outcome.listed.select(
             "customer_id", "contact_group", "score", pl.col("rule_id").alias("reason")
         )
-        log.record(record, contacts, replace=replace)
+        with log.recording(record, contacts, replace=replace):
+            stage(2)
+            path = staged.publish()
+            stage(3)
     except BaseException:
-        staged.discard()
+        staged.withdraw()
         raise
-    path = staged.publish()
-    return Built(outcome, path, staged.rows, log.where)
+    staged.settle()
+    stage(4)
+    return Built(outcome, path, staged.rows, log.where, tuple(notes))

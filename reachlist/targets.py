@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import difflib
 from dataclasses import dataclass
-from datetime import date, datetime, timedelta
+from datetime import UTC, date, datetime, timedelta
 from typing import Literal
 
 from reachlist.errors import InputError
@@ -148,10 +148,79 @@ def first_order_time(wh: Warehouse) -> datetime:
     return _order_time(wh, "min")
 
 
-def last_order_day(wh: Warehouse) -> datetime:
-    """The day after the last order: the default end of every window."""
-    last = _order_time(wh, "max")
-    return datetime(last.year, last.month, last.day) + timedelta(days=1)
+@dataclass(frozen=True)
+class OrderHistory:
+    """What the default window depends on (sql/order_history.sql), read in one pass."""
+
+    today: date
+    last_order: datetime | None  # the last order time not later than today
+    later_orders: int  # orders dated after today: left out of default windows, reported
+    latest_later: datetime | None
+    without_customer: int  # orders with no customer id: left out everywhere, reported
+
+    @property
+    def window_end(self) -> datetime | None:
+        """The day after the last order not later than today (None: no such order)."""
+        last = self.last_order
+        return None if last is None else datetime(last.year, last.month, last.day) + timedelta(1)
+
+    def notes(self, *, default_end: bool = True) -> list[str]:
+        """One line per quirk the user should know about (empty when there is none).
+        ``default_end``: the window ends where the history does (no --until given)."""
+        out = []
+        if self.later_orders and default_end:
+            latest = f"{self.latest_later:%Y-%m-%d}" if self.latest_later else "?"
+            out.append(
+                f"{self.later_orders:,} order(s) are dated after today ({self.today:%Y-%m-%d}; "
+                f"the latest {latest}): the default window ends at the last order up to today "
+                "and leaves them out. Fix their dates, or pass --until to choose the end."
+            )
+        if self.without_customer:
+            out.append(
+                f"{self.without_customer:,} order(s) have no customer id and were ignored "
+                "(no customer can hold what they contain)."
+            )
+        return out
+
+
+def utc_today() -> date:
+    """Today in UTC: the one place the commands read the calendar for a default window."""
+    return datetime.now(UTC).date()
+
+
+def order_history(wh: Warehouse, today: date | None = None) -> OrderHistory:
+    """The last order up to ``today`` (UTC today by default) and the orders a window leaves out."""
+    today = today or utc_today()
+    tomorrow = datetime(today.year, today.month, today.day) + timedelta(days=1)
+    row = wh.fetch(Query.from_template("order_history", {"tomorrow": tomorrow})).row(0, named=True)
+    last = row["last_order"]
+    later = row["latest_later"]
+    return OrderHistory(
+        today=today,
+        last_order=None if last is None else _as_datetime(last, "an order time"),
+        later_orders=int(row["later_orders"] or 0),
+        latest_later=None if later is None else _as_datetime(later, "an order time"),
+        without_customer=int(row["without_customer"] or 0),
+    )
+
+
+def last_order_day(wh: Warehouse, today: date | None = None) -> datetime:
+    """The day after the last order not later than ``today``: the default end of every window.
+
+    An order dated in the future (a typo such as 2062) does not move it; ``order_history`` counts
+    such orders so the commands can say so."""
+    return _window_end(order_history(wh, today))
+
+
+def _window_end(history: OrderHistory) -> datetime:
+    if history.window_end is None:
+        later = (f" ({history.later_orders:,} order(s) are all dated after today)"
+                 if history.later_orders else "")
+        raise InputError(
+            f"Expected order history up to today, found no orders in the warehouse{later}.",
+            hint="load orders first; `reachlist check` shows what the warehouse holds",
+        )
+    return history.window_end
 
 
 def mining_window(
@@ -160,9 +229,15 @@ def mining_window(
     until: date | datetime | str | None = None,
     *,
     days: int = 365,
+    today: date | None = None,
+    history: OrderHistory | None = None,
 ) -> Window:
-    """``until`` defaults to the day after the last order; ``since`` to ``days`` before it."""
-    end = _as_datetime(until, "--until") if until is not None else last_order_day(wh)
+    """``until`` defaults to the day after the last order not later than ``today`` (UTC today);
+    ``since`` to ``days`` before it. ``history`` (from ``order_history``) saves reading it again."""
+    if until is not None:
+        end = _as_datetime(until, "--until")
+    else:
+        end = _window_end(history if history is not None else order_history(wh, today))
     start = _as_datetime(since, "--since") if since is not None else end - timedelta(days=days)
     if start >= end:
         raise InputError(

@@ -15,12 +15,13 @@ WITH window_orders AS (
     SELECT order_id, customer_id, ordered_at
     FROM orders
     WHERE ordered_at >= :breadth_since AND ordered_at < :outcome_until
+      AND customer_id IS NOT NULL  -- an order without a customer is ignored everywhere
 ),
 target_orders AS (
     -- plus every earlier order, for the target's own SKUs only (to know who held it before)
     SELECT order_id, customer_id, ordered_at
     FROM orders
-    WHERE ordered_at < :outcome_until
+    WHERE ordered_at < :outcome_until AND customer_id IS NOT NULL
 ),
 lines AS (
     -- exact duplicate lines count once
@@ -68,7 +69,7 @@ bought AS (
     GROUP BY customer_id
 ),
 population AS (
-    SELECT DISTINCT customer_id FROM orders WHERE ordered_at < :cutoff
+    SELECT DISTINCT customer_id FROM orders WHERE ordered_at < :cutoff AND customer_id IS NOT NULL
 )
 SELECT pop.customer_id,
        coalesce(b.breadth, 0)                          AS breadth,

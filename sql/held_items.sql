@@ -9,6 +9,7 @@ WITH window_orders AS (
     FROM orders AS o
     WHERE o.ordered_at >= :since
       AND o.ordered_at < :until
+      AND o.customer_id IS NOT NULL  -- an order without a customer is ignored everywhere
 ),
 window_lines AS (
     -- de-duplicate only the lines of orders inside the window

@@ -15,6 +15,7 @@ bought_skus AS (
     JOIN orders AS o ON o.order_id = l.order_id
     WHERE o.ordered_at >= :since
       AND o.ordered_at < :until
+      AND o.customer_id IS NOT NULL  -- an order without a customer is ignored everywhere
     GROUP BY o.customer_id, l.sku
     HAVING sum(l.quantity) > 0
 )

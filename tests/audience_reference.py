@@ -19,6 +19,7 @@ from reachlist.targets import Target
 TABLES = ("customers", "products", "orders", "order_lines", "suppressions")
 FLAGS = (
     "has_target",
+    "returned_target",
     "no_consent",
     "suppressed",
     "not_adult",
@@ -28,6 +29,7 @@ FLAGS = (
 )
 ORDER = (
     "has_target",
+    "returned_target",
     "no_consent",
     "suppressed",
     "contacted_recently",
@@ -52,7 +54,9 @@ def held(
     """(customer_id, item) for every item a customer holds in [since, until)."""
     lines = tables["order_lines"].unique()  # exact duplicate lines count once
     orders = tables["orders"].filter(
-        (pl.col("ordered_at") >= since) & (pl.col("ordered_at") < until)
+        (pl.col("ordered_at") >= since)
+        & (pl.col("ordered_at") < until)
+        & pl.col("customer_id").is_not_null()
     )
     net = (
         lines.join(orders.select("order_id", "customer_id"), on="order_id")
@@ -86,6 +90,26 @@ def target_holders(tables: dict[str, pl.DataFrame], target: Target, since: datet
     return set(h.filter(pl.col("item") == target.name)["customer_id"].to_list())
 
 
+def target_returners(tables: dict[str, pl.DataFrame], target: Target, since: datetime,
+                     until: datetime) -> set[int]:
+    """Customers with a target SKU they bought (some line of positive quantity) and whose net
+    quantity of it in [since, until) is zero or less."""
+    lines = tables["order_lines"].unique()
+    orders = tables["orders"].filter(
+        (pl.col("ordered_at") >= since)
+        & (pl.col("ordered_at") < until)
+        & pl.col("customer_id").is_not_null()
+    )
+    skus = tables["products"].filter(pl.col(target.level) == target.name)["sku"]
+    per_sku = (
+        lines.filter(pl.col("sku").is_in(skus.implode()))
+        .join(orders.select("order_id", "customer_id"), on="order_id")
+        .group_by("customer_id", "sku")
+        .agg(pl.col("quantity").sum().alias("net"), (pl.col("quantity") > 0).any().alias("bought"))
+    )
+    return set(per_sku.filter(pl.col("bought") & (pl.col("net") <= 0))["customer_id"].to_list())
+
+
 def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFrame:
     """customer_id, rule_id, score and the seven SQL flags, one row per reached customer."""
     pairs = reach_pairs(tables, spec)
@@ -109,7 +133,11 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
         else until - timedelta(days=spec.bought_within_days)
     )
     owners = target_holders(tables, spec.target, target_since, until)
-    cust = {r["customer_id"]: r for r in tables["customers"].iter_rows(named=True)}
+    returners = target_returners(tables, spec.target, target_since, until)
+    # a customer id on several rows: every row is kept, and each flag is true if any row sets it
+    cust: dict[int, list[dict]] = {}
+    for r in tables["customers"].iter_rows(named=True):
+        cust.setdefault(r["customer_id"], []).append(r)
     suppressed = set(tables["suppressions"]["customer_id"].to_list())
     orders = tables["orders"]
     f = spec.filters
@@ -132,20 +160,22 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
     )
     rows = []
     for cid, rank in best.iter_rows():
-        c = cust.get(cid, {})
+        crows = cust.get(cid) or [{}]  # missing from customers: nothing known
         rule = by_rank[rank]
-        birth = c.get("birth_date")
+        births = [c.get("birth_date") for c in crows]
         rows.append(
             {
                 "customer_id": cid,
                 "rule_id": rule.rule_id,
                 "score": rule.score,
                 "has_target": cid in owners,
-                "no_consent": c.get("marketing_consent") is not True,
+                "returned_target": cid in returners and cid not in owners,
+                "no_consent": any(c.get("marketing_consent") is not True for c in crows),
                 "suppressed": cid in suppressed,
                 "not_adult": spec.age_restricted
-                and (birth is None or birth > spec.adult_born_by),
-                "outside_region": bool(f.regions) and c.get("region") not in f.regions,
+                and any(b is None or b > spec.adult_born_by for b in births),
+                "outside_region": bool(f.regions)
+                and any(c.get("region") not in f.regions for c in crows),
                 "outside_channel": bool(f.channels) and cid not in channel_ok,
                 "inactive": f.active_days is not None and cid not in active_ok,
             }

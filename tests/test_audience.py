@@ -89,10 +89,13 @@ def test_edge_cases_by_hand(world: Path) -> None:
     assert rows[4]["rule_id"] == "R1"  # reached by R1 and R2: listed once, best rule
     assert rows[6]["rule_id"] == "R2"  # duplicate line counted once, so the return cancels A
     assert 5 not in rows and 2 not in rows and 9 not in rows and 22 not in rows
-    assert rows[7]["has_target"] is False  # bought and returned the target
+    # bought the target and returned it: does not hold it, and is flagged for its own step
+    assert rows[7]["has_target"] is False and rows[7]["returned_target"] is True
+    assert not any(r["returned_target"] for c, r in rows.items() if c != 7)
     assert rows[8]["has_target"] is True
     assert rows[18]["has_target"] is True  # bought the target long ago: "ever" by default
-    assert rows[23]["has_target"] is False  # a zero-quantity line holds nothing
+    assert rows[23]["has_target"] is False  # a zero-quantity line holds nothing ...
+    assert rows[23]["returned_target"] is False  # ... and is no purchase either
     assert rows[14]["no_consent"] is True  # not in customers: no consent known
     assert rows[11]["no_consent"] is True and rows[12]["suppressed"] is True
     assert rows[19]["suppressed"] is True

@@ -103,7 +103,7 @@ def test_preview_is_quick_and_adds_up(wh: Warehouse, tables: dict) -> None:
     assert sum(r.adds for r in out.per_rule or []) == kept == out.listed.height
     assert out.holdout.height == pytest.approx(0.1 * kept, abs=4 * (0.09 * kept) ** 0.5)
     aud = ref.audience(tables, plan.spec).with_columns(pl.lit(False).alias("contacted_recently"))
-    in_use = {"has_target", "no_consent", "suppressed", "contacted_recently"}
+    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "contacted_recently"}
     expected = sum(1 for r in aud.to_dicts() if ref.first_exclusion(r, in_use) is None)
     assert kept == expected
 

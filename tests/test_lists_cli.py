@@ -162,3 +162,52 @@ def test_overlap_flags_items_that_sell_together(sample: Path) -> None:
     assert f"{KEY_SKUS['pressure_washer']} + {KEY_SKUS['patio_cleaner']}" in result.output
     assert "Advice:" in result.output and "holm-corrected" in result.output
     assert "2 to 15" in one_error_line(run("overlap", MAT, "-w", str(sample)))
+
+
+def test_orders_without_customer_or_from_the_future_do_not_break_sizes(sample: Path) -> None:
+    con = duckdb.connect(str(sample))
+    # the sample declares orders.customer_id NOT NULL; a real warehouse may not
+    con.execute("CREATE TABLE orders_copy AS SELECT * FROM orders")
+    con.execute("DROP TABLE orders")
+    con.execute("ALTER TABLE orders_copy RENAME TO orders")
+    con.execute("UPDATE orders SET customer_id = NULL WHERE order_id % 50 = 0")
+    nulls = con.execute("SELECT count(*) FROM orders WHERE customer_id IS NULL").fetchone()[0]
+    last = con.execute("SELECT max(ordered_at) FROM orders").fetchone()[0]
+    con.execute("UPDATE orders SET ordered_at = TIMESTAMP '2062-05-01 10:00' "
+                "WHERE order_id = (SELECT min(order_id) FROM orders)")
+    con.close()
+    result = run("sizes", MAT, "-w", str(sample), "--no-estimate", "--campaign", "n")
+    assert result.exit_code == 0, result.output
+    text = " ".join(result.output.split())
+    assert f"{nulls:,} order(s) have no customer id and were ignored" in text
+    assert "1 order(s) are dated after today" in text and "the latest 2062-05-01" in text
+    assert f".. {last:%Y-%m-%d} (sku items" in text  # the window still ends at the last order
+
+
+def test_a_misspelt_region_is_an_input_error_with_a_suggestion(sample: Path) -> None:
+    line = one_error_line(run("sizes", MAT, "-w", str(sample), "--region", "north",
+                              "--min-audience", "0"))
+    assert "found 'north'" in line and "did you mean --region 'North'?" in line
+
+
+def test_build_with_state_caps_on_campaigns_logged_in_the_warehouse(
+    sample: Path, tmp_path: Path
+) -> None:
+    common = ("-w", str(sample), "--no-estimate")
+    first = run("build", MAT, *common, "--out", str(tmp_path / "a.csv"), "--campaign", "wh-1")
+    assert first.exit_code == 0, first.output
+    contacted = set(pl.read_csv(tmp_path / "a.csv")["customer_id"])
+    state = tmp_path / "state.duckdb"
+    # a preview with a state file that does not exist yet still reads the warehouse's log
+    preview = run("sizes", MAT, *common, "--state", str(state), "--campaign", "st-1")
+    line = next(ln for ln in preview.output.splitlines() if "frequency cap" in ln)
+    assert f"{len(contacted):,}" in line
+    second = run("build", MAT, *common, "--out", str(tmp_path / "b.csv"), "--state", str(state),
+                 "--campaign", "st-1", "--min-audience", "0")
+    assert second.exit_code == 0, second.output
+    line = next(ln for ln in second.output.splitlines() if "frequency cap" in ln)
+    assert line.split("│")[1].strip() == f"{len(contacted):,}"  # every earlier contact removed
+    assert contacted.isdisjoint(pl.read_csv(tmp_path / "b.csv")["customer_id"])
+    with Warehouse.open(state, read_only=True) as db:
+        record = CampaignLog(db).campaign("st-1")
+    assert record is not None and record["parameters"]["cap_read"] == [str(state), str(sample)]

@@ -66,6 +66,10 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
                          help="Do not exclude suppressed customers (printed and logged)."),
             click.option("--allow-sensitive", is_flag=True,
                          help="Allow a target or rule in a sensitive category."),
+            click.option("--merge-duplicates", is_flag=True,
+                         help="Accept customer ids on several rows of customers: each is listed "
+                         "once and read by its strictest row (no consent if any row says none, "
+                         "an adult only if every row says so) [default: refuse]."),
         ]
     ):
         fn = option(fn)
@@ -112,6 +116,7 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         ignore_consent=opts["ignore_consent"],
         ignore_suppressions=opts["ignore_suppressions"],
         allow_sensitive=opts["allow_sensitive"],
+        merge_duplicates=opts["merge_duplicates"],
         stock=opts["stock"],
         contact=contact,
         min_audience=opts.get("min_audience", 0),
@@ -175,8 +180,9 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
     from reachlist.lists import plan_list, preview_list
     from reachlist.render.lists import render_sizes
 
-    # A preview writes nothing: a --state file that does not exist yet is not created.
-    log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else None
+    # A preview writes nothing: a --state file that does not exist yet is not created (the
+    # warehouse's own log, when it has one, is still read for the contact cap).
+    log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else CampaignLog(wh)
     try:
         with delayed_status(out, "Mining rules") as progress:
             plan = plan_list(wh, _request(target, opts), progress=progress)

@@ -199,6 +199,8 @@ def render_built(built: Built, console: Console) -> None:
     render_warnings(o.plan, console, logged=True)
     console.print(waterfall_table(o))
     render_outcome_totals(o, console)
+    for note in built.notes:
+        console.print(f"Note: {escape(note)}", soft_wrap=True)
     console.print(
         f"[green]Wrote {built.rows:,} customers to {escape(str(built.path))}[/]; campaign "
         f"{escape(o.plan.campaign_id)} with {o.holdout.height:,} held-out customers logged in "

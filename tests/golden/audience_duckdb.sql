@@ -6,8 +6,10 @@
 -- is positive (returns cancel purchases), exact duplicate lines count once, SKUs missing from
 -- products are ignored, and a category or department is held when any SKU in it is held.
 --
+-- Orders without a customer id are ignored (no customer can hold what they contain).
+--
 -- reachlist removes flagged customers in this fixed order and counts each step:
---   has_target, no_consent, suppressed, contacted recently, not_adult,
+--   has_target, returned_target, no_consent, suppressed, contacted recently, not_adult,
 --   outside_region, outside_channel, inactive
 -- The contact-frequency cap (it reads the campaign log, which may live in another database) and
 -- the holdout (a hash of campaign id and customer id) are applied by reachlist after this query.
@@ -25,6 +27,7 @@ antecedent_skus AS (
     JOIN orders AS o ON o.order_id = l.order_id
     WHERE o.ordered_at >= $since
       AND o.ordered_at < $until
+      AND o.customer_id IS NOT NULL
     GROUP BY o.customer_id, l.sku
     HAVING sum(l.quantity) > 0
 ),
@@ -36,19 +39,29 @@ held AS (
     WHERE p.sku IN ($antecedent_items_0, $antecedent_items_1, $antecedent_items_2, $antecedent_items_3)
 ),
 target_skus AS (
-    -- target SKUs each customer holds between the target-window start (year 1: ever) and the
-    -- cutoff
-    SELECT o.customer_id, l.sku
+    -- each customer's net quantity of each target SKU between the target-window start (year 1:
+    -- ever) and the cutoff, and whether any of those lines was a purchase
+    SELECT o.customer_id, l.sku,
+           sum(l.quantity) AS net_quantity,
+           max(CASE WHEN l.quantity > 0 THEN 1 ELSE 0 END) AS bought
     FROM clean_lines AS l
     JOIN orders AS o ON o.order_id = l.order_id
     WHERE o.ordered_at >= $target_since
       AND o.ordered_at < $until
+      AND o.customer_id IS NOT NULL
       AND l.sku IN (SELECT sku FROM products WHERE sku = $target)
     GROUP BY o.customer_id, l.sku
-    HAVING sum(l.quantity) > 0
 ),
 has_target AS (
-    SELECT DISTINCT customer_id FROM target_skus
+    -- customers who hold a target SKU (net quantity positive)
+    SELECT DISTINCT customer_id FROM target_skus WHERE net_quantity > 0
+),
+returned_target AS (
+    -- customers who bought the target and returned all of it (they hold no target SKU: every
+    -- net quantity is zero or less): not offered the item they just sent back
+    SELECT customer_id FROM target_skus
+    GROUP BY customer_id
+    HAVING max(bought) = 1 AND max(net_quantity) <= 0
 ),
 rule_1 AS (
     -- customers holding every antecedent item of rule 1
@@ -93,6 +106,21 @@ best AS (
     ) AS ranked
     WHERE pick = 1
 ),
+customer_facts AS (
+    -- one row per reached customer. A customer id on several rows of customers (a warehouse
+    -- quirk; reachlist refuses it unless the user asks to merge them) reads as strictly as its
+    -- strictest row: consent only if every row gives it, an adult only if every row says so, in
+    -- a chosen region only if every row is. A customer missing from customers matches no row
+    -- here and counts as no consent, age unknown, region unknown.
+    SELECT customer_id,
+           max(CASE WHEN marketing_consent IS NOT TRUE THEN 1 ELSE 0 END) AS no_consent,
+           max(CASE WHEN birth_date IS NULL OR birth_date > $adult_born_by THEN 1 ELSE 0 END) AS not_adult,
+           max(CASE WHEN NOT coalesce(region IN ($regions_0), FALSE) THEN 1 ELSE 0 END) AS outside_region,
+           min(email) AS email
+    FROM customers
+    WHERE customer_id IN (SELECT customer_id FROM best)
+    GROUP BY customer_id
+),
 suppressed AS (
     SELECT DISTINCT customer_id FROM suppressions
 ),
@@ -111,16 +139,18 @@ SELECT
     b.rule_id,
     b.score,
     t.customer_id IS NOT NULL          AS has_target,
-    c.marketing_consent IS NOT TRUE    AS no_consent,
+    r.customer_id IS NOT NULL          AS returned_target,
+    coalesce(c.no_consent = 1, TRUE)   AS no_consent,
     s.customer_id IS NOT NULL          AS suppressed,
-    (c.birth_date IS NULL OR c.birth_date > $adult_born_by) AS not_adult,
-    NOT coalesce(c.region IN ($regions_0), FALSE) AS outside_region,
+    coalesce(c.not_adult = 1, TRUE)    AS not_adult,
+    coalesce(c.outside_region = 1, TRUE) AS outside_region,
     ch.customer_id IS NULL             AS outside_channel,
     a.customer_id IS NULL              AS inactive,
     c.email
 FROM best AS b
-LEFT JOIN customers AS c ON c.customer_id = b.customer_id
+LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
 LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
+LEFT JOIN returned_target AS r ON r.customer_id = b.customer_id
 LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id
 LEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id
 LEFT JOIN active_customers AS a ON a.customer_id = b.customer_id
