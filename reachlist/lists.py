@@ -373,8 +373,7 @@ def plan_list(
         raise InputError(
             f"Expected purchase history for {target}, found no customer who bought it before "
             f"{window.until:%Y-%m-%d}, so no rule can point at it.",
-            hint="pass --stand-in with an existing sku or category:NAME whose buyers are like "
-            "the ones you want",
+            hint=_stand_in_hint(wh, target, window.until),  # type: ignore[arg-type]
         )
     if rules is None:
         from reachlist.rules import mine_rules
@@ -533,6 +532,38 @@ def item_facts(wh: Warehouse, item: Target) -> dict[str, Any]:
 
 
 HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
+
+
+def _stand_in_hint(wh: Warehouse, target: Target, until: datetime) -> str:
+    """How to introduce an item nobody has bought: name its own category (or department)."""
+    generic = (
+        "pass --stand-in with an existing sku or category:NAME whose buyers are like the ones "
+        "you want"
+    )
+    if target.level != "sku":
+        return generic
+    groups = wh.fetch(Query.from_template("item_groups", {"sku": target.name}))
+    if groups.height == 0:
+        return generic
+    for level in ("category", "department"):
+        name = groups[level][0]
+        if name is None:
+            continue
+        group = Target(level, str(name))  # type: ignore[arg-type]
+        buyers = item_buyers(wh, group, until)[0]
+        if buyers:
+            return (
+                f"pass --stand-in {level}:{quote_option(str(name))} (its own {level}: "
+                f"{buyers:,} buyers), or another item whose buyers are like the ones you want"
+            )
+    return generic
+
+
+def quote_option(value: str) -> str:
+    """A value as a user would type it in a shell: quoted when it holds spaces or symbols."""
+    if value and all(ch.isalnum() or ch in "-_." for ch in value):
+        return value
+    return '"' + value.replace('"', '\\"') + '"'
 
 
 def item_buyers(wh: Warehouse, item: Target, until: datetime) -> tuple[int, float]:

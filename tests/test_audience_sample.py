@@ -127,8 +127,12 @@ def test_clearing_the_frost_fleece_stops_at_the_stock(wh: Warehouse) -> None:
 
 def test_the_new_planter_is_introduced_through_its_category(wh: Warehouse) -> None:
     new = KEY_SKUS["self_watering_planter"]
-    with pytest.raises(InputError, match="--stand-in"):
+    with pytest.raises(InputError, match="--stand-in") as refused:
         plan_list(wh, ListRequest(new), now=NOW)
+    # the hint names the item's own category, with its buyers, as the stand-in to pass
+    assert '--stand-in category:"Indoor Pots & Planters" (its own category: ' in str(
+        refused.value.hint
+    )
     plan = plan_list(
         wh, ListRequest(new, stand_in="category:Indoor Pots & Planters", campaign_id="n"),
         now=NOW,
