@@ -77,7 +77,7 @@ def main() -> None:
 
 
 # Command modules register themselves on `main`; imported last to avoid a cycle.
-from reachlist.cli import catalog, data, demo, lists, mining, takeup  # noqa: E402,F401
+from reachlist.cli import campaigns, catalog, data, demo, lists, mining, takeup  # noqa: E402,F401
 
 if __name__ == "__main__":  # pragma: no cover
     main()

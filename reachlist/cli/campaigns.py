@@ -1,0 +1,35 @@
+"""`reachlist campaigns`: what the campaign log holds, newest first."""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+
+import click
+
+from reachlist.cli import main, out, warehouse_options
+from reachlist.warehouse import Warehouse
+
+
+@main.command()
+@warehouse_options
+@click.option("--state", default=None, metavar="PATH",
+              help="Local DuckDB file holding the campaign log (the warehouse's log is read too).")
+@click.option("--limit", default=50, show_default=True, type=click.IntRange(1, 10_000),
+              help="Newest campaigns shown from each log.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
+def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool) -> None:
+    """Campaigns built so far: target, build day, contacted and held-out customers, and when
+    their results can be read.
+
+    Example: reachlist campaigns --limit 10
+    """
+    from reachlist.campaign_list import list_campaigns
+    from reachlist.campaigns import CampaignLog
+    from reachlist.render.campaigns import campaigns_json, render_campaigns
+
+    with CampaignLog.open(wh, state) as log:
+        listing = list_campaigns(log, today=datetime.now(UTC).date(), limit=limit)
+    if as_json:
+        click.echo(campaigns_json(listing))
+    else:
+        render_campaigns(out, listing)

@@ -1,0 +1,3 @@
+-- How many campaigns one log holds.
+SELECT count(*) AS n
+FROM campaigns
