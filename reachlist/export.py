@@ -32,11 +32,13 @@ __all__ = [
     "FORMATS",
     "Leftovers",
     "StagedFile",
+    "StagedSet",
     "check_destination",
     "clear_leftovers",
     "list_format",
     "neutralise_formulas",
     "stage_list",
+    "stage_text",
     "write_list",
 ]
 
@@ -68,10 +70,14 @@ def list_format(path: str | os.PathLike[str]) -> str:
     return FORMATS[suffix]
 
 
-def check_destination(path: str | os.PathLike[str], *, force: bool = False) -> Path:
-    """Fail early, before any work, when the list could not be written."""
+def check_destination(
+    path: str | os.PathLike[str], *, force: bool = False, list_file: bool = True
+) -> Path:
+    """Fail early, before any work, when the list (or, with ``list_file=False``, a file that goes
+    with it) could not be written."""
     p = Path(path)
-    list_format(p)
+    if list_file:
+        list_format(p)
     if p.is_dir():
         raise StateError(
             f"Expected a file path for the list, found a directory at {str(p)!r}.",
@@ -79,7 +85,7 @@ def check_destination(path: str | os.PathLike[str], *, force: bool = False) -> P
         )
     if p.exists() and not force:
         raise StateError(
-            f"List file {str(p)!r} already exists; nothing was written.",
+            f"{'List file' if list_file else 'File'} {str(p)!r} already exists; nothing was written.",
             hint="pass --force to overwrite it, or choose another --out",
         )
     if not p.parent.is_dir():
@@ -220,10 +226,25 @@ def clear_leftovers(path: str | os.PathLike[str]) -> Leftovers:
     return Leftovers(tuple(removed), tuple(kept))
 
 
+def _follow_umask(path: Path) -> None:
+    """Staging files are created owner-only; the finished file gets the mode a new file would
+    have under the process's umask, so a mailer running as another user can read it when the
+    umask allows (set a stricter umask, such as 077, to keep lists owner-only)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    os.chmod(path, 0o666 & ~mask)
+
+
 def stage_list(
-    frame: pl.DataFrame, path: str | os.PathLike[str], *, force: bool = False
+    frame: pl.DataFrame,
+    path: str | os.PathLike[str],
+    *,
+    force: bool = False,
+    metadata: dict[str, str] | None = None,
 ) -> StagedFile:
-    """Write ``frame`` to a temporary file beside ``path`` (nothing at ``path`` changes yet)."""
+    """Write ``frame`` to a temporary file beside ``path`` (nothing at ``path`` changes yet).
+    ``metadata`` goes into a Parquet file's key-value metadata (CSV has none: see
+    :func:`stage_text` for a sidecar)."""
     final = check_destination(path, force=force)
     fmt = list_format(final)
     temp = _hidden(final)
@@ -231,11 +252,64 @@ def stage_list(
         if fmt == "csv":
             neutralise_formulas(frame).write_csv(temp)
         else:
-            frame.write_parquet(temp)
+            frame.write_parquet(temp, metadata=metadata)
+        _follow_umask(temp)
     except BaseException:
         temp.unlink(missing_ok=True)
         raise
     return StagedFile(temp, final, force, frame.height)
+
+
+def stage_text(text: str, path: str | os.PathLike[str], *, force: bool = False) -> StagedFile:
+    """Write ``text`` (a sidecar file) to a temporary file beside ``path``."""
+    final = Path(path)
+    if final.exists() and not force:
+        raise StateError(
+            f"File {str(final)!r} already exists; nothing was written.",
+            hint="pass --force to overwrite it, or choose another --out",
+        )
+    temp = _hidden(final)
+    try:
+        temp.write_text(text, encoding="utf-8")
+        _follow_umask(temp)
+    except BaseException:
+        temp.unlink(missing_ok=True)
+        raise
+    return StagedFile(temp, final, force, text.count("\n"))
+
+
+@dataclass
+class StagedSet:
+    """Several staged files published and withdrawn together (a list, its holdout file and its
+    provenance sidecar): after ``withdraw`` none of them is in place."""
+
+    files: list[StagedFile]
+
+    def publish(self) -> Path:
+        done: list[StagedFile] = []
+        try:
+            for f in self.files:
+                f.publish()
+                done.append(f)
+        except BaseException:
+            for f in reversed(done):
+                f.withdraw()
+            for f in self.files:
+                f.discard()
+            raise
+        return self.files[0].final
+
+    def withdraw(self) -> None:
+        for f in reversed(self.files):
+            f.withdraw()
+
+    def settle(self) -> None:
+        for f in self.files:
+            f.settle()
+
+    @property
+    def rows(self) -> int:
+        return self.files[0].rows
 
 
 def write_list(frame: pl.DataFrame, path: str | os.PathLike[str], *, force: bool = False) -> Path:

@@ -34,6 +34,13 @@ from reachlist.audience import (
     rule_rate_interval,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
+from reachlist.delivery import (
+    PROVENANCE_KEY,
+    delivery_frames,
+    holdout_path,
+    provenance_json,
+    sidecar_path,
+)
 from reachlist.errors import ContractError, EmptyResultError, InputError, ReachlistError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
@@ -45,7 +52,15 @@ from reachlist.estimate import (
     holdout_planning,
 )
 from reachlist.exclusions import STEPS, StepCount, apply_exclusions
-from reachlist.export import check_destination, clear_leftovers, stage_list
+from reachlist.export import (
+    StagedFile,
+    StagedSet,
+    check_destination,
+    clear_leftovers,
+    list_format,
+    stage_list,
+    stage_text,
+)
 from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
 from reachlist.query import Query, Rendered
 from reachlist.targets import (
@@ -114,7 +129,8 @@ class ListRequest:
     # so) and listed once.
     merge_duplicates: bool = False
     stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
-    contact: bool = False  # add contact fields (email) to the exported list
+    contact: bool = False  # add contact fields (email, consent date) to the exported list
+    offer_code: str | None = None  # the offer's code, written on every exported row
     # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
     # library computes it only when asked; the CLI asks by default (--no-estimate skips it).
     estimate: bool = False
@@ -288,6 +304,7 @@ class Built:
     rows: int
     log_where: str
     notes: tuple[str, ...] = ()  # staging left-overs removed or found; a log without keys
+    also_written: tuple[Path, ...] = ()  # the holdout file and (CSV) the provenance sidecar
 
 
 BUILD_STAGES = (
@@ -345,6 +362,12 @@ def plan_list(
         raise InputError(
             f"Expected --stock of at least 1 unit, found {request.stock}.",
             hint="leave it out to use products.stock_on_hand",
+        )
+    if request.offer_code is not None and not OFFER_CODE.fullmatch(request.offer_code):
+        raise InputError(
+            f"Expected --offer-code of 1 to 64 letters, digits or - _ . / (a coupon or promotion "
+            f"code), found {request.offer_code!r}.",
+            hint="pass the code as the CRM platform knows it, for example --offer-code MAT-WINTER-15",
         )
     now = now or datetime.now(UTC).replace(tzinfo=None)
     merged = check_duplicate_customers(wh, merge=request.merge_duplicates)
@@ -531,6 +554,7 @@ def item_facts(wh: Warehouse, item: Target) -> dict[str, Any]:
     return wh.fetch(q).row(0, named=True)
 
 
+OFFER_CODE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_./-]{0,63}")
 HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
 
 
@@ -916,18 +940,34 @@ def settle_plan(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> Pl
     return _settle(wh, plan, log)[0]
 
 
-def list_frame(outcome: ListOutcome) -> pl.DataFrame:
-    """The rows exported for contact: the treatment group only, best score first."""
-    reasons = {r.rule_id: r.describe() for r in outcome.plan.rules}
-    cols = [
-        pl.col("customer_id"),
-        pl.col("score"),
-        pl.col("rule_id"),
-        pl.col("rule_id").replace_strict(reasons, return_dtype=pl.String).alias("reason"),
-    ]
-    if outcome.plan.spec.contact:
-        cols.append(pl.col("email"))
-    return outcome.treatment.sort(["score", "customer_id"], descending=[True, False]).select(cols)
+def delivered_paths(out: str | Path) -> list[Path]:
+    """Every file a build to ``out`` writes: the list, its holdout file and (CSV) the sidecar."""
+    paths = [Path(out), holdout_path(out)]
+    if list_format(out) == "csv":
+        paths.append(sidecar_path(out))
+    return paths
+
+
+def _stage_delivery(wh: Warehouse, outcome: ListOutcome, out: str | Path,
+                    force: bool) -> StagedSet:
+    from reachlist import __version__
+
+    plan = outcome.plan
+    delivery = delivery_frames(wh, outcome, built_at=plan.now, version=__version__,
+                               offer_code=plan.request.offer_code)
+    provenance = provenance_json(delivery.provenance)
+    meta = {PROVENANCE_KEY: provenance}
+    files: list[StagedFile] = []
+    try:
+        files.append(stage_list(delivery.contacts, out, force=force, metadata=meta))
+        files.append(stage_list(delivery.holdout, holdout_path(out), force=force, metadata=meta))
+        if list_format(out) == "csv":
+            files.append(stage_text(provenance, sidecar_path(out), force=force))
+    except BaseException:
+        for f in files:
+            f.discard()
+        raise
+    return StagedSet(files)
 
 
 def build_list(
@@ -948,7 +988,8 @@ def build_list(
     never logged for a list that does not exist. Staging files that interrupted builds left
     beside ``out`` are removed first (or reported when their process may still run).
     """
-    check_destination(out, force=force)
+    for i, path in enumerate(delivered_paths(out)):
+        check_destination(path, force=force, list_file=i < 2)
     log.refuse_existing(plan.campaign_id, replace=replace)
     if plan.request.min_audience > 0:
         plan, frame, waterfall, _ = _settle(wh, plan, log)
@@ -963,8 +1004,7 @@ def build_list(
             f"and holdout (rules reached {outcome.reached:,}{why}); nothing was written.",
             hint="run `reachlist sizes` with the same options to see the waterfall",
         )
-    leftovers = clear_leftovers(out)
-    notes = leftovers.notes()
+    notes = [n for path in delivered_paths(out) for n in clear_leftovers(path).notes()]
     unkeyed = log.unkeyed()
     if unkeyed:
         notes.append(
@@ -978,7 +1018,7 @@ def build_list(
         if progress is not None:
             progress(BUILD_STAGES[n - 1], n, total)
 
-    staged = stage_list(list_frame(outcome), out, force=force)
+    staged = _stage_delivery(wh, outcome, out, force)
     try:
         stage(1)
         ran = plan.sql(wh)
@@ -1015,4 +1055,5 @@ def build_list(
         raise
     staged.settle()
     stage(4)
-    return Built(outcome, path, staged.rows, log.where, tuple(notes))
+    return Built(outcome, path, staged.rows, log.where, tuple(notes),
+                 tuple(f.final for f in staged.files[1:]))

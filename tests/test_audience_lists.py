@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import math
 import shutil
 from collections import Counter
@@ -213,9 +214,19 @@ def test_build_writes_treatment_only_and_logs_both_groups(world: Path, tmp_path:
         record = log.campaign("c1")
         contacts = log.contacts("c1")
     written = pl.read_csv(out)
-    assert written.columns == ["customer_id", "score", "rule_id", "reason"]
+    assert written.columns == ["customer_id", "campaign_id", "offer_item", "offer_name", "score",
+                               "rule_id", "because_bought"]
     assert set(written["customer_id"]) == set(built.outcome.treatment["customer_id"])
-    assert written["reason"][0] == "A + B -> T"
+    assert written["because_bought"][0] == "A and B"  # the hand-made products are named as coded
+    assert set(written["campaign_id"]) == {"c1"} and set(written["offer_item"]) == {"T"}
+    # the holdout file holds exactly the logged holdout; the sidecar says where both came from
+    held = pl.read_csv(tmp_path / "list.holdout.csv")
+    assert set(held["customer_id"]) == set(built.outcome.holdout["customer_id"])
+    assert held.height == built.outcome.holdout.height > 0
+    sidecar = json.loads((tmp_path / "list.csv.json").read_text())
+    assert sidecar["campaign_id"] == "c1" and sidecar["contacts"] == written.height
+    assert sidecar["holdout"] == held.height and sidecar["columns"] == written.columns
+    assert built.also_written == (tmp_path / "list.holdout.csv", tmp_path / "list.csv.json")
     groups = dict(contacts.group_by("contact_group").len().iter_rows())
     assert groups == {"treatment": written.height, "holdout": built.outcome.holdout.height}
     assert set(contacts.filter(pl.col("contact_group") == "holdout")["customer_id"]).isdisjoint(

@@ -19,7 +19,7 @@ def test_demo_runs_end_to_end_and_twice(tmp_path: Path) -> None:
     assert "Caution: direct marketing is regulated" in result.output
     listed = pl.read_csv(tmp_path / "demo" / "heated-mat.csv")
     assert listed.height > 100
-    assert set(listed.columns) >= {"customer_id", "score", "reason"}
+    assert set(listed.columns) >= {"customer_id", "score", "because_bought", "offer_name"}
     assert "email" not in listed.columns  # contact details only when asked for
 
 

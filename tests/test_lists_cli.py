@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import duckdb
@@ -76,7 +77,20 @@ def test_build_writes_logs_and_refuses_to_overwrite(sample: Path, tmp_path: Path
     assert first.exit_code == 0, first.output
     assert "Wrote" in first.output and CAUTION_START in first.output
     listed = pl.read_csv(out)
-    assert listed.columns == ["customer_id", "score", "rule_id", "reason"]
+    assert listed.columns == ["customer_id", "campaign_id", "offer_item", "offer_name", "score",
+                              "rule_id", "because_bought"]
+    con = duckdb.connect(str(sample), read_only=True)
+    names = dict(con.execute("SELECT sku, name FROM products").fetchall())
+    consent = dict(con.execute("SELECT customer_id, consent_date FROM customers").fetchall())
+    con.close()
+    assert set(listed["offer_name"]) == {names[MAT]}
+    # each row's words name the products of its rule's antecedent, read from products directly
+    with Warehouse.open(sample, read_only=True) as wh:
+        rules = {r["rule_id"]: r for r in CampaignLog(wh).campaign("mats-1")["rules"]}
+    for rule_id, words in set(zip(listed["rule_id"], listed["because_bought"], strict=True)):
+        for sku in rules[rule_id]["antecedent"]:
+            assert names[sku] in words
+    assert all(len(str(s).split(".")[-1]) <= 4 for s in listed["score"])  # rounded
     with Warehouse.open(sample, read_only=True) as wh:
         log = CampaignLog(wh)
         record = log.campaign("mats-1")
@@ -85,9 +99,47 @@ def test_build_writes_logs_and_refuses_to_overwrite(sample: Path, tmp_path: Path
     assert set(contacts["contact_group"]) == {"treatment", "holdout"}
     assert "already exists" in one_error_line(run(*args))
     assert "--replace" in one_error_line(run(*args, "--force"))
-    again = run(*args, "--force", "--replace", "--with-contact")
+    again = run(*args, "--force", "--replace", "--with-contact", "--offer-code", "MAT-15")
     assert again.exit_code == 0, again.output
-    assert "email" in pl.read_csv(out).columns
+    contact = pl.read_csv(out, try_parse_dates=True)
+    assert {"email", "consent_date"} <= set(contact.columns)
+    assert set(contact["offer_code"]) == {"MAT-15"}
+    for cid, day in contact.select("customer_id", "consent_date").head(50).iter_rows():
+        assert day == consent[cid]
+
+
+def test_parquet_lists_carry_their_provenance(sample: Path, tmp_path: Path) -> None:
+    out = tmp_path / "mats.parquet"
+    result = run("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "pq-1",
+                 "--no-estimate")
+    assert result.exit_code == 0, result.output
+    meta = json.loads(pl.read_parquet_metadata(out)["reachlist"])
+    listed, held = pl.read_parquet(out), pl.read_parquet(tmp_path / "mats.holdout.parquet")
+    assert meta["campaign_id"] == "pq-1" and meta["target"] == MAT
+    assert meta["contacts"] == listed.height and meta["holdout"] == held.height
+    assert set(listed["customer_id"]).isdisjoint(held["customer_id"])
+    assert not (tmp_path / "mats.parquet.json").exists()  # Parquet holds it inside
+
+
+def test_an_offer_code_is_checked_before_any_work(sample: Path, tmp_path: Path) -> None:
+    line = one_error_line(run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "a.csv"),
+                              "--offer-code", "=HYPERLINK(1)"))
+    assert "--offer-code" in line and "found '=HYPERLINK(1)'" in line
+    assert [p.name for p in tmp_path.iterdir()] == [sample.name]  # nothing written
+
+
+def test_files_follow_the_umask(sample: Path, tmp_path: Path) -> None:
+    import os
+
+    old = os.umask(0o022)
+    try:
+        result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "u.csv"),
+                     "--campaign", "u", "--no-estimate")
+    finally:
+        os.umask(old)
+    assert result.exit_code == 0, result.output
+    for name in ("u.csv", "u.holdout.csv", "u.csv.json"):
+        assert (tmp_path / name).stat().st_mode & 0o777 == 0o644, name
 
 
 def test_switching_off_consent_is_printed_and_logged(sample: Path, tmp_path: Path) -> None:

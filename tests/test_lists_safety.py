@@ -234,11 +234,11 @@ def test_csv_cells_that_start_like_formulas_are_neutralised(tmp_path: Path) -> N
         build_list(wh, plan, tmp_path / "l.csv", log=CampaignLog.open(wh))
         build_list(wh, plan, tmp_path / "l.parquet", log=CampaignLog.open(wh), replace=True)
     csv = pl.read_csv(tmp_path / "l.csv")
-    assert set(csv["reason"]) == {"'" + HOSTILE + " -> T"}
+    assert set(csv["because_bought"]) == {"'" + HOSTILE}  # the product is named as coded
     assert set(csv["rule_id"]) == {"'-R1"}
     assert csv["customer_id"].to_list() == [1, 2]  # integer ids are numbers, not text cells
     parquet = pl.read_parquet(tmp_path / "l.parquet")
-    assert set(parquet["reason"]) == {HOSTILE + " -> T"} and set(parquet["rule_id"]) == {"-R1"}
+    assert set(parquet["because_bought"]) == {HOSTILE} and set(parquet["rule_id"]) == {"-R1"}
 
 
 # -- the contact cap reads every campaign log ------------------------------------------------------

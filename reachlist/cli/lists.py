@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -205,11 +206,14 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
               help="List file to write: .csv or .parquet.")
 @click.option("--force", is_flag=True, help="Overwrite an existing list file.")
 @click.option("--replace", is_flag=True, help="Replace the campaign log's record of this campaign.")
-@click.option("--with-contact", is_flag=True, help="Add contact fields (email) to the list.")
+@click.option("--with-contact", is_flag=True,
+              help="Add contact fields (email, consent date) to the list.")
+@click.option("--offer-code", default=None, metavar="CODE",
+              help="The offer's code (a coupon or promotion code), written on every row.")
 @click.option("--state", default=None, metavar="PATH",
               help="Keep the campaign log in this local DuckDB file (for a read-only warehouse).")
 def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
-          with_contact: bool, state: str | None, **opts: Any) -> None:
+          with_contact: bool, offer_code: str | None, state: str | None, **opts: Any) -> None:
     """Write the contact list for TARGET and record the campaign in the campaign log."""
     from reachlist.campaigns import CampaignLog
     from reachlist.export import check_destination
@@ -218,7 +222,9 @@ def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
 
     check_destination(out_path, force=force)
     with delayed_status(out, "Mining rules") as progress, CampaignLog.open(wh, state) as log:
-        plan = plan_list(wh, _request(target, opts, contact=with_contact), progress=progress)
+        request = dataclasses.replace(_request(target, opts, contact=with_contact),
+                                      offer_code=offer_code)
+        plan = plan_list(wh, request, progress=progress)
         progress("Building the list")
         built = build_list(wh, plan, out_path, log=log, force=force, replace=replace)
     render_built(built, out)

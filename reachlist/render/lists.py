@@ -207,6 +207,12 @@ def render_built(built: Built, console: Console) -> None:
         f"{escape(built.log_where)}.",
         soft_wrap=True,
     )
+    if built.also_written:
+        holdout, *sidecar = built.also_written
+        told = f"Held-out customers (for the platform's suppression): {escape(str(holdout))}"
+        if sidecar:
+            told += f"; provenance: {escape(str(sidecar[0]))}"
+        console.print(told + ".", soft_wrap=True)
     render_caution(console)
 
 
