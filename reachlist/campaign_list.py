@@ -1,8 +1,9 @@
 """What the campaign logs hold: one line per campaign, newest first (``reachlist campaigns``).
 
-Each campaign shows its target, purpose, when it was built, how many customers were listed,
-contacted and held out, and when its results can be read (the build time plus the take-up
-horizon it was estimated for; ``results`` reads the log and the order history after it).
+Each campaign shows its target, purpose, when it was built and sent (``--send-date``, or set
+later with ``reachlist sent``; the build day when never given), how many customers were listed,
+contacted and held out, and when its results can be read (the send day plus the take-up horizon
+it was estimated for; ``results`` reads the log and the order history after it).
 
 >>> with CampaignLog.open(wh, state) as log:                              # doctest: +SKIP
 ...     listing = list_campaigns(log, today=date(2026, 12, 3))
@@ -31,6 +32,7 @@ COLUMNS = {
     "target": pl.String,
     "purpose": pl.String,
     "built": pl.Datetime("us"),
+    "sent": pl.Date,
     "listed": pl.Int64,
     "treatment": pl.Int64,
     "holdout": pl.Int64,
@@ -65,13 +67,16 @@ def _row(where: str, raw: dict[str, Any], today: date) -> dict[str, Any]:
     built = raw["created_at"]
     if isinstance(built, str):
         built = datetime.fromisoformat(built)
-    ready_on = built.date() + timedelta(days=horizon)
+    sent = parameters.get("send_date")
+    sent_on = date.fromisoformat(str(sent)[:10]) if sent else built.date()
+    ready_on = sent_on + timedelta(days=horizon)
     return {
         "log": where,
         "campaign_id": raw["campaign_id"],
         "target": raw["target"],
         "purpose": raw["purpose"],
         "built": built,
+        "sent": sent_on,
         "listed": _count(counts.get("listed")),
         "treatment": _count(counts.get("treatment")),
         "holdout": _count(counts.get("holdout")),

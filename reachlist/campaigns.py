@@ -93,6 +93,7 @@ class CampaignRecord:
     rules: list[dict[str, Any]] = field(default_factory=list)
     counts: dict[str, Any] = field(default_factory=dict)
     overrides: tuple[str, ...] = ()
+    sent_at: datetime | None = None  # when the list is sent (contacts' contacted_at); None: now
 
     def frame(self) -> pl.DataFrame:
         def js(value: Any) -> str:
@@ -256,7 +257,9 @@ class CampaignLog:
             pl.col("contact_group").cast(pl.String),
             pl.col("score").cast(pl.Float64),
             pl.col("reason").cast(pl.String),
-            pl.lit(record.created_at, dtype=pl.Datetime("us")).alias("contacted_at"),
+            pl.lit(record.sent_at or record.created_at, dtype=pl.Datetime("us")).alias(
+                "contacted_at"
+            ),
         )
         # Every read happens before the transaction: on some engines a read ends a transaction.
         missing = [t for t in LOG_TABLES if self.db.physical_columns(t) is None]
@@ -308,6 +311,44 @@ class CampaignLog:
                 label=f"replace {table}",
             )
         )
+
+    def set_send_date(self, campaign_id: str, sent_at: datetime) -> int:
+        """Record the day a logged campaign is (or was) sent: every contact's ``contacted_at``
+        and ``send_date`` in its parameters, in one transaction. ``results`` counts the horizon
+        from it and the contact cap of later campaigns reads it. Returns the contacts moved."""
+        record = self.campaign(campaign_id)
+        if record is None:
+            raise InputError(
+                f"Expected campaign {campaign_id!r} in the campaign log at {self.where}, found no "
+                "such campaign.",
+                hint="list the logged campaigns with `reachlist campaigns` (with --state PATH when "
+                "the log is kept in a local file)",
+            )
+        parameters = dict(record["parameters"])
+        parameters["send_date"] = sent_at.date().isoformat()
+        moved = self.contacts(campaign_id).height
+        statements = []
+        for table, column, value in (
+            ("campaign_contacts", "contacted_at", sent_at),
+            ("campaigns", "parameters", json.dumps(parameters, default=str, sort_keys=True)),
+        ):
+            tmap = self.db.mapping.table(table)
+            statements.append(Query(
+                f"UPDATE {quote_qualified(tmap.physical)} "
+                f"SET {quote_ident(tmap.column(column))} = :value "
+                f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
+                {"value": value, "campaign_id": campaign_id},
+                label=f"send date in {table}",
+            ))
+        try:
+            with self.db.transaction():
+                for statement in statements:
+                    self.db.execute(statement)
+        except ReachlistError:
+            raise
+        except Exception as exc:
+            raise self._write_error("campaign_contacts", exc, campaign_id) from None
+        return moved
 
     def _append(self, table: str, frame: pl.DataFrame, campaign_id: str) -> None:
         try:

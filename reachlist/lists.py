@@ -66,6 +66,7 @@ from reachlist.query import Query, Rendered
 from reachlist.targets import (
     LEVEL_COLUMN,
     Target,
+    _as_datetime,
     check_level,
     item_buyers_query,
     mining_window,
@@ -131,6 +132,10 @@ class ListRequest:
     stock: int | None = None  # clear: units to clear (default: products.stock_on_hand)
     contact: bool = False  # add contact fields (email, consent date) to the exported list
     offer_code: str | None = None  # the offer's code, written on every exported row
+    # The day the list is sent. Horizons (results) count from it, and it is the as-of day: the
+    # contact cap counts back from it and the default campaign id carries it. Without it the
+    # as-of day is --until when given (a list as of a past day), else today.
+    send_date: str | date | None = None
     # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
     # library computes it only when asked; the CLI asks by default (--no-estimate skips it).
     estimate: bool = False
@@ -160,7 +165,9 @@ class Plan:
     rules: tuple[ChosenRule, ...]
     spec: AudienceSpec
     campaign_id: str
-    now: datetime  # naive UTC; the frequency cap counts back from it
+    now: datetime  # naive UTC, the as-of time: the frequency cap counts back from it
+    built_at: datetime | None = None  # when the plan was made (None: ``now``)
+    send_at: datetime | None = None  # the day the list is sent (--send-date), when given
     sensitive: tuple[str, ...] = ()  # sensitive items among target, stand-in and antecedents
     notes: tuple[str, ...] = ()
     overrides: tuple[str, ...] = ()  # consent or suppression switched off
@@ -369,14 +376,25 @@ def plan_list(
             f"code), found {request.offer_code!r}.",
             hint="pass the code as the CRM platform knows it, for example --offer-code MAT-WINTER-15",
         )
-    now = now or datetime.now(UTC).replace(tzinfo=None)
+    built_at = now or datetime.now(UTC).replace(tzinfo=None)
+    send_at = (
+        _day_start(_as_datetime(request.send_date, "--send-date"))
+        if request.send_date is not None
+        else None
+    )
+    if send_at is not None:
+        now = send_at
+    elif request.until is not None and now is None:
+        now = _day_start(_as_datetime(request.until, "--until"))
+    else:
+        now = built_at
     merged = check_duplicate_customers(wh, merge=request.merge_duplicates)
     filters = check_filters(wh, request.filters)
     target = resolve_target(wh, parse_target(request.target))
     rules_target = (
         resolve_target(wh, parse_target(request.stand_in)) if request.stand_in else target
     )
-    history = order_history(wh, now.date())
+    history = order_history(wh, min(now, built_at).date())
     if rules is not None:
         window = rules.window
     else:
@@ -455,10 +473,16 @@ def plan_list(
         spec=spec,
         campaign_id=campaign_id,
         now=now,
+        built_at=built_at,
+        send_at=send_at,
         sensitive=sensitive,
         notes=tuple(notes),
         overrides=tuple(overrides),
     )
+
+
+def _day_start(moment: datetime) -> datetime:
+    return datetime(moment.year, moment.month, moment.day)
 
 
 def check_duplicate_customers(wh: Warehouse, *, merge: bool = False) -> int:
@@ -953,7 +977,8 @@ def _stage_delivery(wh: Warehouse, outcome: ListOutcome, out: str | Path,
     from reachlist import __version__
 
     plan = outcome.plan
-    delivery = delivery_frames(wh, outcome, built_at=plan.now, version=__version__,
+    delivery = delivery_frames(wh, outcome, built_at=plan.built_at or plan.now,
+                               version=__version__,
                                offer_code=plan.request.offer_code)
     provenance = provenance_json(delivery.provenance)
     meta = {PROVENANCE_KEY: provenance}
@@ -1024,7 +1049,8 @@ def build_list(
         ran = plan.sql(wh)
         record = CampaignRecord(
             campaign_id=plan.campaign_id,
-            created_at=plan.now,
+            created_at=plan.built_at or plan.now,
+            sent_at=plan.send_at,
             target=str(plan.target),
             purpose=plan.request.purpose,
             parameters={
@@ -1032,6 +1058,7 @@ def build_list(
                 "resolved_target": str(plan.target),
                 "rules_from": str(plan.rules_target),
                 "window": [plan.spec.lookback.since, plan.spec.lookback.until],
+                "as_of": plan.now,
                 "level": plan.ruleset.level,
                 "basket": plan.ruleset.basket,
                 "output": str(Path(out).resolve()),

@@ -33,3 +33,27 @@ def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool) -> No
         click.echo(campaigns_json(listing))
     else:
         render_campaigns(out, listing)
+
+
+@main.command()
+@click.argument("campaign_id")
+@warehouse_options
+@click.option("--on", "sent_on", required=True, metavar="YYYY-MM-DD",
+              help="The day the campaign's list is (or was) sent.")
+@click.option("--state", default=None, metavar="PATH",
+              help="Local DuckDB file holding the campaign log.")
+def sent(wh: Warehouse, campaign_id: str, sent_on: str, state: str | None) -> None:
+    """Record the day CAMPAIGN_ID is sent, when it differs from the build day or --send-date:
+    results count the take-up horizon from it, and later contact caps read it.
+
+    Example: reachlist sent introduce-SG04-104-20261203 --on 2026-12-07
+    """
+    from reachlist.campaigns import CampaignLog
+    from reachlist.targets import _as_datetime
+
+    when = _as_datetime(sent_on, "--on")
+    with CampaignLog.open(wh, state) as log:
+        moved = log.set_send_date(campaign_id, datetime(when.year, when.month, when.day))
+        where = log.where
+    out.print(f"Campaign {campaign_id}: {moved:,} contacts now sent on {when:%Y-%m-%d} "
+              f"(log in {where}).", markup=False)

@@ -58,6 +58,10 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
             click.option("--campaign", "campaign_id", default=None, metavar="ID",
                          help="Campaign id [default: PURPOSE-TARGET-YYYYMMDD]; it seeds the "
                          "holdout."),
+            click.option("--send-date", default=None, metavar="YYYY-MM-DD",
+                         help="The day the list is sent: the contact cap counts back from it "
+                         "and results count the horizon from it [default: --until, else "
+                         "today]."),
             click.option("--stock", default=None, type=click.IntRange(1),
                          help="clear: units to clear [default: products.stock_on_hand]."),
             click.option("--ignore-consent", is_flag=True,
@@ -121,6 +125,7 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         stock=opts["stock"],
         contact=contact,
         min_audience=opts.get("min_audience", 0),
+        send_date=opts.get("send_date"),
         estimate="no_estimate" in opts and not opts["no_estimate"],
         horizon_days=opts.get("horizon_days", DEFAULT_HORIZON),
         cutoffs=opts.get("cutoffs", MAX_CUTOFFS),

@@ -21,7 +21,7 @@ def render_campaigns(console: Console, listing: CampaignListing) -> None:
     table = Table(title="Campaigns, newest first", title_justify="left", expand=False)
     table.add_column("campaign", overflow="fold", max_width=20)
     table.add_column("target", overflow="fold", max_width=18)
-    table.add_column("built", no_wrap=True)
+    table.add_column("sent", no_wrap=True)
     table.add_column("to contact", justify="right", no_wrap=True)
     table.add_column("held out", justify="right", no_wrap=True)
     table.add_column("results", no_wrap=True)
@@ -31,7 +31,7 @@ def render_campaigns(console: Console, listing: CampaignListing) -> None:
         if several_logs:
             campaign += f"\n[dim]{escape(row['log'])}[/dim]"
         target = escape(row["target"]) + f"\n[dim]{escape(row['purpose'])}[/dim]"
-        table.add_row(campaign, target, f"{row['built']:%Y-%m-%d}", fmt_count(row["treatment"]),
+        table.add_row(campaign, target, f"{row['sent']:%Y-%m-%d}", fmt_count(row["treatment"]),
                       fmt_count(row["holdout"]), results)
     console.print(table)
     shown = frame.height
@@ -44,7 +44,7 @@ def render_campaigns(console: Console, listing: CampaignListing) -> None:
         console.print(f"{shown:,} campaign(s) in {', '.join(map(escape, listing.logs))}.")
     console.print(
         "results: when `reachlist results CAMPAIGN` can compare treatment with holdout "
-        "(build day plus the take-up horizon)."
+        "(send day plus the take-up horizon)."
     )
 
 
@@ -53,6 +53,7 @@ def campaigns_json(listing: CampaignListing) -> str:
     for row in listing.campaigns.iter_rows(named=True):
         row = dict(row)
         row["built"] = row["built"].isoformat()
+        row["sent"] = row["sent"].isoformat()
         row["results_from"] = row["results_from"].isoformat()
         rows.append(row)
     payload = {
