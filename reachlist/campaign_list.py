@@ -107,3 +107,27 @@ def list_campaigns(log: CampaignLog, *, today: date, limit: int = 50) -> Campaig
     frame = pl.DataFrame(rows, schema=COLUMNS) if rows else pl.DataFrame(schema=COLUMNS)
     frame = frame.sort(["built", "campaign_id"], descending=[True, False]).head(limit)
     return CampaignListing(frame, total, limit, tuple(logs))
+
+
+def campaign_file_text(log: CampaignLog, campaign_id: str) -> str:
+    """The campaign file a logged campaign was built from, as it was written."""
+    for one in (log, *log.also):
+        if one.db.physical_columns("campaigns") is None:
+            continue
+        record = one.campaign(campaign_id)
+        if record is None:
+            continue
+        text = record["parameters"].get("campaign_file")
+        if not text:
+            raise InputError(
+                f"Expected campaign {campaign_id!r} to have been built from a campaign file, "
+                "found one built from command-line options.",
+                hint="its options are in the log's parameters; `reachlist campaigns --json` "
+                "lists the campaigns",
+            )
+        return str(text)
+    raise InputError(
+        f"Expected campaign {campaign_id!r} in the campaign log at {log.where}, found no such "
+        "campaign.",
+        hint="list the logged campaigns with `reachlist campaigns`",
+    )

@@ -136,6 +136,7 @@ class ListRequest:
     # contact cap counts back from it and the default campaign id carries it. Without it the
     # as-of day is --until when given (a list as of a past day), else today.
     send_date: str | date | None = None
+    campaign_file: str | None = None  # the campaign file's text, kept in the log for a rebuild
     # The honest take-up estimate (reachlist.estimate) costs a few seconds of backtests, so the
     # library computes it only when asked; the CLI asks by default (--no-estimate skips it).
     estimate: bool = False

@@ -72,8 +72,15 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 @click.group(cls=_Group)
 @click.version_option(package_name="reachlist")
-def main() -> None:
+@click.pass_context
+def main(ctx: click.Context) -> None:
     """reachlist: from order history to targeted-offer customer lists."""
+    from reachlist.campaign_file import project_defaults_path, read_project_defaults
+
+    path = project_defaults_path()
+    if path is not None:  # reachlist.toml here, or REACHLIST_DEFAULTS: defaults for every command
+        values = read_project_defaults(path)
+        ctx.default_map = {name: dict(values) for name in ctx.command.list_commands(ctx)}
 
 
 # Command modules register themselves on `main`; imported last to avoid a cycle.

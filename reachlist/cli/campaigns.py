@@ -17,7 +17,10 @@ from reachlist.warehouse import Warehouse
 @click.option("--limit", default=50, show_default=True, type=click.IntRange(1, 10_000),
               help="Newest campaigns shown from each log.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
-def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool) -> None:
+@click.option("--file-of", "file_of", default=None, metavar="CAMPAIGN_ID",
+              help="Print the campaign file CAMPAIGN_ID was built from, to rebuild it.")
+def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool,
+              file_of: str | None) -> None:
     """Campaigns built so far: target, build day, contacted and held-out customers, and when
     their results can be read.
 
@@ -27,6 +30,12 @@ def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool) -> No
     from reachlist.campaigns import CampaignLog
     from reachlist.render.campaigns import campaigns_json, render_campaigns
 
+    if file_of is not None:
+        from reachlist.campaign_list import campaign_file_text
+
+        with CampaignLog.open(wh, state) as log:
+            click.echo(campaign_file_text(log, file_of), nl=False)
+        return
     with CampaignLog.open(wh, state) as log:
         listing = list_campaigns(log, today=datetime.now(UTC).date(), limit=limit)
     if as_json:

@@ -19,10 +19,26 @@ from reachlist.lists import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, Li
 from reachlist.warehouse import Warehouse
 
 
+def _campaign_file(ctx: click.Context, _param: click.Parameter, value: str | None) -> Any:
+    """Read a campaign file before the other options: its values become their defaults (the
+    command line still wins)."""
+    if value is None:
+        return None
+    from reachlist.campaign_file import read_campaign_file
+
+    found = read_campaign_file(value)
+    ctx.default_map = {**(ctx.default_map or {}), **found.values}
+    return found
+
+
 def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """Options shared by sql, sizes and build: which rules, which exclusions, which campaign."""
     for option in reversed(
         [
+            click.option("--campaign-file", "campaign_file", default=None, metavar="FILE.toml",
+                         is_eager=True, callback=_campaign_file,
+                         help="Read the campaign's options from this file (the README's "
+                         "'Campaign files'); options given here win over it."),
             click.option("--purpose", default="introduce", show_default=True,
                          type=click.Choice(PURPOSES),
                          help="introduce: a new or under-adopted item; clear: surplus stock."),
@@ -126,6 +142,7 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         contact=contact,
         min_audience=opts.get("min_audience", 0),
         send_date=opts.get("send_date"),
+        campaign_file=opts["campaign_file"].text if opts.get("campaign_file") else None,
         estimate="no_estimate" in opts and not opts["no_estimate"],
         horizon_days=opts.get("horizon_days", DEFAULT_HORIZON),
         cutoffs=opts.get("cutoffs", MAX_CUTOFFS),
