@@ -66,3 +66,65 @@ def sent(wh: Warehouse, campaign_id: str, sent_on: str, state: str | None) -> No
         where = log.where
     out.print(f"Campaign {campaign_id}: {moved:,} contacts now sent on {when:%Y-%m-%d} "
               f"(log in {where}).", markup=False)
+
+
+@main.command()
+@click.argument("campaign_id")
+@warehouse_options
+@click.option("--out", "out_path", default=None, metavar="FILE.html",
+              help="Write the brief to this HTML file (one self-contained page).")
+@click.option("--force", is_flag=True, help="Overwrite an existing file.")
+@click.option("--state", default=None, metavar="PATH",
+              help="Local DuckDB file holding the campaign log.")
+@click.option("--json", "as_json", is_flag=True, help="Print the brief's numbers as JSON.")
+def brief(wh: Warehouse, campaign_id: str, out_path: str | None, force: bool,
+          state: str | None, as_json: bool) -> None:
+    """A one-page brief of a built campaign to forward: the waterfall, the rules in words,
+    expected buyers with their interval, holdout power and the cautions.
+
+    Example: reachlist brief winter-mats --out winter-mats.html
+    """
+    import json
+
+    from reachlist.brief import brief_data
+    from reachlist.campaigns import CampaignLog
+    from reachlist.errors import InputError
+
+    if out_path is None and not as_json:
+        raise InputError("Expected --out FILE.html or --json, found neither.",
+                         hint="pass --out brief.html to write the page")
+    if out_path is not None:
+        _check_html_destination(out_path, force)
+    with CampaignLog.open(wh, state) as log:
+        data = brief_data(wh, log, campaign_id)
+    if as_json:
+        click.echo(json.dumps(data, indent=2, default=str))
+    if out_path is not None:
+        from reachlist.export import stage_text
+        from reachlist.render.brief import brief_html
+
+        staged = stage_text(brief_html(data), out_path, force=force)
+        staged.publish()
+        staged.settle()
+        if not as_json:
+            out.print(f"Wrote the brief of {campaign_id} to {out_path}.", markup=False)
+
+
+def _check_html_destination(path: str, force: bool) -> None:
+    from pathlib import Path
+
+    from reachlist.errors import InputError, StateError
+
+    p = Path(path)
+    if p.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"Expected a brief file ending in .html, found {path!r}.",
+                         hint="name it like winter-mats.html")
+    if p.is_dir():
+        raise StateError(f"Expected a file path for the brief, found a directory at {path!r}.",
+                         hint="give a file name such as winter-mats.html")
+    if not p.parent.is_dir():
+        raise StateError(f"Expected an existing directory for {path!r}, found none at "
+                         f"{str(p.parent)!r}.", hint="create the directory first")
+    if p.exists() and not force:
+        raise StateError(f"File {path!r} already exists; nothing was written.",
+                         hint="pass --force to overwrite it, or choose another --out")
