@@ -28,7 +28,7 @@ import json
 import re
 from collections.abc import Iterator
 from dataclasses import dataclass, field
-from datetime import datetime
+from datetime import datetime, timedelta
 from typing import Any, Self
 
 import polars as pl
@@ -121,6 +121,10 @@ class CampaignRecord:
                 "overrides": pl.String,
             },
         )
+
+
+MAX_HORIZON_DAYS = 1_825
+"""The longest take-up horizon a campaign may have; older campaigns' holdouts are not read."""
 
 
 class CampaignLog:
@@ -219,6 +223,45 @@ class CampaignLog:
         if not found:
             return pl.Series("customer_id", [], dtype=pl.Int64)
         return pl.concat(found, how="vertical_relaxed").unique().sort()
+
+    def live_holdouts(
+        self, as_of: datetime, *, other_than: str | None = None
+    ) -> tuple[pl.Series, list[str]]:
+        """Customers held out by other campaigns whose take-up horizon has not ended at
+        ``as_of`` (in this log and every log in ``also``), and those campaigns' ids: they stay
+        out of new treatment groups so the holdouts keep measuring. Campaigns sent more than
+        ``MAX_HORIZON_DAYS`` ago are not read."""
+        members: list[pl.Series] = []
+        live: list[str] = []
+        for log in (self, *self.also):
+            found, ids = log._live_holdouts(as_of, other_than)
+            live += ids
+            if found.len():
+                members.append(found)
+        if not members:
+            return pl.Series("customer_id", [], dtype=pl.Int64), live
+        return pl.concat(members, how="vertical_relaxed").unique().sort(), sorted(set(live))
+
+    def _live_holdouts(self, as_of: datetime, other_than: str | None) -> tuple[pl.Series, list[str]]:
+        empty = pl.Series("customer_id", [], dtype=pl.Int64)
+        if not self.present():
+            return empty, []
+        since = as_of - timedelta(days=MAX_HORIZON_DAYS)
+        sent = self.db.fetch(Query.from_template(
+            "live_holdout_campaigns",
+            {"holdout": "holdout", "since": since, "campaign_id": other_than or ""},
+        ))
+        live = []
+        for campaign_id, sent_at, parameters in sent.iter_rows():
+            horizon = json.loads(parameters or "{}").get("horizon_days") or 30
+            if sent_at + timedelta(days=int(horizon)) > as_of:
+                live.append(str(campaign_id))
+        if not live:
+            return empty, []
+        found = self.db.fetch(Query.from_template(
+            "holdout_members", {"holdout": "holdout", "campaign_ids": live}
+        ))
+        return found["customer_id"], live
 
     def _recent(self, since: datetime, other_than: str | None) -> pl.Series:
         if self.db.physical_columns("campaign_contacts") is None:

@@ -51,7 +51,7 @@ from reachlist.estimate import (
     calibrate_audience,
     holdout_planning,
 )
-from reachlist.exclusions import STEPS, StepCount, apply_exclusions
+from reachlist.exclusions import FROM_LOG_OR_LIST, STEPS, StepCount, apply_exclusions
 from reachlist.export import (
     StagedFile,
     StagedSet,
@@ -668,9 +668,31 @@ def _excluded(
     else:
         flag = pl.lit(False)
     frame = frame.with_columns(flag.alias("contacted_recently"))
+    notes: dict[str, str] = {}
+    if log is not None:
+        held, live = log.live_holdouts(plan.now, other_than=plan.campaign_id)
+        frame = frame.with_columns(
+            pl.col("customer_id").is_in(held.cast(frame.schema["customer_id"]).implode())
+            .alias("held_out_elsewhere")
+        )
+        if live:
+            shown = ", ".join(live[:3]) + (f" and {len(live) - 3:,} more" if len(live) > 3 else "")
+            notes["held_out_elsewhere"] = f"holdouts of {shown}"
+        else:
+            notes["held_out_elsewhere"] = "no live holdouts"
+    else:
+        frame = frame.with_columns(pl.lit(False).alias("held_out_elsewhere"))
+        notes["held_out_elsewhere"] = "no campaign log to read"
+    if plan.spec.contact:
+        frame = frame.with_columns(
+            (~pl.col("email").cast(pl.String).str.contains("@").fill_null(False))
+            .alias("no_address")
+        )
+    else:
+        frame = frame.with_columns(pl.lit(False).alias("no_address"))
+        notes["no_address"] = "no --with-contact"
 
     in_use = {"has_target", "returned_target"}
-    notes: dict[str, str] = {}
     if req.ignore_consent:
         notes["no_consent"] = "switched off (--ignore-consent)"
     else:
@@ -687,6 +709,10 @@ def _excluded(
             notes["contacted_recently"] = "read " + " and ".join(log.read_from)
     else:
         notes["contacted_recently"] = "not used (--cap-days 0)"
+    if log is not None:
+        in_use.add("held_out_elsewhere")
+    if plan.spec.contact:
+        in_use.add("no_address")
     if plan.spec.age_restricted:
         in_use.add("not_adult")
     else:
@@ -789,7 +815,7 @@ def _calibrate(
 
 def _empty_audience(plan: Plan) -> pl.DataFrame:
     schema: dict[str, Any] = {"customer_id": pl.Int64, "rule_id": pl.String, "score": pl.Float64}
-    schema.update({s.key: pl.Boolean for s in STEPS if s.key != "contacted_recently"})
+    schema.update({s.key: pl.Boolean for s in STEPS if s.key not in FROM_LOG_OR_LIST})
     if plan.spec.contact:
         schema["email"] = pl.String
     return pl.DataFrame(schema=schema)

@@ -33,10 +33,12 @@ ORDER = (
     "no_consent",
     "suppressed",
     "contacted_recently",
+    "held_out_elsewhere",
     "not_adult",
     "outside_region",
     "outside_channel",
     "inactive",
+    "no_address",
 )
 
 
@@ -183,6 +185,16 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
     schema = {"customer_id": pl.Int64, "rule_id": pl.String, "score": pl.Float64}
     schema.update({k: pl.Boolean for k in FLAGS})
     return pl.DataFrame(rows, schema=schema).sort("customer_id")
+
+
+def with_address(tables: dict[str, pl.DataFrame]) -> set[int]:
+    """Customers the email channel can reach: their first address (in sort order, the one the
+    audience reads) has an @. A customer missing from customers has none."""
+    first: dict[int, str] = {}
+    for cid, email in tables["customers"].select("customer_id", "email").iter_rows():
+        if email is not None and (cid not in first or email < first[cid]):
+            first[cid] = email
+    return {c for c, email in first.items() if "@" in email}
 
 
 def first_exclusion(row: dict, in_use: set[str]) -> str | None:

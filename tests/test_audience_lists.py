@@ -6,9 +6,10 @@ import json
 import math
 import shutil
 from collections import Counter
-from datetime import datetime
+from datetime import datetime, timedelta
 from pathlib import Path
 
+import duckdb
 import polars as pl
 import pytest
 
@@ -44,10 +45,13 @@ def request(**kw: object) -> ListRequest:
     return ListRequest(**base)  # type: ignore[arg-type]
 
 
-def reference_outcome(world: Path, plan, in_use: set[str], contacted: set[int] = frozenset()):
+def reference_outcome(world: Path, plan, in_use: set[str], contacted: set[int] = frozenset(),
+                      held_elsewhere: set[int] = frozenset()):
     tables = ref.load(world)
     aud = ref.audience(tables, plan.spec).with_columns(
-        pl.col("customer_id").is_in(list(contacted)).alias("contacted_recently")
+        pl.col("customer_id").is_in(list(contacted)).alias("contacted_recently"),
+        pl.col("customer_id").is_in(list(held_elsewhere)).alias("held_out_elsewhere"),
+        ~pl.col("customer_id").is_in(list(ref.with_address(tables))).alias("no_address"),
     )
     excluded = {r["customer_id"]: ref.first_exclusion(r, in_use) for r in aud.to_dicts()}
     return aud, excluded
@@ -302,3 +306,47 @@ def test_holdout_is_stable_and_close_to_its_share() -> None:
     assert part.to_list() == mask.slice(5000, 100).to_list()
     assert assign_holdout("autumn", ids, 0.1).to_list() != mask.to_list()
     assert in_holdout("spring-mats", 1042, 0.10) is (bucket("spring-mats", 1042) < 0.1)
+
+
+# -- holdouts of live campaigns and the email channel ---------------------------------------------
+def test_live_holdouts_stay_out_of_other_treatment_groups(world: Path, tmp_path: Path) -> None:
+    """Customers another campaign held out stay out of this one's treatment group until that
+    campaign's horizon ends; checked against the log's own holdout rows and the reference."""
+    with Warehouse.open(world) as wh:
+        first = plan_list(wh, request(campaign_id="c0", holdout=0.5, cap_days=0,
+                                      horizon_days=30), rules=RULESET, now=NOW)
+        build_list(wh, first, tmp_path / "c0.csv", log=CampaignLog.open(wh))
+        held = set(CampaignLog.open(wh).contacts("c0").filter(
+            pl.col("contact_group") == "holdout")["customer_id"].to_list())
+        soon = plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW + timedelta(days=10))
+        during = preview_list(wh, soon, CampaignLog.open(wh))
+        late = plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW + timedelta(days=31))
+        after = preview_list(wh, late, CampaignLog.open(wh))
+    assert held  # the hand-made world has customers in c0's holdout
+    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "held_out_elsewhere"}
+    _, excluded = reference_outcome(world, soon, in_use, held_elsewhere=held)
+    steps = {s.key: s for s in during.waterfall}
+    assert steps["held_out_elsewhere"].removed == sum(
+        1 for v in excluded.values() if v == "held_out_elsewhere")
+    assert steps["held_out_elsewhere"].removed > 0 and "c0" in steps["held_out_elsewhere"].note
+    assert held.isdisjoint(during.treatment["customer_id"].to_list())
+    gone = {s.key: s for s in after.waterfall}["held_out_elsewhere"]
+    assert gone.removed == 0 and gone.note == "no live holdouts"
+
+
+def test_the_email_channel_needs_an_address(world: Path, tmp_path: Path) -> None:
+    con = duckdb.connect(str(world))
+    con.execute("UPDATE customers SET email = NULL WHERE customer_id = 12")
+    con.execute("UPDATE customers SET email = 'not an address' WHERE customer_id = 19")
+    con.close()
+    with Warehouse.open(world) as wh:
+        plain = preview_list(wh, plan_list(wh, request(), rules=RULESET, now=NOW))
+        asked = preview_list(wh, plan_list(wh, request(contact=True), rules=RULESET, now=NOW))
+    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "no_address"}
+    with Warehouse.open(world) as wh:
+        plan = plan_list(wh, request(contact=True), rules=RULESET, now=NOW)
+    _, excluded = reference_outcome(world, plan, in_use)
+    step = {s.key: s for s in asked.waterfall}["no_address"]
+    assert step.in_use and step.removed == sum(1 for v in excluded.values() if v == "no_address")
+    assert not {s.key: s for s in plain.waterfall}["no_address"].in_use
+    assert asked.treatment["email"].str.contains("@").all()

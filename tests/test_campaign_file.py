@@ -3,6 +3,7 @@ same options typed out, is stored in the log, and rebuilds exactly from it."""
 
 from __future__ import annotations
 
+import shutil
 from pathlib import Path
 
 import polars as pl
@@ -42,10 +43,12 @@ def run(*args: str, env: dict[str, str] | None = None):
 def test_a_file_builds_what_the_same_options_build(sample: Path, tmp_path: Path) -> None:
     spec = tmp_path / "mats.toml"
     spec.write_text(CAMPAIGN)
+    twin = tmp_path / "twin.duckdb"  # the typed build runs on its own copy: on the same log the
+    shutil.copy(sample, twin)  # first campaign's holdout would be kept out of the second
     by_file = run("build", "-w", str(sample), "--campaign-file", str(spec), "--no-estimate",
                   "--out", str(tmp_path / "file.csv"))
     assert by_file.exit_code == 0, by_file.output
-    typed = run("build", MAT, "-w", str(sample), "--no-estimate", "--campaign", "typed",
+    typed = run("build", MAT, "-w", str(twin), "--no-estimate", "--campaign", "typed",
                 "--send-date", "2026-12-07", "--top", "3", "--cap-days", "0", "--holdout", "0.2",
                 "--offer-code", "MAT-15", "--out", str(tmp_path / "typed.csv"))
     assert typed.exit_code == 0, typed.output
