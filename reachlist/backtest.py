@@ -18,6 +18,7 @@ from typing import Any
 
 import polars as pl
 
+from reachlist import ids
 from reachlist.audience import AudienceSpec, ChosenRule, choose_rules
 from reachlist.errors import InputError
 from reachlist.estimate import (
@@ -146,9 +147,9 @@ def backtest(
     cal = calibrate_audience(wh, tgt, spec=spec, horizon_days=horizon_days, as_of=at,
                              level=interval_level, max_cutoffs=max_cutoffs)
     # The observation: the only read after the cutoff.
-    outcome = wh.fetch(forward_query(tgt, at, at + timedelta(days=horizon_days))).select(
-        pl.col("customer_id").cast(pl.Int64), pl.col("bought").cast(pl.Int64)
-    )
+    outcome = ids.normalise_frame(
+        wh.fetch(forward_query(tgt, at, at + timedelta(days=horizon_days)))
+    ).select("customer_id", pl.col("bought").cast(pl.Int64))
     people = cal.now.people.drop("bought").join(outcome, on="customer_id", how="left")
     people = people.with_columns(pl.col("bought").fill_null(0))
 

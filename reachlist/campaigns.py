@@ -33,6 +33,7 @@ from typing import Any, Self
 
 import polars as pl
 
+from reachlist import ids
 from reachlist.errors import InputError, ReachlistError, StateError, WarehouseError
 from reachlist.query import Query, quote_ident, quote_qualified
 from reachlist.schema import CONTRACT, LOG_TABLES, Kind, Mapping
@@ -43,6 +44,7 @@ __all__ = ["GROUPS", "KEYS", "CampaignLog", "CampaignRecord", "check_campaign_id
 
 GROUPS = ("treatment", "holdout")
 _SQL_TYPE: dict[Kind, str] = {
+    "id": "BIGINT",  # VARCHAR when the warehouse's customer ids are text (see log_table_ddl)
     "integer": "BIGINT",
     "text": "VARCHAR",
     "boolean": "BOOLEAN",
@@ -68,11 +70,13 @@ def check_campaign_id(campaign_id: str) -> str:
     return campaign_id
 
 
-def log_table_ddl(mapping: Mapping, table: str) -> str:
-    """CREATE TABLE for one log table, under the names the mapping gives it."""
+def log_table_ddl(mapping: Mapping, table: str, *, text_ids: bool = False) -> str:
+    """CREATE TABLE for one log table, under the names the mapping gives it. Customer ids are
+    BIGINT, or VARCHAR when the warehouse keeps them as text."""
     tmap = mapping.table(table)
+    types = {**_SQL_TYPE, "id": "VARCHAR" if text_ids else "BIGINT"}
     cols = [
-        f"{quote_ident(tmap.column(c.name))} {_SQL_TYPE[c.kind]}"
+        f"{quote_ident(tmap.column(c.name))} {types[c.kind]}"
         + ("" if c.nullable else " NOT NULL")
         for c in CONTRACT[table].columns
     ]
@@ -131,11 +135,18 @@ class CampaignLog:
     """The campaign log in one database (the warehouse, or a local state file)."""
 
     def __init__(
-        self, db: Warehouse, *, owned: bool = False, also: tuple[CampaignLog, ...] = ()
+        self,
+        db: Warehouse,
+        *,
+        owned: bool = False,
+        also: tuple[CampaignLog, ...] = (),
+        text_ids: bool | None = None,
     ) -> None:
         self.db = db
         self._owned = owned  # opened here (a state file): closed by close()
         self.also = also  # more logs the contact cap reads (never written)
+        # customer ids are text in the warehouse this log belongs to (a state file has none)
+        self.text_ids = db.text_ids if text_ids is None else text_ids
 
     @classmethod
     def open(cls, warehouse: Warehouse, state: str | None = None) -> CampaignLog:
@@ -149,7 +160,8 @@ class CampaignLog:
                 f"Expected --state to be a local DuckDB file, found the URL {state!r}.",
                 hint="pass a path such as reachlist-state.duckdb",
             )
-        return cls(Warehouse.open(state, create=True), owned=True, also=(cls(warehouse),))
+        return cls(Warehouse.open(state, create=True), owned=True, also=(cls(warehouse),),
+                   text_ids=warehouse.text_ids)
 
     def close(self) -> None:
         if self._owned:
@@ -261,7 +273,7 @@ class CampaignLog:
         found = self.db.fetch(Query.from_template(
             "holdout_members", {"holdout": "holdout", "campaign_ids": live}
         ))
-        return found["customer_id"], live
+        return ids.normalise(found["customer_id"]), live
 
     def _recent(self, since: datetime, other_than: str | None) -> pl.Series:
         if self.db.physical_columns("campaign_contacts") is None:
@@ -273,7 +285,7 @@ class CampaignLog:
             {"treatment": "treatment", "since": since, "campaign_id": other_than or ""},
             label="recent contacts",
         )
-        return self.db.fetch(q)["customer_id"].cast(pl.Int64)
+        return ids.normalise(self.db.fetch(q)["customer_id"])
 
     def record(
         self, record: CampaignRecord, contacts: pl.DataFrame, *, replace: bool = False
@@ -296,7 +308,7 @@ class CampaignLog:
             raise InputError(f"contact_group must be one of {GROUPS}, found {sorted(groups)}.")
         rows = contacts.select(
             pl.lit(record.campaign_id, dtype=pl.String).alias("campaign_id"),
-            pl.col("customer_id").cast(pl.Int64),
+            pl.col("customer_id").cast(pl.String if self.text_ids else pl.Int64),
             pl.col("contact_group").cast(pl.String),
             pl.col("score").cast(pl.Float64),
             pl.col("reason").cast(pl.String),
@@ -314,7 +326,9 @@ class CampaignLog:
             with self.db.transaction():
                 for table in missing:
                     try:
-                        self.db.run_statement(log_table_ddl(self.db.mapping, table))
+                        self.db.run_statement(
+                            log_table_ddl(self.db.mapping, table, text_ids=self.text_ids)
+                        )
                     except WarehouseError as exc:
                         if _is_key_clash(exc.message):  # another build created it just now
                             raise StateError(

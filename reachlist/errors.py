@@ -31,9 +31,13 @@ class ReachlistError(Exception):
 class ContractError(ReachlistError):
     """The warehouse does not match the logical contract."""
 
+    exit_code = 4
+
 
 class WarehouseError(ReachlistError):
     """The warehouse cannot be reached, or a query failed there."""
+
+    exit_code = 4
 
 
 class InputError(ReachlistError):

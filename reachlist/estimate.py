@@ -36,6 +36,7 @@ from datetime import date, datetime, timedelta
 import numpy as np
 import polars as pl
 
+from reachlist import ids as ids_
 from reachlist.audience import AudienceSpec, reach_query
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.query import Query
@@ -212,8 +213,7 @@ def _snapshot(
     ranks: Sequence[int],
     edges: np.ndarray | None = None,
 ) -> _Cutoff:
-    people = wh.fetch(forward_query(target, at, outcome_until)).with_columns(
-        pl.col("customer_id").cast(pl.Int64),
+    people = ids_.normalise_frame(wh.fetch(forward_query(target, at, outcome_until))).with_columns(
         pl.col("breadth").cast(pl.Int64),
         pl.col("bought").cast(pl.Int64),
         pl.col("units").cast(pl.Float64),
@@ -236,6 +236,7 @@ def _snapshot(
             ids = groups["customer_id"]
         else:
             ids = groups.filter(pl.col("rule_rank") == g)["customer_id"]
+        ids = ids_.like(ids, people.schema["customer_id"])
         flags.append(pl.col("customer_id").is_in(ids.implode()).alias(f"g{g}"))
     return _Cutoff(at, people.with_columns(flags), edges)
 
@@ -248,8 +249,8 @@ def _groups_at(wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None,
         return pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED})
     length = spec.lookback.until - spec.lookback.since
     shifted = dataclasses.replace(spec, lookback=Window(at - length, at))
-    return wh.fetch(reach_query(shifted)).with_columns(
-        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    return ids_.normalise_frame(wh.fetch(reach_query(shifted))).with_columns(
+        pl.col("rule_rank").cast(pl.Int64)
     )
 
 
@@ -389,7 +390,7 @@ class Calibrated:
         """The same calibration with the audience narrowed to ``customers`` (for example a
         list's treatment group after a clearance cut). With an ``AudienceSpec`` the backtests
         rebuild the audience from the rules, so they do not depend on the ids and stay valid."""
-        ids = pl.Series("customer_id", list(customers), dtype=pl.Int64)
+        ids = ids_.like(_as_ids(customers), self.now.people.schema["customer_id"])
         people = self.now.people.with_columns(
             (pl.col(f"g{COMBINED}") & pl.col("customer_id").is_in(ids.implode()))
             .alias(f"g{COMBINED}")
@@ -476,7 +477,7 @@ def calibrate_audience(
         when = spec.lookback.until
     else:
         when = last_order_day(wh)
-    ids = None if customers is None else pl.Series("customer_id", list(customers), dtype=pl.Int64)
+    ids = None if customers is None else _as_ids(customers)
     history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
     cal, weight, bt = _calibrated(history)
     groups = _groups_at(wh, spec, None, when) if spec is not None else pl.DataFrame(
@@ -485,7 +486,8 @@ def calibrate_audience(
         # the given customers are the combined audience; rules still mark whom they reach
         groups = pl.concat([groups.filter(pl.col("rule_rank") != COMBINED),
                             pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED},
-                                         schema={"customer_id": pl.Int64, "rule_rank": pl.Int64})])
+                                         schema={"customer_id": ids.dtype,
+                                                 "rule_rank": pl.Int64})])
         ranks = history.ranks
         now = _snapshot(wh, target, when, when, groups, ranks, edges=history.cutoffs[0].edges)
         now = _Cutoff(now.at, now.people.with_columns(
@@ -516,7 +518,7 @@ def estimate_takeup(
     or after ``as_of`` is read. ``as_of`` defaults to the end of ``spec``'s lookback window, else
     the day after the last order.
     """
-    ids = None if customers is None else pl.Series("customer_id", list(customers), dtype=pl.Int64)
+    ids = None if customers is None else _as_ids(customers)
     c = calibrate_audience(wh, target, spec=spec, customers=ids, horizon_days=horizon_days,
                            as_of=as_of, level=level, max_cutoffs=max_cutoffs)
     given = ids.n_unique() if ids is not None else None
@@ -601,3 +603,10 @@ def holdout_planning(
             note = str(exc)
     return HoldoutPlanning(list_size, share, rate, detectable, wanted_uplift, needed, note,
                            alpha, power)
+
+
+def _as_ids(customers: Iterable[object] | pl.Series) -> pl.Series:
+    """Customer ids given by a caller, as an id series (Int64 or String)."""
+    if isinstance(customers, pl.Series):
+        return ids_.normalise(customers.rename("customer_id"))
+    return ids_.series(customers)

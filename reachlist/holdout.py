@@ -5,7 +5,8 @@ A customer is in the holdout of a campaign when
     int.from_bytes(sha256(f"{campaign_id}:{customer_id}".encode("utf-8")).digest()[:8], "big")
         / 2**64  <  share
 
-with ``customer_id`` written in decimal. The hash is computed in Python on the fetched ids, so the
+with ``customer_id`` in its text form: an integer id written in decimal, a text id (a CRM code, a
+UUID) as it is stored. Integer ids hash exactly as they always have. The hash is computed in Python on the fetched ids, so the
 assignment is identical on every warehouse and every run, needs no SQL hash function (engines
 disagree on those), and a customer's group does not depend on who else is in the audience.
 
@@ -36,13 +37,18 @@ def check_share(share: float) -> float:
     return share
 
 
-def bucket(campaign_id: str, customer_id: int) -> float:
+def id_text(customer_id: int | str) -> str:
+    """The text form of a customer id that the hash reads."""
+    return customer_id if isinstance(customer_id, str) else str(int(customer_id))
+
+
+def bucket(campaign_id: str, customer_id: int | str) -> float:
     """The customer's position in [0, 1) for this campaign."""
-    digest = hashlib.sha256(f"{campaign_id}:{int(customer_id)}".encode()).digest()
+    digest = hashlib.sha256(f"{campaign_id}:{id_text(customer_id)}".encode()).digest()
     return int.from_bytes(digest[:8], "big") / _SCALE
 
 
-def in_holdout(campaign_id: str, customer_id: int, share: float) -> bool:
+def in_holdout(campaign_id: str, customer_id: int | str, share: float) -> bool:
     return bucket(campaign_id, customer_id) < check_share(share)
 
 
@@ -51,7 +57,7 @@ def assign_holdout(campaign_id: str, customer_ids: pl.Series, share: float) -> p
     check_share(share)
     prefix = f"{campaign_id}:".encode()
     values = [
-        int.from_bytes(hashlib.sha256(prefix + str(int(c)).encode()).digest()[:8], "big") / _SCALE
+        int.from_bytes(hashlib.sha256(prefix + id_text(c).encode()).digest()[:8], "big") / _SCALE
         < share
         for c in customer_ids.to_list()
     ]

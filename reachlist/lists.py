@@ -23,6 +23,7 @@ from typing import TYPE_CHECKING, Any
 
 import polars as pl
 
+from reachlist import ids
 from reachlist.audience import (
     AudienceSpec,
     ChosenRule,
@@ -660,11 +661,11 @@ def _excluded(
     frame = wh.fetch(plan.query())
     if frame.height == 0:
         frame = _empty_audience(plan)
-    frame = frame.with_columns(pl.col("customer_id").cast(pl.Int64))
+    frame = ids.normalise_frame(frame)
     if req.cap_days > 0 and log is not None:
         since = plan.now - timedelta(days=req.cap_days)
         recent = log.recent_contacts(since, other_than=plan.campaign_id)
-        flag = pl.col("customer_id").is_in(recent.implode())
+        flag = pl.col("customer_id").is_in(ids.like(recent, frame.schema["customer_id"]).implode())
     else:
         flag = pl.lit(False)
     frame = frame.with_columns(flag.alias("contacted_recently"))
@@ -672,7 +673,7 @@ def _excluded(
     if log is not None:
         held, live = log.live_holdouts(plan.now, other_than=plan.campaign_id)
         frame = frame.with_columns(
-            pl.col("customer_id").is_in(held.cast(frame.schema["customer_id"]).implode())
+            pl.col("customer_id").is_in(ids.like(held, frame.schema["customer_id"]).implode())
             .alias("held_out_elsewhere")
         )
         if live:
@@ -941,8 +942,8 @@ def preview_list(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> L
 
 
 def _reach_pairs(wh: Warehouse, plan: Plan) -> pl.DataFrame:
-    return wh.fetch(reach_query(plan.spec)).with_columns(
-        pl.col("customer_id").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    return ids.normalise_frame(wh.fetch(reach_query(plan.spec))).with_columns(
+        pl.col("rule_rank").cast(pl.Int64)
     )
 
 

@@ -20,7 +20,7 @@ from importlib import resources
 from typing import Any
 
 from reachlist.errors import InputError
-from reachlist.schema import CONTRACT, Mapping
+from reachlist.schema import CONTRACT, Mapping, TableMap
 
 _PARAM = re.compile(r"(?<![:\w]):([A-Za-z_]\w*)")
 
@@ -43,10 +43,12 @@ class Dialect:
     name: str
     placeholder: str  # "dollar" ($name, DuckDB native) or "colon" (:name, SQLAlchemy)
     cte_hint: str = ""  # e.g. "NOT MATERIALIZED" where a CTE would otherwise be materialised
+    text_type: str = "VARCHAR"  # what integer ids and SKUs are cast to when text is needed
 
 
 DUCKDB = Dialect("duckdb", placeholder="dollar")
-POSTGRES = Dialect("postgresql", placeholder="colon", cte_hint="NOT MATERIALIZED")
+POSTGRES = Dialect("postgresql", placeholder="colon", cte_hint="NOT MATERIALIZED",
+                   text_type="TEXT")
 GENERIC = Dialect("generic", placeholder="colon")
 
 
@@ -117,14 +119,26 @@ def views_sql(mapping: Mapping, tables: Iterable[str], dialect: Dialect) -> list
         tmap = mapping.table(name)
         if tmap.is_identity:
             continue
-        cols = ", ".join(
-            f"{quote_ident(tmap.column(c))} AS {c}" for c in CONTRACT[name].column_names
-        )
+        cols = ", ".join(f"{column_sql(tmap, c)} AS {c}" for c in CONTRACT[name].column_names)
         hint = f" {dialect.cte_hint}" if dialect.cte_hint else ""
         views.append(
             f"{name} AS{hint} (SELECT {cols} FROM {quote_qualified(tmap.physical)})"
         )
     return views
+
+
+def column_sql(tmap: TableMap, logical: str) -> str:
+    """How a view reads one logical column: the physical column, the mapping's expression or
+    constant, cast when the physical type needs it."""
+    src = tmap.source(logical)
+    if src is None:
+        expr = quote_ident(tmap.column(logical))
+    elif src.kind == "sql":
+        expr = f"({src.sql})"
+    else:
+        expr = literal(src.value)
+    to = tmap.casts.get(logical)
+    return f"CAST({expr} AS {to})" if to else expr
 
 
 _LEADING_WITH = re.compile(r"^(\s*(?:--[^\n]*\n\s*)*)WITH\s", re.IGNORECASE)
@@ -150,7 +164,8 @@ def render(query: Query, dialect: Dialect, mapping: Mapping) -> Rendered:
 
 
 def literal(value: Any) -> str:
-    """A SQL literal for display only (``reachlist sql --inline``); never used to run a query."""
+    """A SQL literal: for display (``reachlist sql --inline``) and for a mapping's constants
+    (``{ value = false }``); values of a query are always bound, never written in."""
     if value is None:
         return "NULL"
     if isinstance(value, bool):

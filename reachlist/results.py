@@ -17,6 +17,7 @@ from typing import Any
 
 import polars as pl
 
+from reachlist import ids
 from reachlist.audience import AudienceSpec, ChosenRule
 from reachlist.campaigns import CampaignLog
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
@@ -157,8 +158,8 @@ def campaign_results(
             "the log is kept in a local file",
         )
     target = parse_target(str(record["target"]))
-    contacts = log.contacts(campaign_id).select(
-        pl.col("customer_id").cast(pl.Int64), "contact_group",
+    contacts = ids.normalise_frame(log.contacts(campaign_id)).select(
+        "customer_id", "contact_group",
         pl.col("contacted_at").cast(pl.Datetime("us")),
     )
     if contacts.height == 0:
@@ -169,7 +170,8 @@ def campaign_results(
     for (sent,) in contacts.select("contacted_at").unique().iter_rows():
         buyers = wh.fetch(buyers_query(target, sent, sent + horizon))
         bought.append(buyers.select(
-            pl.col("customer_id").cast(pl.Int64), pl.col("units").cast(pl.Float64),
+            pl.col("customer_id").cast(contacts.schema["customer_id"], strict=False),
+            pl.col("units").cast(pl.Float64),
             pl.lit(sent, dtype=pl.Datetime("us")).alias("contacted_at"),
         ))
     joined = contacts.join(pl.concat(bought), on=["customer_id", "contacted_at"], how="left")

@@ -22,15 +22,18 @@ into common table expressions so the same query runs on any mapped warehouse.
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import tomllib
 from dataclasses import dataclass, field
+from datetime import date
 from pathlib import Path
 from typing import Literal
 
 from reachlist.errors import ContractError, InputError
 
-Kind = Literal["integer", "text", "boolean", "date", "timestamp", "number"]
+Kind = Literal["id", "integer", "text", "boolean", "date", "timestamp", "number"]
+"""``id``: an identifier that may be an integer or text (alphanumeric codes, UUIDs)."""
 
 
 @dataclass(frozen=True)
@@ -65,7 +68,7 @@ CONTRACT: dict[str, Table] = {
         Table(
             "customers",
             (
-                Column("customer_id", "integer"),
+                Column("customer_id", "id"),
                 Column("email", "text", nullable=True),
                 Column("marketing_consent", "boolean", nullable=True, doc="NULL counts as no"),
                 Column("consent_date", "date", nullable=True),
@@ -91,8 +94,8 @@ CONTRACT: dict[str, Table] = {
         Table(
             "orders",
             (
-                Column("order_id", "integer"),
-                Column("customer_id", "integer"),
+                Column("order_id", "id"),
+                Column("customer_id", "id"),
                 Column("ordered_at", "timestamp"),
                 Column("channel", "text", nullable=True),
             ),
@@ -101,7 +104,7 @@ CONTRACT: dict[str, Table] = {
         Table(
             "order_lines",
             (
-                Column("order_id", "integer"),
+                Column("order_id", "id"),
                 Column("sku", "text"),
                 Column("quantity", "number", doc="negative for returns"),
                 Column("net_amount", "number", nullable=True),
@@ -111,7 +114,7 @@ CONTRACT: dict[str, Table] = {
         Table(
             "suppressions",
             (
-                Column("customer_id", "integer"),
+                Column("customer_id", "id"),
                 Column("reason", "text", nullable=True),
                 Column("suppressed_at", "date", nullable=True),
             ),
@@ -136,7 +139,7 @@ CONTRACT: dict[str, Table] = {
             "campaign_contacts",
             (
                 Column("campaign_id", "text"),
-                Column("customer_id", "integer"),
+                Column("customer_id", "id"),
                 Column("contact_group", "text", doc="treatment or holdout"),
                 Column("score", "number", nullable=True),
                 Column("reason", "text", nullable=True),
@@ -153,18 +156,42 @@ LOG_TABLES = tuple(name for name, t in CONTRACT.items() if t.owned)
 
 
 @dataclass(frozen=True)
+class ColumnSource:
+    """Where a logical column comes from when it is not a physical column: a SQL expression over
+    the mapped table (``{ sql = "CAST(article_no AS VARCHAR)" }``, run as written: it is the
+    warehouse owner's own SQL) or a constant (``{ value = false }``, written as a literal)."""
+
+    kind: Literal["sql", "value"]
+    sql: str = ""
+    value: object = None
+
+    def describe(self) -> str:
+        return f"{{ sql = {self.sql!r} }}" if self.kind == "sql" else f"{{ value = {self.value!r} }}"
+
+
+@dataclass(frozen=True)
 class TableMap:
     logical: str
     physical: tuple[str, ...]  # schema parts + table name, unquoted
     columns: dict[str, str] = field(default_factory=dict)  # logical -> physical
+    sources: dict[str, ColumnSource] = field(default_factory=dict)  # logical -> expression/constant
+    # logical -> SQL type: physical columns whose type reachlist casts (TIMESTAMP_NS -> TIMESTAMP,
+    # an integer SKU -> text); filled in by the warehouse from the physical types it finds
+    casts: dict[str, str] = field(default_factory=dict)
 
     def column(self, logical: str) -> str:
         return self.columns.get(logical, logical)
 
+    def source(self, logical: str) -> ColumnSource | None:
+        return self.sources.get(logical)
+
     @property
     def is_identity(self) -> bool:
-        return self.physical == (self.logical,) and all(
-            self.column(c) == c for c in CONTRACT[self.logical].column_names
+        return (
+            self.physical == (self.logical,)
+            and not self.sources
+            and not self.casts
+            and all(self.column(c) == c for c in CONTRACT[self.logical].column_names)
         )
 
     @property
@@ -230,25 +257,41 @@ class Mapping:
             table = CONTRACT[key]
             physical: tuple[str, ...] = (*base, key)
             columns: dict[str, str] = {}
+            sources: dict[str, ColumnSource] = {}
             for col, value in section.items():
-                if not isinstance(value, str) or not value.strip():
-                    raise InputError(
-                        f"Mapping {source}: {key}.{col} must be a non-empty string, found {value!r}.",
-                        hint=f'write {col} = "name_in_your_warehouse"',
-                    )
-                if col == "table":
-                    parts = tuple(part.strip() for part in value.split("."))
-                    physical = parts if len(parts) > 1 else (*base, *parts)
-                elif col in table.column_names:
-                    columns[col] = value
-                else:
+                if col != "table" and col not in table.column_names:
                     raise InputError(
                         f"Mapping {source}: {key}.{col} is not a column of {key} "
                         f"(expected table or one of {', '.join(table.column_names)}).",
                         hint=_suggest(col, ["table", *table.column_names]),
                     )
-            tables[key] = TableMap(key, physical, columns)
+                if isinstance(value, dict) and col != "table" and not table.owned:
+                    sources[col] = _column_source(value, f"{key}.{col}", source)
+                    continue
+                if not isinstance(value, str) or not value.strip():
+                    expression = "" if table.owned or col == "table" else (
+                        ', { sql = "EXPRESSION" } or { value = CONSTANT }'
+                    )
+                    raise InputError(
+                        f"Mapping {source}: {key}.{col} must be a non-empty string"
+                        f"{' or a table' if expression else ''}, found {value!r}.",
+                        hint=f'write {col} = "name_in_your_warehouse"{expression}',
+                    )
+                if col == "table":
+                    parts = tuple(part.strip() for part in value.split("."))
+                    physical = parts if len(parts) > 1 else (*base, *parts)
+                else:
+                    columns[col] = value
+            tables[key] = TableMap(key, physical, columns, sources)
         return cls(tables, source=source)
+
+    def with_casts(self, casts: dict[str, dict[str, str]]) -> Mapping:
+        """The same mapping with the casts a warehouse's physical types need."""
+        tables = {
+            name: dataclasses.replace(t, casts=dict(casts.get(name, {})))
+            for name, t in self.tables.items()
+        }
+        return Mapping(tables, source=self.source)
 
     def table(self, logical: str) -> TableMap:
         return self.tables[logical]
@@ -258,6 +301,26 @@ class Mapping:
         if logical_column is None:
             return f"[{logical_table}] table"
         return f"[{logical_table}] {logical_column}"
+
+
+def _column_source(value: dict[str, object], where: str, source: str) -> ColumnSource:
+    keys = sorted(value)
+    if keys == ["sql"] and isinstance(value["sql"], str) and value["sql"].strip():
+        text = value["sql"].strip()
+        if ";" in text or "--" in text or "/*" in text:
+            raise InputError(
+                f"Mapping {source}: {where} must be one SQL expression, found {text!r} (a ';' or "
+                "a comment would end or hide part of reachlist's query).",
+                hint='write one expression such as { sql = "CAST(article_no AS VARCHAR)" }',
+            )
+        return ColumnSource("sql", sql=text)
+    if keys == ["value"] and isinstance(value["value"], bool | int | float | str | date):
+        return ColumnSource("value", value=value["value"])
+    raise InputError(
+        f"Mapping {source}: {where} must be a column name, {{ sql = \"EXPRESSION\" }} or "
+        f"{{ value = CONSTANT }}, found {value!r}.",
+        hint='for example { sql = "CAST(article_no AS VARCHAR)" } or { value = false }',
+    )
 
 
 def _suggest(word: str, choices: list[str]) -> str:

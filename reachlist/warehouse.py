@@ -29,7 +29,7 @@ from reachlist.query import (
     quote_qualified,
     render,
 )
-from reachlist.schema import Mapping
+from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
 
 
 def _is_url(target: str) -> bool:
@@ -54,6 +54,8 @@ class Warehouse:
         self._conn = conn
         self._engine = engine
         self._in_transaction = False
+        self._typed: Mapping | None = None  # the mapping with the casts physical types need
+        self._text_ids = False
 
     # -- opening ---------------------------------------------------------------------------------
     @classmethod
@@ -136,11 +138,50 @@ class Warehouse:
 
     # -- running ---------------------------------------------------------------------------------
     def render(self, query: Query) -> Rendered:
-        return render(query, self.dialect, self.mapping)
+        return render(query, self.dialect, self.typed_mapping)
+
+    @property
+    def typed_mapping(self) -> Mapping:
+        """The mapping plus the casts this warehouse's column types need (TIMESTAMP_NS ->
+        TIMESTAMP, integer SKUs or ids -> text, ...), worked out once from its catalogue."""
+        if self._typed is None:
+            from reachlist.types import plan_casts
+
+            physical: dict[str, dict[str, str] | None] = {}
+            for name in SOURCE_TABLES:
+                tmap = self.mapping.table(name)
+                found = self.physical_columns(name)
+                if found is None:
+                    physical[name] = None
+                    continue
+                by_name = {c.name.lower(): c.data_type for c in found}
+                physical[name] = {
+                    col: by_name[tmap.column(col).lower()]
+                    for col in CONTRACT[name].column_names
+                    if tmap.source(col) is None and tmap.column(col).lower() in by_name
+                }
+            casts, self._text_ids = plan_casts(self.mapping.tables, physical,
+                                               self.dialect.text_type)
+            self._typed = self.mapping.with_casts(casts)
+        return self._typed
+
+    @property
+    def text_ids(self) -> bool:
+        """Whether customer ids are text here (some table holds them as text or UUIDs)."""
+        _ = self.typed_mapping
+        return self._text_ids
 
     def fetch(self, query: Query) -> pl.DataFrame:
         """Run a query and return its rows as a polars DataFrame."""
-        r = self.render(query)
+        return self._fetch_rendered(self.render(query), query)
+
+    def fetch_raw(self, sql: str, params: dict[str, Any] | None = None) -> pl.DataFrame:
+        """Run SQL written against the physical names (no mapping views): catalogue probes such
+        as ``check`` trying a mapped expression. Values are still bound."""
+        q = Query(sql, dict(params or {}), label="probe")
+        return self._fetch_rendered(Rendered(*_raw(q, self.dialect)), q)
+
+    def _fetch_rendered(self, r: Rendered, query: Query) -> pl.DataFrame:
         try:
             if self.is_duckdb:
                 return self._conn.sql(r.sql, params=r.params or None).pl()
@@ -201,6 +242,7 @@ class Warehouse:
         Reads inside the block do not commit (on PostgreSQL a read would otherwise end it)."""
         if self._in_transaction:
             raise WarehouseError("Nested transactions are not supported.", hint="report this")
+        _ = self.typed_mapping  # read the catalogue before the transaction, not inside it
         if self.is_duckdb:
             self._conn.execute("BEGIN TRANSACTION")
         else:

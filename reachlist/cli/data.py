@@ -27,9 +27,18 @@ def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
 def check(wh: Warehouse) -> None:
     """Validate a warehouse against the contract and count its data quirks."""
     from reachlist.check import check_warehouse
+    from reachlist.errors import ContractError
     from reachlist.render.check import render_check
 
-    render_check(check_warehouse(wh), out)
+    report = check_warehouse(wh)
+    render_check(report, out)
+    if not report.ok:
+        n = len(report.errors)
+        raise ContractError(
+            f"Expected a warehouse that matches the contract, found {n:,} error(s) listed above.",
+            hint="apply the fix of each row (mapping lines go in the file passed with -m), then "
+            "run check again",
+        )
 
 
 @main.command("copy")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from reachlist.check import CheckReport
@@ -26,18 +27,44 @@ _QUIRKS = [
 ]
 
 
+def problems_table(report: CheckReport) -> Table:
+    table = Table(title="Problems", title_justify="left", show_lines=True, expand=True)
+    table.add_column("", no_wrap=True, width=1)
+    table.add_column("what", ratio=2, overflow="fold")
+    table.add_column("where", ratio=3, overflow="fold")
+    table.add_column("found", ratio=3, overflow="fold")
+    table.add_column("fix", ratio=4, overflow="fold")
+    for p in report.problems:
+        mark = "[red]x[/]" if p.severity == "error" else "[yellow]![/]"
+        table.add_row(mark, escape(p.what), escape(p.where), escape(p.found), escape(p.fix))
+    return table
+
+
 def render_check(report: CheckReport, console: Console) -> None:
     c = report.counts
     console.print(
-        f"[bold]Warehouse[/] {report.warehouse} ({report.dialect}); mapping: {report.mapping}"
+        f"[bold]Warehouse[/] {escape(report.warehouse)} ({report.dialect}); mapping: "
+        f"{escape(report.mapping)}"
     )
+    errors, warnings = len(report.errors), len(report.problems) - len(report.errors)
+    if report.problems:
+        console.print(problems_table(report))
+        console.print(
+            f"{errors:,} error(s) (x: lists cannot be built until fixed), {warnings:,} "
+            "warning(s) (!: handled by every command, and reported)."
+        )
+    if report.casts:
+        console.print("Read with a conversion (lossless, no action needed): "
+                      + escape("; ".join(report.casts)) + ".")
+    if errors:
+        return
     console.print("[green]Contract: every table and column found, with usable types.[/]")
     tables = Table(title="Tables", title_justify="left", show_edge=False)
     tables.add_column("logical")
     tables.add_column("in the warehouse")
     tables.add_column("rows", justify="right")
     for name, physical in report.tables.items():
-        tables.add_row(name, physical, fmt_count(c.get(name)))
+        tables.add_row(name, escape(physical), fmt_count(c.get(name)))
     for name, present in report.log_tables_present.items():
         tables.add_row(name, "present" if present else "(created on first build)", "")
     console.print(tables)

@@ -1,0 +1,5 @@
+-- Rows without an id that every query joins on.
+SELECT
+    (SELECT count(*) FROM customers WHERE customer_id IS NULL)  AS customers_without_id,
+    (SELECT count(*) FROM orders WHERE order_id IS NULL)        AS orders_without_id,
+    (SELECT count(*) FROM order_lines WHERE sku IS NULL)        AS lines_without_sku
