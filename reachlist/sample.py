@@ -1165,18 +1165,13 @@ _INSERT = {
 
 
 def _write(tmp: Path, tables: dict[str, pa.Table]) -> None:
-    import duckdb
+    from reachlist.warehouse import Warehouse
 
-    con = duckdb.connect(str(tmp))
-    try:
-        con.execute(_DDL)
+    with Warehouse.open(tmp, create=True) as wh:
+        wh.run_statement(_DDL)
         for name, sql in _INSERT.items():
-            con.register("src", tables[name])
-            con.execute(f"INSERT INTO {name} {sql}")
-            con.unregister("src")
-        con.execute("CHECKPOINT")
-    finally:
-        con.close()
+            wh.insert_arrow(name, tables[name], sql)
+        wh.run_statement("CHECKPOINT")
 
 
 def build_sample(

@@ -278,6 +278,25 @@ class Warehouse:
                 hint="check that this user may create and write tables there",
             ) from None
 
+    def insert_arrow(self, table: str, data: Any, select_sql: str) -> None:
+        """``INSERT INTO table <select_sql>`` where ``select_sql`` reads the Arrow table ``data``
+        as ``src`` (DuckDB only: how the sample warehouse is written)."""
+        if not self.is_duckdb:
+            raise WarehouseError(
+                f"Expected a DuckDB file to load Arrow data into, found {self.display_name}.",
+                hint="write the sample to a DuckDB file, then `reachlist copy` it elsewhere",
+            )
+        self._conn.register("src", data)
+        try:
+            self._conn.execute(f"INSERT INTO {quote_ident(table)} {select_sql}")
+        except Exception as exc:
+            raise WarehouseError(
+                f"Could not load {table} into {self.display_name}: {_first_line(exc)}.",
+                hint="check the free space and that the file is writable",
+            ) from None
+        finally:
+            self._conn.unregister("src")
+
     def _rollback(self) -> None:
         if not self.is_duckdb:
             with contextlib.suppress(Exception):
