@@ -347,11 +347,17 @@ def plan_list(
             "(surplus stock)",
         )
     check_share(request.holdout)
-    if request.cap_days < 0:
-        raise InputError(
-            f"Expected --cap-days of at least 0, found {request.cap_days}.",
-            hint="pass --cap-days 14, or 0 to switch the frequency cap off",
-        )
+    for value, option, low, high in (
+        (request.cap_days, "--cap-days", 0, MAX_CAP_DAYS),
+        (request.horizon_days, "--horizon", 1, MAX_HORIZON_DAYS),
+        (request.bought_within_days, "--bought-within", 1, MAX_DAYS_BACK),
+        (request.filters.active_days, "--ordered-within", 1, MAX_DAYS_BACK),
+    ):
+        if value is not None and not low <= value <= high:
+            raise InputError(
+                f"Expected {option} from {low:,} to {high:,} days, found {value:,}.",
+                hint=f"pass {option} with a number of days in that range",
+            )
     if request.cutoffs < 1:
         raise InputError(
             f"Expected --cutoffs of at least 1, found {request.cutoffs}.",
@@ -580,6 +586,9 @@ def item_facts(wh: Warehouse, item: Target) -> dict[str, Any]:
     return wh.fetch(q).row(0, named=True)
 
 
+MAX_CAP_DAYS = 3_650  # ten years of contact history is the most a cap may read
+MAX_HORIZON_DAYS = 1_825  # five years: the longest take-up horizon
+MAX_DAYS_BACK = 36_500  # a hundred years back: --bought-within, --ordered-within
 OFFER_CODE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_./-]{0,63}")
 HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
 

@@ -220,6 +220,21 @@ class Mapping:
                 f"Mapping file {str(p)!r} was not found.",
                 hint="pass --mapping with the path of an existing TOML file",
             ) from None
+        except IsADirectoryError:
+            raise InputError(
+                f"Expected a mapping file (TOML) at {str(p)!r}, found a folder.",
+                hint="pass the path of the .toml file itself",
+            ) from None
+        except UnicodeDecodeError:
+            raise InputError(
+                f"Expected a mapping file (TOML text) at {str(p)!r}, found binary data.",
+                hint="pass the path of the .toml mapping file",
+            ) from None
+        except PermissionError:
+            raise InputError(
+                f"Expected a readable mapping file at {str(p)!r}, found no permission to read it.",
+                hint="check the file's permissions",
+            ) from None
         except tomllib.TOMLDecodeError as exc:
             raise InputError(
                 f"Mapping file {str(p)!r} is not valid TOML: {exc}.",

@@ -66,12 +66,15 @@ class Warehouse:
         *,
         read_only: bool = False,
         create: bool = False,
+        connect_timeout: int = 15,
     ) -> Warehouse:
-        """``create`` makes a missing DuckDB file (a local state database) instead of refusing."""
+        """``create`` makes a missing DuckDB file (a local state database) instead of refusing.
+        ``read_only`` opens a DuckDB file read-only (several readers at once; a read-only file
+        works). ``connect_timeout`` (seconds) bounds the wait for a server that does not answer."""
         target = str(target)
         mapping = mapping or Mapping.identity()
         if _is_url(target):
-            return cls._open_url(target, mapping)
+            return cls._open_url(target, mapping, connect_timeout)
         return cls._open_duckdb(target, mapping, read_only, create)
 
     @classmethod
@@ -96,14 +99,19 @@ class Warehouse:
         return cls(path, DUCKDB, mapping, conn)
 
     @classmethod
-    def _open_url(cls, url: str, mapping: Mapping) -> Warehouse:
+    def _open_url(cls, url: str, mapping: Mapping, connect_timeout: int = 15) -> Warehouse:
         import sqlalchemy as sa
 
+        url = encode_credentials(url)
+        connect_args: dict[str, Any] = {}
+        if url.split(":", 1)[0].startswith("postgresql") and "connect_timeout" not in url:
+            connect_args["connect_timeout"] = connect_timeout
         try:
-            engine = sa.create_engine(url)
+            engine = sa.create_engine(url, connect_args=connect_args)
         except Exception as exc:  # bad URL or missing driver
             raise WarehouseError(
-                f"Cannot use warehouse URL {_redact(url)!r}: {_first_line(exc)}.",
+                f"Cannot use warehouse URL {_redact(url)!r}: "
+                f"{redact_text(_first_line(exc), url)}.",
                 hint="use a SQLAlchemy URL such as postgresql+psycopg://user@host:5432/db and "
                 "install its driver (pip install 'reachlist[postgres]')",
             ) from None
@@ -111,7 +119,8 @@ class Warehouse:
             conn = engine.connect()
         except Exception as exc:
             raise WarehouseError(
-                f"Cannot reach warehouse {_redact(url)!r}: {_first_line(exc)}.",
+                f"Cannot reach warehouse {_redact(url)!r}: "
+                f"{redact_text(_first_line(exc), url)}.",
                 hint="check host, port, database name and credentials, and that the server runs",
             ) from None
         return cls(url, dialect_named(engine.dialect.name), mapping, conn, engine)
@@ -394,11 +403,57 @@ def _first_line(exc: BaseException) -> str:
     return text[0].rstrip(".") if text else type(exc).__name__
 
 
+def _secrets(target: str) -> list[str]:
+    """The password(s) a warehouse URL carries: in the credentials (up to the last @ before the
+    host, so an unencoded @ in the password is covered) and in a ?password= query value."""
+    from urllib.parse import unquote
+
+    found: list[str] = []
+    if "://" not in target:
+        return found
+    rest = target.split("://", 1)[1]
+    netloc, _, query = rest.partition("?")
+    netloc = netloc.split("/", 1)[0] if "@" not in netloc else netloc
+    if "@" in netloc:
+        creds = netloc.rsplit("@", 1)[0]
+        if ":" in creds:
+            secret = creds.split(":", 1)[1]
+            found += [secret, unquote(secret)]
+    for part in query.split("&"):
+        key, _, value = part.partition("=")
+        if unquote(key).lower() in ("password", "pwd", "pass") and value:
+            found += [value, unquote(value)]
+    return [f for f in dict.fromkeys(found) if f]
+
+
+def encode_credentials(url: str) -> str:
+    """Percent-encode a password written with a bare @ (``u:p@ss@host`` or ``?password=p@ss``),
+    so the driver reads the host after the right @ and the whole password, instead of a host
+    made of the password's end."""
+    from urllib.parse import parse_qsl, quote, urlencode
+
+    if "://" not in url:
+        return url
+    scheme, rest = url.split("://", 1)
+    rest, qmark, query = rest.partition("?")
+    if "@" in query:
+        query = urlencode(parse_qsl(query, keep_blank_values=True))
+    netloc, sep, path = rest.partition("/")
+    if netloc.count("@") >= 2:
+        creds, host = netloc.rsplit("@", 1)
+        user, colon, secret = creds.partition(":")
+        netloc = f"{quote(user, safe='')}{colon}{quote(secret, safe='')}@{host}"
+    return f"{scheme}://{netloc}{sep}{path}{qmark}{query}"
+
+
 def _redact(target: str) -> str:
     """Hide a password in a URL before it is printed."""
-    if "://" not in target or "@" not in target:
-        return target
-    scheme, rest = target.split("://", 1)
-    creds, host = rest.rsplit("@", 1)
-    user = creds.split(":", 1)[0]
-    return f"{scheme}://{user}:***@{host}" if ":" in creds else target
+    return redact_text(target, target)
+
+
+def redact_text(text: str, target: str) -> str:
+    """``text`` (a URL, or a driver's message about it) with every password of ``target``
+    replaced by ***."""
+    for secret in sorted(_secrets(target), key=len, reverse=True):
+        text = text.replace(secret, "***")
+    return text

@@ -14,6 +14,7 @@ from typing import Any
 
 import click
 from rich.console import Console
+from rich.text import Text
 
 from reachlist.errors import ReachlistError
 from reachlist.schema import Mapping
@@ -33,8 +34,17 @@ err = _console(stderr=True)
 
 
 def _fail(exc: ReachlistError) -> None:
-    err.print(f"[bold red]Error:[/] {exc}", soft_wrap=True)
+    # The message holds user text (a target, a path, a mapping line): never read it as markup.
+    err.print(Text.assemble(("Error:", "bold red"), " ", str(exc)), soft_wrap=True)
     sys.exit(exc.exit_code)
+
+
+READ_ONLY_COMMANDS = frozenset({
+    "check", "items", "rules", "sql", "sizes", "overlap", "estimate", "backtest", "results",
+    "campaigns", "brief",
+})
+"""Commands that never write to the warehouse: they open a DuckDB file read-only, so several can
+run at once and a read-only file works. ``build`` joins them when the log goes to --state."""
 
 
 class _Group(click.Group):
@@ -61,10 +71,23 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
         default=None,
         help="TOML file mapping the contract's tables and columns to the warehouse's names.",
     )
+    @click.option(
+        "--connect-timeout",
+        "connect_timeout",
+        default=15,
+        show_default=True,
+        type=click.IntRange(1, 3600),
+        metavar="SECONDS",
+        help="Give up on a warehouse server that does not answer within this time.",
+    )
     @functools.wraps(fn)
-    def wrapper(*args: Any, warehouse: str, mapping: str | None, **kwargs: Any) -> Any:
+    def wrapper(*args: Any, warehouse: str, mapping: str | None, connect_timeout: int,
+                **kwargs: Any) -> Any:
         m = Mapping.from_toml(mapping) if mapping else Mapping.identity()
-        with Warehouse.open(warehouse, m, read_only=kwargs.pop("_read_only", False)) as wh:
+        name = click.get_current_context().command.name
+        read_only = name in READ_ONLY_COMMANDS or (name == "build" and bool(kwargs.get("state")))
+        with Warehouse.open(warehouse, m, read_only=read_only,
+                            connect_timeout=connect_timeout) as wh:
             return fn(*args, wh=wh, **kwargs)
 
     return wrapper

@@ -45,17 +45,18 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
             click.option("--stand-in", default=None, metavar="ITEM",
                          help="Use the rules of this existing sku or category:NAME (for an item "
                          "without history); the estimates are then borrowed from it."),
-            click.option("--top", default=5, show_default=True, type=click.IntRange(1),
+            click.option("--top", default=5, show_default=True, type=click.IntRange(1, 100),
                          help="Use this many significant rules."),
             click.option("--rank-by", default="leverage", show_default=True,
                          type=click.Choice(RANK_MEASURES), help="Measure that ranks the rules."),
             click.option("--rule", "rule_ids", multiple=True, metavar="ID",
                          help="Use these rules (ids from `reachlist rules`) instead of --top."),
-            click.option("--bought-within", default=None, type=click.IntRange(1), metavar="DAYS",
+            click.option("--bought-within", default=None, type=click.IntRange(1, 36_500),
+                         metavar="DAYS",
                          help="Exclude only customers who bought the target in these last days "
                          "[default: ever]."),
             click.option("--cap-days", default=DEFAULT_CAP_DAYS, show_default=True,
-                         type=click.IntRange(0),
+                         type=click.IntRange(0, 3_650),
                          help="Exclude customers contacted in these last days (campaign log); "
                          "0 switches the cap off."),
             click.option("--region", "regions", multiple=True,
@@ -63,7 +64,7 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
             click.option("--channel", "channels", multiple=True,
                          help="Keep only customers with an order through this channel in the "
                          "window (repeatable)."),
-            click.option("--ordered-within", default=None, type=click.IntRange(1),
+            click.option("--ordered-within", default=None, type=click.IntRange(1, 36_500),
                          metavar="DAYS", help="Keep only customers with an order in these last "
                          "days."),
             click.option("--adult-age", default=18, show_default=True, type=click.IntRange(1, 99),
@@ -78,7 +79,7 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
                          help="The day the list is sent: the contact cap counts back from it "
                          "and results count the horizon from it [default: --until, else "
                          "today]."),
-            click.option("--stock", default=None, type=click.IntRange(1),
+            click.option("--stock", default=None, type=click.IntRange(1, 10**12),
                          help="clear: units to clear [default: products.stock_on_hand]."),
             click.option("--ignore-consent", is_flag=True,
                          help="Do not exclude customers without marketing consent (printed and "
@@ -100,18 +101,18 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 def estimate_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """Options of the commands that size and estimate the list: sizes and build."""
     fn = click.option("--min-audience", default=DEFAULT_MIN_AUDIENCE, show_default=True,
-                      type=click.IntRange(0), metavar="N",
+                      type=click.IntRange(0, 10**12), metavar="N",
                       help="Do not propose a rule whose audience after the exclusions is "
                       "smaller; 0 for no minimum.")(fn)
     fn = click.option("--no-estimate", is_flag=True,
                       help="Skip the take-up estimate (a quicker preview; a clearance is then "
                       "sized by the co-purchase rate).")(fn)
     fn = click.option("--cutoffs", default=MAX_CUTOFFS, show_default=True,
-                      type=click.IntRange(1), metavar="N",
+                      type=click.IntRange(1, 60), metavar="N",
                       help="Past cutoffs the estimate is calibrated on; fewer is quicker on a "
                       "large warehouse, with a wider interval.")(fn)
     return click.option("--horizon", "horizon_days", default=DEFAULT_HORIZON, show_default=True,
-                        type=click.IntRange(1), metavar="DAYS",
+                        type=click.IntRange(1, 1_825), metavar="DAYS",
                         help="Expected buyers within this many days.")(fn)
 
 

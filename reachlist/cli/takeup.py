@@ -17,7 +17,7 @@ from reachlist.estimate import DEFAULT_HORIZON
 from reachlist.warehouse import Warehouse
 
 _horizon = click.option("--horizon", "horizon_days", default=DEFAULT_HORIZON, show_default=True,
-                        type=click.IntRange(1), metavar="DAYS",
+                        type=click.IntRange(1, 1_825), metavar="DAYS",
                         help="Days after the send (or cutoff) in which a purchase counts.")
 _json = click.option("--json", "as_json", is_flag=True, help="Print JSON instead of tables.")
 
@@ -28,7 +28,7 @@ _json = click.option("--json", "as_json", is_flag=True, help="Print JSON instead
 @mining_options
 @list_options
 @_horizon
-@click.option("--cutoffs", default=13, show_default=True, type=click.IntRange(1), metavar="N",
+@click.option("--cutoffs", default=13, show_default=True, type=click.IntRange(1, 60), metavar="N",
               help="Past cutoffs the estimate is calibrated on; fewer is quicker on a large "
               "warehouse, with a wider interval.")
 @click.option("--uplift", default=0.5, show_default=True, type=click.FloatRange(0, min_open=True),
@@ -76,7 +76,7 @@ def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state
 @click.option("--level", default="sku", show_default=True,
               type=click.Choice(["sku", "category", "department"]),
               help="Item level of the antecedents.")
-@click.option("--top", default=5, show_default=True, type=click.IntRange(1),
+@click.option("--top", default=5, show_default=True, type=click.IntRange(1, 100),
               help="Significant rules to backtest.")
 @click.option("--rank-by", default="leverage", show_default=True, type=click.Choice(RANK_MEASURES))
 @click.option("--chart", "chart_path", default=None, metavar="FILE.svg",
