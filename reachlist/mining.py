@@ -33,6 +33,7 @@ from __future__ import annotations
 import hashlib
 import math
 from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Any
 
@@ -1002,6 +1003,109 @@ def frequent_itemsets(
     )
 
 
+SEARCH_BUDGET = 4_000_000
+"""The most itemset nodes one search toward a target may count (each is an AND and a popcount
+over the target's baskets). A search estimated to need more is narrowed first, and says how."""
+KEEP_TOP = 1_000
+"""When the floor is raised to stay in budget, the rules kept exact: the best this many by
+leverage (every rule that can reach them is still searched)."""
+
+
+@dataclass
+class SearchPlan:
+    """What a bounded search did: its floor, its depth, its items, and why it narrowed."""
+
+    min_count: int
+    max_antecedent: int
+    items: int
+    estimated_nodes: int
+    notes: list[str] = field(default_factory=list)
+
+
+def estimate_nodes(cond_counts: np.ndarray, n_y: int, min_count: int, max_antecedent: int) -> int:
+    """Itemset nodes (one AND and popcount each) a search below the target would count.
+
+    Items are searched in ascending order of their count inside the target's baskets, each
+    extended by the items after it: every pair of frequent items is counted; a pair that stays
+    at the floor (guessed as if the items were independent there: c_i * c_j / n_y >= floor) is
+    extended by every item after its second one."""
+    c = np.sort(cond_counts[cond_counts >= min_count].astype(np.float64))
+    k = int(c.size)
+    if max_antecedent < 2 or k < 2:
+        return k
+    nodes = k + k * (k - 1) // 2
+    if max_antecedent < 3:
+        return nodes
+    first = np.searchsorted(c, float(min_count) * max(n_y, 1) / np.maximum(c, 1e-12), "left")
+    start = np.maximum(first, np.arange(k) + 1)
+    m = np.maximum(k - start, 0).astype(np.float64)
+    # pairs (i, j >= start) survive; pair (i, j) has k - 1 - j successors: sum = m (m - 1) / 2
+    return int(nodes + float((m * (m - 1) / 2).sum()))
+
+
+def plan_search(
+    baskets: Baskets,
+    y: int,
+    cond_counts: np.ndarray,
+    others: np.ndarray,
+    min_count: int,
+    max_antecedent: int,
+    *,
+    sort_by: str,
+    budget: int = SEARCH_BUDGET,
+    keep_top: int = KEEP_TOP,
+) -> SearchPlan:
+    """A floor and a depth that keep the search within ``budget`` nodes.
+
+    With leverage ranking the floor is raised soundly first (Webb 2000, "Efficient search for
+    association rules", KDD): leverage(X -> y) <= P(X, y) * (1 - P(y)), and adding items to X can
+    only lower P(X, y); so once ``keep_top`` one-item rules reach a leverage tau, no rule with
+    fewer than tau * n / (1 - P(y)) co-purchases can be among the best ``keep_top``, and the search
+    skips them. If that is not enough (or another measure ranks), it narrows heuristically: a
+    shallower antecedent, then a higher floor, and says so."""
+    n = baskets.n_baskets
+    n_y = int(baskets.item_counts[y])
+    p_y = n_y / max(n, 1)
+    plan = SearchPlan(min_count, max_antecedent, int((cond_counts >= min_count).sum()),
+                      estimate_nodes(cond_counts, n_y, min_count, max_antecedent))
+    if plan.estimated_nodes <= budget:
+        return plan
+    first = plan.estimated_nodes
+    if sort_by == "leverage" and p_y < 1:
+        eligible = cond_counts >= min_count
+        n_xy = cond_counts[eligible].astype(np.float64)
+        n_x = baskets.item_counts[others[eligible]].astype(np.float64)
+        lev = n_xy / n - (n_x / n) * p_y
+        if lev.size >= keep_top:
+            tau = float(np.partition(lev, lev.size - keep_top)[lev.size - keep_top])
+            if tau > 0:
+                floor = max(min_count, int(np.ceil(tau * n / (1 - p_y) - 1e-9)))
+                if floor > min_count:
+                    plan.min_count = floor
+                    plan.estimated_nodes = estimate_nodes(cond_counts, n_y, floor, max_antecedent)
+                    plan.items = int((cond_counts >= floor).sum())
+                    plan.notes.append(
+                        f"searched rules with at least {floor:,} co-purchases (min support "
+                        f"floor {min_count:,}): no rule below that can be among the "
+                        f"{keep_top:,} best by leverage"
+                    )
+    while plan.estimated_nodes > budget and plan.max_antecedent > 2:
+        plan.max_antecedent -= 1
+        plan.estimated_nodes = estimate_nodes(cond_counts, n_y, plan.min_count, plan.max_antecedent)
+        plan.notes.append(f"antecedents of at most {plan.max_antecedent} items")
+    raised = plan.min_count
+    while plan.estimated_nodes > budget:
+        raised = max(raised + 1, int(raised * 1.25))
+        plan.estimated_nodes = estimate_nodes(cond_counts, n_y, raised, plan.max_antecedent)
+    if raised > plan.min_count:
+        plan.min_count = raised
+        plan.notes.append(f"a floor of {raised:,} co-purchases per rule")
+    plan.items = int((cond_counts >= plan.min_count).sum())
+    plan.notes.insert(0, f"narrowed to stay within {budget:,} counted itemsets (about "
+                         f"{first:,} estimated at the requested settings)")
+    return plan
+
+
 def target_rules(
     baskets: Baskets,
     target: str,
@@ -1015,12 +1119,19 @@ def target_rules(
     correction: str = "holm",
     alpha: float = 0.05,
     sort_by: str = "lift",
+    budget: int | None = SEARCH_BUDGET,
+    keep_top: int = KEEP_TOP,
+    notes: list[str] | None = None,
 ) -> pl.DataFrame:
     """Rules X -> ``target`` with 1..max_antecedent antecedent items and n(X+target) >= min count.
 
-    The p-value correction runs over every such rule (before the confidence, lift and
+    The p-value correction runs over every such rule examined (before the confidence, lift and
     productivity filters); ``n_tested`` says how many. Unproductive rules are dropped unless
     ``keep_unproductive``. Columns: ``RULE_COLUMNS``; sorted by ``sort_by`` descending.
+
+    The search is bounded: when it is estimated to count more than ``budget`` itemsets it is
+    narrowed (:func:`plan_search`) and one line saying how is appended to ``notes``.
+    ``budget=None`` searches everything (tests comparing with exhaustive references).
     """
     _check_common(min_confidence, min_lift, alpha, correction)
     n = baskets.n_baskets
@@ -1035,12 +1146,19 @@ def target_rules(
     others = others[baskets.item_counts[others] >= min_count]
     holding = baskets.baskets_holding(y)
     cond_bits, cond_counts = _project(baskets, holding, others)
+    depth = int(max_antecedent)
+    if budget is not None:
+        plan = plan_search(baskets, y, cond_counts, others, min_count, depth, sort_by=sort_by,
+                           budget=budget, keep_top=keep_top)
+        if plan.notes and notes is not None:
+            notes.append("; ".join(plan.notes) + "; the correction counts the rules examined")
+        min_count, depth = plan.min_count, plan.max_antecedent
     keep = np.flatnonzero(cond_counts >= min_count)
     keep = keep[np.argsort(cond_counts[keep], kind="stable")]
     # every X with n(X+y) >= min_count: mined inside the baskets that hold y
     found = _Found()
     _search(baskets, holding, cond_bits[keep], others[keep], cond_counts[keep], min_count,
-            int(max_antecedent), found, pair_leaves=False)
+            depth, found, pair_leaves=False)
     ante, size, n_xy = found.matrix(baskets.n_items)
     # n(X): on all baskets, or as n(X+y) + n(X without y) when fewer baskets lack y than hold it
     if 2 * n_y <= n:

@@ -39,6 +39,8 @@ from reachlist.warehouse import Warehouse
 
 DEFAULT_MIN_SUPPORT = 0.002
 BREADTH_LIFT = "breadth_lift"
+BREADTH_ROWS = 500
+"""Rules (best first) whose breadth-matched lift is computed; beyond them only significant ones."""
 """Column of a rule's added value over shopping breadth (see :func:`breadth_lifts`)."""
 _RANK = {"sku": 0, "category": 1, "department": 2}
 
@@ -56,6 +58,7 @@ class RuleSet:
     n_baskets: int
     correction: str
     frame: pl.DataFrame
+    note: str = ""  # how the search narrowed to stay within its budget (empty: it did not)
 
     @property
     def target_label(self) -> str:
@@ -151,14 +154,17 @@ def mine_rules(
         correction=correction,
         sort_by="lift" if sort_by == BREADTH_LIFT else sort_by,
     )
+    notes: list[str] = []
     frame = mining.target_rules(
         baskets,
         label,
         min_confidence=min_confidence,
         min_lift=min_lift,
         keep_unproductive=keep_unproductive,
+        notes=notes,
         **options,  # type: ignore[arg-type]
     )
+    note = "The search " + notes[0] + "." if notes else ""
     if frame.height == 0:
         raise EmptyResultError(
             _why_empty(
@@ -168,13 +174,21 @@ def mine_rules(
         )
     values: list[float | None] = [None] * frame.height
     if kind == "customer":
-        say("Matching rules on shopping breadth")
+        # breadth-matched lift for the rules that can be shown or used: the best BREADTH_ROWS
+        # by the ranking measure and the significant ones among the next (others stay empty)
+        shown = np.arange(frame.height) < BREADTH_ROWS
+        used = frame["significant"].to_numpy() & (np.arange(frame.height) < 4 * BREADTH_ROWS)
+        rows = np.flatnonzero(shown | used)
+        say(f"Matching {rows.size:,} rules on shopping breadth")
         breadth = basket_breadth(wh, baskets, tgt, lvl, window)
-        values = list(breadth_lifts(baskets, breadth, label, frame["antecedent"].to_list()))
+        antecedents = frame["antecedent"].to_list()
+        lifts = breadth_lifts(baskets, breadth, label, [antecedents[i] for i in rows])
+        for i, v in zip(rows.tolist(), lifts, strict=True):
+            values[i] = v
     frame = frame.with_columns(pl.Series(BREADTH_LIFT, values, dtype=pl.Float64))
     if sort_by == BREADTH_LIFT:
         frame = sort_by_breadth_lift(frame)
-    return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame)
+    return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame, note)
 
 
 def sort_by_breadth_lift(frame: pl.DataFrame) -> pl.DataFrame:

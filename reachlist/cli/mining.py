@@ -102,7 +102,7 @@ BREADTH_NOTE = (
     "--top",
     default=20,
     show_default=True,
-    type=click.IntRange(1),
+    type=click.IntRange(1, 10_000),
     help="Rules shown in the table (all go to --json/--csv).",
 )
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
@@ -122,6 +122,8 @@ def rules(
 
     Without TARGET: the strongest rules toward any consequent (exploratory).
     """
+    from rich.markup import escape
+
     from reachlist.export import write_list
     from reachlist.render.rules import render_rules, rules_csv_frame, rules_json
 
@@ -131,6 +133,7 @@ def rules(
             "is measured toward one target.",
             hint="pass a target, for example `reachlist rules SG04-104 --by breadth_lift`",
         )
+    note = ""
     with delayed_status(out, "Mining rules") as progress:
         if target is None:
             exploratory = {k: v for k, v in mining.items() if k != "max_antecedent"}
@@ -147,6 +150,7 @@ def rules(
         else:
             rs = mine_rules(wh, target, sort_by=measure, progress=progress, **mining)  # type: ignore[arg-type]
             frame, window, n, correction = rs.frame, rs.window, rs.n_baskets, rs.correction
+            note = rs.note
             title = (
                 f"Rules toward {rs.target} ({rs.level} antecedents), {n:,} "
                 f"{rs.basket} baskets, {window}"
@@ -157,7 +161,9 @@ def rules(
         click.echo(
             rules_json(
                 frame,
-                {"target": target, "window": str(window), "n_baskets": n, "correction": correction},
+                {"schema_version": 2, "target": target,
+                 "window": {"since": window.since.isoformat(), "until": window.until.isoformat()},
+                 "n_baskets": n, "correction": correction, "narrowed": note or None},
             )
         )
         return
@@ -168,6 +174,7 @@ def rules(
         title=title,
         limit=top,
         footer=[
+            *([f"[yellow]{escape(note)}[/]"] if note else []),
             f"sig: one-sided Fisher exact test, {correction}-corrected over {tested:,} rules tested "
             "(those meeting --min-support); * = adjusted p < 0.05, ns = not significant.",
             "conf is a historical co-purchase rate, not a take-up forecast.",

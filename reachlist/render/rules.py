@@ -76,13 +76,20 @@ def render_rules(
 
 def _clean(value: Any) -> Any:
     if isinstance(value, float) and (math.isinf(value) or math.isnan(value)):
-        return None if math.isnan(value) else ("inf" if value > 0 else "-inf")
+        return None
     return value
 
 
 def rules_json(frame: pl.DataFrame, meta: dict[str, Any]) -> str:
-    """JSON for machines: conviction's infinity is the string "inf", NaN is null."""
-    rules = [{k: _clean(v) for k, v in row.items()} for row in frame.iter_rows(named=True)]
+    """JSON for machines: numbers are numbers; a value that is not finite (conviction of a rule
+    that always holds is infinite) is null, and ``conviction_infinite`` says which."""
+    rules = []
+    for row in frame.iter_rows(named=True):
+        conviction = row.get("conviction")
+        clean = {k: _clean(v) for k, v in row.items()}
+        if "conviction" in row:
+            clean["conviction_infinite"] = isinstance(conviction, float) and math.isinf(conviction)
+        rules.append(clean)
     return json.dumps({**meta, "rules": rules}, indent=2, default=str)
 
 
