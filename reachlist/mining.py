@@ -503,6 +503,19 @@ class _Found:
         if ext.shape[0]:
             self.groups.append((prefix, ext, counts))
 
+    def size(self) -> int:
+        return sum(int(c.size) for _, _, c in self.groups)
+
+    def at_least(self, floor: int) -> None:
+        """Keep only itemsets counted at least ``floor`` times (subsets of a kept itemset are
+        counted at least as often, so they stay too)."""
+        kept = []
+        for prefix, ext, cnt in self.groups:
+            keep = cnt >= floor
+            if keep.any():
+                kept.append((prefix, ext[keep], cnt[keep]))
+        self.groups = kept
+
     def matrix(self, pad: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(ids (m, k) sorted per row, padded with ``pad``; sizes (m,); counts (m,))."""
         if not self.groups:
@@ -1043,6 +1056,42 @@ def estimate_nodes(cond_counts: np.ndarray, n_y: int, min_count: int, max_antece
     return int(nodes + float((m * (m - 1) / 2).sum()))
 
 
+RULE_BUDGET = 100_000
+"""The most candidate rules one search may assemble (each gets every measure and an exact test):
+more would not be read, and would cost memory and time in the table."""
+
+
+def estimate_rules(cond_counts: np.ndarray, n_y: int, min_count: int, max_antecedent: int) -> int:
+    """Candidate rules a search would keep (itemsets at the floor inside the target's baskets),
+    guessed as if items were independent there; above ``_EXACT_ITEMS`` frequent items the
+    depth-3 part is bounded by the nodes counted instead."""
+    c = np.sort(cond_counts[cond_counts >= min_count].astype(np.float64))
+    k = int(c.size)
+    if max_antecedent < 2 or k < 2:
+        return k
+    floor = float(min_count)
+    ny = float(max(n_y, 1))
+    first = np.searchsorted(c, floor * ny / np.maximum(c, 1e-12), "left")
+    start = np.maximum(first, np.arange(k) + 1)
+    pairs = int(np.maximum(k - start, 0).sum())
+    if max_antecedent < 3:
+        return k + pairs
+    if k > _EXACT_ITEMS:
+        return estimate_nodes(cond_counts, n_y, min_count, max_antecedent)
+    triples = 0
+    for i in range(k - 2):
+        js = np.arange(int(start[i]), k)
+        if js.size == 0:
+            continue
+        need = floor * ny * ny / (c[i] * c[js])
+        ls = np.maximum(np.searchsorted(c, need, "left"), js + 1)
+        triples += int(np.maximum(k - ls, 0).sum())
+    return k + pairs + triples
+
+
+_EXACT_ITEMS = 3_000
+
+
 def plan_search(
     baskets: Baskets,
     y: int,
@@ -1054,6 +1103,7 @@ def plan_search(
     sort_by: str,
     budget: int = SEARCH_BUDGET,
     keep_top: int = KEEP_TOP,
+    rule_budget: int = RULE_BUDGET,
 ) -> SearchPlan:
     """A floor and a depth that keep the search within ``budget`` nodes.
 
@@ -1066,9 +1116,15 @@ def plan_search(
     n = baskets.n_baskets
     n_y = int(baskets.item_counts[y])
     p_y = n_y / max(n, 1)
+    def over(floor: int, depth: int) -> bool:
+        nodes = estimate_nodes(cond_counts, n_y, floor, depth)
+        plan.estimated_nodes = nodes
+        return nodes > budget or estimate_rules(cond_counts, n_y, floor, depth) > rule_budget
+
     plan = SearchPlan(min_count, max_antecedent, int((cond_counts >= min_count).sum()),
                       estimate_nodes(cond_counts, n_y, min_count, max_antecedent))
-    if plan.estimated_nodes <= budget:
+    first_rules = estimate_rules(cond_counts, n_y, min_count, max_antecedent)
+    if not over(min_count, max_antecedent):
         return plan
     first = plan.estimated_nodes
     if sort_by == "leverage" and p_y < 1:
@@ -1082,27 +1138,25 @@ def plan_search(
                 floor = max(min_count, int(np.ceil(tau * n / (1 - p_y) - 1e-9)))
                 if floor > min_count:
                     plan.min_count = floor
-                    plan.estimated_nodes = estimate_nodes(cond_counts, n_y, floor, max_antecedent)
                     plan.items = int((cond_counts >= floor).sum())
                     plan.notes.append(
                         f"searched rules with at least {floor:,} co-purchases (min support "
                         f"floor {min_count:,}): no rule below that can be among the "
                         f"{keep_top:,} best by leverage"
                     )
-    while plan.estimated_nodes > budget and plan.max_antecedent > 2:
+    while plan.max_antecedent > 2 and over(plan.min_count, plan.max_antecedent):
         plan.max_antecedent -= 1
-        plan.estimated_nodes = estimate_nodes(cond_counts, n_y, plan.min_count, plan.max_antecedent)
         plan.notes.append(f"antecedents of at most {plan.max_antecedent} items")
     raised = plan.min_count
-    while plan.estimated_nodes > budget:
+    while over(raised, plan.max_antecedent):
         raised = max(raised + 1, int(raised * 1.25))
-        plan.estimated_nodes = estimate_nodes(cond_counts, n_y, raised, plan.max_antecedent)
     if raised > plan.min_count:
         plan.min_count = raised
         plan.notes.append(f"a floor of {raised:,} co-purchases per rule")
     plan.items = int((cond_counts >= plan.min_count).sum())
-    plan.notes.insert(0, f"narrowed to stay within {budget:,} counted itemsets (about "
-                         f"{first:,} estimated at the requested settings)")
+    plan.notes.insert(0, f"narrowed to stay within {budget:,} counted itemsets and "
+                         f"{rule_budget:,} rules (about {first:,} and {first_rules:,} estimated "
+                         "at the requested settings)")
     return plan
 
 
@@ -1121,6 +1175,7 @@ def target_rules(
     sort_by: str = "lift",
     budget: int | None = SEARCH_BUDGET,
     keep_top: int = KEEP_TOP,
+    rule_budget: int = RULE_BUDGET,
     notes: list[str] | None = None,
 ) -> pl.DataFrame:
     """Rules X -> ``target`` with 1..max_antecedent antecedent items and n(X+target) >= min count.
@@ -1149,7 +1204,7 @@ def target_rules(
     depth = int(max_antecedent)
     if budget is not None:
         plan = plan_search(baskets, y, cond_counts, others, min_count, depth, sort_by=sort_by,
-                           budget=budget, keep_top=keep_top)
+                           budget=budget, keep_top=keep_top, rule_budget=rule_budget)
         if plan.notes and notes is not None:
             notes.append("; ".join(plan.notes) + "; the correction counts the rules examined")
         min_count, depth = plan.min_count, plan.max_antecedent
@@ -1159,6 +1214,22 @@ def target_rules(
     found = _Found()
     _search(baskets, holding, cond_bits[keep], others[keep], cond_counts[keep], min_count,
             depth, found, pair_leaves=False)
+    if budget is not None and found.size() > rule_budget:
+        # the estimate assumed independence; real co-purchases cluster: keep the rule_budget
+        # itemsets bought together most often, and say so
+        counts = np.concatenate([c for _, _, c in found.groups])
+        floor = int(np.partition(counts, counts.size - rule_budget)[counts.size - rule_budget])
+        floor = max(floor + 1, min_count) if int((counts >= floor).sum()) > rule_budget else floor
+        before = counts.size
+        found.at_least(floor)
+        if notes is not None:
+            line = (f"kept the {found.size():,} of {before:,} candidate rules with at least "
+                    f"{floor:,} co-purchases (at most {rule_budget:,} rules)")
+            if notes:
+                notes[-1] = notes[-1].replace("; the correction counts", f"; {line}; the "
+                                              "correction counts")
+            else:
+                notes.append(f"narrowed: {line}; the correction counts the rules examined")
     ante, size, n_xy = found.matrix(baskets.n_items)
     # n(X): on all baskets, or as n(X+y) + n(X without y) when fewer baskets lack y than hold it
     if 2 * n_y <= n:
