@@ -1,7 +1,9 @@
 """The command line: parse, call one library function, render. Nothing else lives here.
 
 This module holds the command group, the shared options and the error handling; the commands
-live in one module per family (data, mining, lists, take-up).
+live in one module per family (data, catalog, mining, lists, take-up, campaigns). A command's
+module is imported only when that command runs (or shows its own help), so `reachlist --help`
+and `--version` start without the numeric stack: ``COMMANDS`` lists them in the order of the work.
 """
 
 from __future__ import annotations
@@ -10,15 +12,16 @@ import functools
 import os
 import sys
 from collections.abc import Callable
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import click
 from rich.console import Console
 from rich.text import Text
 
 from reachlist.errors import ReachlistError
-from reachlist.schema import Mapping
-from reachlist.warehouse import Warehouse
+
+if TYPE_CHECKING:
+    from reachlist.warehouse import Warehouse  # noqa: F401
 
 DEFAULT_WAREHOUSE = "garden.duckdb"
 
@@ -47,7 +50,44 @@ READ_ONLY_COMMANDS = frozenset({
 run at once and a read-only file works. ``build`` joins them when the log goes to --state."""
 
 
+COMMANDS: dict[str, tuple[str, str]] = {
+    # name: (module under reachlist.cli, one line for `reachlist --help`), in the order of the work
+    "sample": ("data", "Write the deterministic sample warehouse (DuckDB)."),
+    "check": ("data", "Check a warehouse against the contract: every problem, in one table."),
+    "copy": ("data", "Copy the contract tables into another warehouse (e.g. PostgreSQL)."),
+    "items": ("catalog", "Find targets and stand-ins by code, name, category or department."),
+    "rules": ("mining", "Rules toward a target (or the strongest overall), every measure."),
+    "overlap": ("lists", "Items planned for promotion together that already sell together."),
+    "sizes": ("lists", "Preview a list: rules, exclusions, holdout and expected buyers."),
+    "sql": ("lists", "The audience SQL exactly as it runs on this warehouse."),
+    "estimate": ("takeup", "Expected buyers of a list within the horizon, with an interval."),
+    "backtest": ("takeup", "Build the audiences at a past cutoff; predicted against observed."),
+    "build": ("lists", "Write the contact list and log the campaign."),
+    "brief": ("campaigns", "A one-page HTML brief of a built campaign, to forward."),
+    "sent": ("campaigns", "Record the day a built campaign is sent."),
+    "campaigns": ("campaigns", "The campaign log, newest first."),
+    "results": ("takeup", "Take-up in treatment and holdout after a send, with uplift."),
+    "demo": ("demo", "The main job end to end on the sample warehouse."),
+}
+
+
 class _Group(click.Group):
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return [*COMMANDS, *sorted(set(self.commands) - set(COMMANDS))]
+
+    def get_command(self, ctx: click.Context, cmd_name: str) -> click.Command | None:
+        if cmd_name not in self.commands and cmd_name in COMMANDS:
+            import importlib
+
+            importlib.import_module(f"reachlist.cli.{COMMANDS[cmd_name][0]}")
+        return self.commands.get(cmd_name)
+
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        """The command list from ``COMMANDS`` (no command module is imported for it)."""
+        rows = [(name, help_) for name, (_, help_) in COMMANDS.items()]
+        with formatter.section("Commands, in the order of the work"):
+            formatter.write_dl(rows)
+
     def invoke(self, ctx: click.Context) -> Any:
         try:
             return super().invoke(ctx)
@@ -83,6 +123,9 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     @functools.wraps(fn)
     def wrapper(*args: Any, warehouse: str, mapping: str | None, connect_timeout: int,
                 **kwargs: Any) -> Any:
+        from reachlist.schema import Mapping
+        from reachlist.warehouse import Warehouse
+
         m = Mapping.from_toml(mapping) if mapping else Mapping.identity()
         name = click.get_current_context().command.name
         read_only = name in READ_ONLY_COMMANDS or (name == "build" and bool(kwargs.get("state")))
@@ -106,8 +149,6 @@ def main(ctx: click.Context) -> None:
         ctx.default_map = {name: dict(values) for name in ctx.command.list_commands(ctx)}
 
 
-# Command modules register themselves on `main`; imported last to avoid a cycle.
-from reachlist.cli import campaigns, catalog, data, demo, lists, mining, takeup  # noqa: E402,F401
 
 if __name__ == "__main__":  # pragma: no cover
     main()
