@@ -32,6 +32,7 @@ import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from datetime import date, datetime, timedelta
+from typing import Any
 
 import numpy as np
 import polars as pl
@@ -548,6 +549,29 @@ class HoldoutPlanning:
     needed_note: str  # why ``needed`` is None, or ""
     alpha: float = 0.05
     power: float = 0.8
+
+    def as_dict(self) -> dict[str, Any]:
+        """The numbers, for JSON: the smallest detectable uplift (relative; null when none can
+        be detected) and the holdout a wanted uplift would need (null when none suffices)."""
+        d, n = self.detectable, self.needed
+
+        def finite(x: float) -> float | None:
+            return float(x) if math.isfinite(x) else None
+
+        return {
+            "list_size": self.list_size,
+            "share": self.share,
+            "baseline_rate": self.baseline_rate,
+            "alpha": self.alpha,
+            "power": self.power,
+            "detectable_relative_uplift": None if d is None else finite(d.relative),
+            "detectable_treated_rate": None if d is None else finite(d.treated_rate),
+            "held_out": None if d is None else int(round(d.n_holdout)),
+            "wanted_relative_uplift": self.wanted_uplift,
+            "share_needed": None if n is None else n.share,
+            "held_out_needed": None if n is None else n.n_holdout,
+            "not_possible": self.needed_note or None,
+        }
 
     def lines(self) -> list[str]:
         out = []

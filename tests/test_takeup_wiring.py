@@ -22,31 +22,36 @@ def run(*args: str):  # type: ignore[no-untyped-def]
 
 
 def confidence_never_called_take_up(text: str) -> None:
-    for line in text.splitlines():
-        if "co-purchase" in line.lower() and "take-up" in line:
-            assert "not take-up" in line or "not a take-up forecast" in line, line
+    """Sentence by sentence (prose wraps at the screen's width): a co-purchase rate is never
+    called take-up unless the sentence says it is not one."""
+    import re
+
+    for sentence in re.split(r"(?<=[.;])\s", " ".join(text.split())):
+        if "co-purchase" in sentence.lower() and "take-up" in sentence:
+            assert "not take-up" in sentence or "not a take-up forecast" in sentence, sentence
 
 
 def test_sizes_leads_with_expected_buyers_and_an_interval(sample: Path) -> None:
     result = run("sizes", MAT, "-w", str(sample), "--campaign", "p", "--horizon", "30")
     assert result.exit_code == 0, result.output
-    text = result.output
-    head = next(ln for ln in text.splitlines() if ln.startswith("Expected buyers within 30 days:"))
+    text = " ".join(result.output.split())  # prose wraps at the screen's width
+    start = text.index("Baseline buyers within 30 days (expected without the offer):")
+    head = text[start:text.index(".", text.index("backtests", start))]
     assert "interval" in head and "backtests" in head
     for expected in ("base rate outside the audience", "Breadth-matched rate",
                      "Added value over breadth", "Holdout:", "smallest uplift",
                      "Historical co-purchase rate", "b.lift"):
         assert expected in text, expected
     # the estimate comes before the co-purchase rate, which is labelled as that
-    assert text.index("Expected buyers within") < text.index("Historical co-purchase rate")
+    assert text.index("Baseline buyers within") < text.index("Historical co-purchase rate")
     confidence_never_called_take_up(text)
 
 
 def test_no_estimate_says_it_was_skipped(sample: Path) -> None:
     result = run("sizes", MAT, "-w", str(sample), "--no-estimate")
     assert result.exit_code == 0, result.output
-    assert "Expected buyers: not estimated (skipped with --no-estimate)" in result.output
-    assert "Expected buyers within" not in result.output
+    assert "Baseline buyers: not estimated (skipped with --no-estimate)" in result.output
+    assert "Baseline buyers within" not in result.output
     confidence_never_called_take_up(result.output)
 
 
@@ -55,7 +60,7 @@ def test_build_logs_the_estimate(sample: Path, tmp_path: Path) -> None:
     result = run("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "mats",
                  "--horizon", "21")
     assert result.exit_code == 0, result.output
-    assert "Expected buyers within 21 days:" in result.output
+    assert "Baseline buyers within 21 days" in result.output
     confidence_never_called_take_up(result.output)
     with Warehouse.open(sample, read_only=True) as wh:
         record = CampaignLog(wh).campaign("mats")

@@ -25,11 +25,25 @@ if TYPE_CHECKING:
 
 DEFAULT_WAREHOUSE = "garden.duckdb"
 
+PIPED_WIDTH = 100
+"""Columns when nothing says how wide the screen is (output to a file or a pipe, no terminal)."""
+
+
+def screen_width() -> int | None:
+    """COLUMNS when set; else the width of the terminal on any of stdout, stderr or stdin (so
+    `reachlist rules X | less` still fits the screen); else None (a file: PIPED_WIDTH)."""
+    if os.environ.get("COLUMNS", "").isdigit():
+        return int(os.environ["COLUMNS"])
+    for fd in (1, 2, 0):
+        try:
+            return os.get_terminal_size(fd).columns
+        except OSError:
+            continue
+    return None
+
+
 def _console(stderr: bool = False) -> Console:
-    # Piped output gets 100 columns (rich would pick 80): tables are designed for 100.
-    probe = Console(stderr=stderr)
-    width = None if probe.is_terminal or "COLUMNS" in os.environ else 100
-    return Console(stderr=stderr, highlight=False, width=width)
+    return Console(stderr=stderr, highlight=False, width=screen_width() or PIPED_WIDTH)
 
 
 out = _console()
@@ -138,9 +152,24 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 @click.group(cls=_Group)
 @click.version_option(package_name="reachlist")
+@click.option("--width", type=click.IntRange(40, 400), default=None, metavar="COLUMNS",
+              help="Lay screens out for this many columns [default: the terminal's, else 100].")
+@click.option("--ascii", "ascii_only", is_flag=True,
+              help="Plain ASCII, no colour: for logs and email.")
 @click.pass_context
-def main(ctx: click.Context) -> None:
+def main(ctx: click.Context, width: int | None, ascii_only: bool) -> None:
     """reachlist: from order history to targeted-offer customer lists."""
+    for console in (out, err):
+        console.width = width or screen_width() or PIPED_WIDTH
+        if ascii_only:
+            console.no_color = True
+            stream = sys.stderr if console is err else sys.stdout
+            try:  # a copy of the descriptor, written as ASCII: rich then draws ASCII boxes
+                fd = os.dup(stream.fileno())
+            except (OSError, ValueError, AttributeError):
+                continue  # not a real file (a test runner's buffer): colour off is all we can do
+            console.file = open(fd, "w", encoding="ascii", errors="replace",  # noqa: SIM115
+                                buffering=1)
     from reachlist.campaign_file import project_defaults_path, read_project_defaults
 
     path = project_defaults_path()

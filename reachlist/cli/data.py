@@ -25,18 +25,23 @@ def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
 
 @main.command()
 @warehouse_options
-def check(wh: Warehouse) -> None:
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
+def check(wh: Warehouse, as_json: bool) -> None:
     """Validate a warehouse against the contract and count its data quirks."""
     from reachlist.check import check_warehouse
     from reachlist.errors import ContractError
-    from reachlist.render.check import render_check
+    from reachlist.render.check import check_json, render_check
 
     report = check_warehouse(wh)
-    render_check(report, out)
+    if as_json:
+        click.echo(check_json(report))
+    else:
+        render_check(report, out)
     if not report.ok:
         n = len(report.errors)
         raise ContractError(
-            f"Expected a warehouse that matches the contract, found {n:,} error(s) listed above.",
+            f"Expected a warehouse that matches the contract, found {n:,} error(s) "
+            f"{'in the JSON' if as_json else 'listed above'}.",
             hint="apply the fix of each row (mapping lines go in the file passed with -m), then "
             "run check again",
         )

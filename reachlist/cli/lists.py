@@ -197,7 +197,8 @@ def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
 @estimate_options
 @click.option("--state", default=None, metavar="PATH",
               help="Local DuckDB file holding the campaign log (for a read-only warehouse).")
-def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
+def sizes(wh: Warehouse, target: str, state: str | None, as_json: bool, **opts: Any) -> None:
     """Preview the list for TARGET: reach per rule, exclusions, list and holdout sizes, and
     expected buyers within the horizon with an interval from past backtests."""
     from reachlist.campaigns import CampaignLog
@@ -208,7 +209,7 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
     # warehouse's own log, when it has one, is still read for the contact cap).
     log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else CampaignLog(wh)
     try:
-        with delayed_status(out, "Mining rules") as progress:
+        with delayed_status(err if as_json else out, "Mining rules") as progress:
             plan = plan_list(wh, _request(target, opts), progress=progress)
             progress("Sizing the audience" + ("" if opts["no_estimate"] else
                                               " and backtesting take-up"))
@@ -216,6 +217,11 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
     finally:
         if log is not None:
             log.close()
+    if as_json:
+        from reachlist.render.lists import outcome_json
+
+        click.echo(outcome_json(outcome))
+        return
     render_sizes(outcome, out)
 
 
@@ -235,8 +241,10 @@ def sizes(wh: Warehouse, target: str, state: str | None, **opts: Any) -> None:
               help="The offer's code (a coupon or promotion code), written on every row.")
 @click.option("--state", default=None, metavar="PATH",
               help="Keep the campaign log in this local DuckDB file (for a read-only warehouse).")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
 def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
-          with_contact: bool, offer_code: str | None, state: str | None, **opts: Any) -> None:
+          with_contact: bool, offer_code: str | None, state: str | None, as_json: bool,
+          **opts: Any) -> None:
     """Write the contact list for TARGET and record the campaign in the campaign log."""
     from reachlist.campaigns import CampaignLog
     from reachlist.export import check_destination
@@ -244,12 +252,18 @@ def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
     from reachlist.render.lists import render_built
 
     check_destination(out_path, force=force)
-    with delayed_status(out, "Mining rules") as progress, CampaignLog.open(wh, state) as log:
+    with delayed_status(err if as_json else out, "Mining rules") as progress, \
+            CampaignLog.open(wh, state) as log:
         request = dataclasses.replace(_request(target, opts, contact=with_contact),
                                       offer_code=offer_code)
         plan = plan_list(wh, request, progress=progress)
         progress("Building the list")
         built = build_list(wh, plan, out_path, log=log, force=force, replace=replace)
+    if as_json:
+        from reachlist.render.lists import outcome_json
+
+        click.echo(outcome_json(built.outcome, built))
+        return
     render_built(built, out)
 
 
@@ -266,8 +280,9 @@ def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
 @click.option("--alpha", default=0.05, show_default=True, type=click.FloatRange(0, 1,
               min_open=True, max_open=True), help="Significance level after correction.")
 @click.option("--all", "show_all", is_flag=True, help="Show every pair and triple tested.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
 def overlap(wh: Warehouse, items: tuple[str, ...], basket: str, since: str | None,
-            until: str | None, alpha: float, show_all: bool) -> None:
+            until: str | None, alpha: float, show_all: bool, as_json: bool) -> None:
     """Which of the ITEMS planned for promotion together already sell together."""
     from reachlist.overlap import promotion_overlap
     from reachlist.render.lists import render_overlap
@@ -275,4 +290,13 @@ def overlap(wh: Warehouse, items: tuple[str, ...], basket: str, since: str | Non
     with delayed_status(out, "Counting baskets"):
         report = promotion_overlap(wh, list(items), basket=basket, since=since, until=until,
                                    alpha=alpha)
+    if as_json:
+        import dataclasses
+        import json
+
+        data = {"schema_version": 1, **dataclasses.asdict(report)}
+        data["window"] = {"since": report.window.since.isoformat(),
+                          "until": report.window.until.isoformat()}
+        click.echo(json.dumps(data, indent=2, default=str))
+        return
     render_overlap(report, out, show_all=show_all)

@@ -61,7 +61,8 @@ def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state
     planning = holdout_planning(outcome.listed.height, plan.request.holdout, report.rate,
                                 wanted_uplift=uplift)
     if as_json:
-        click.echo(to_json({**report.as_dict(), "holdout": planning.lines()}))
+        click.echo(to_json({"schema_version": 2, **report.as_dict(),
+                            "holdout": planning.as_dict()}))
         return
     render_estimate(report, out)
     render_holdout_planning(planning, out)

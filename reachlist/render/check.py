@@ -80,3 +80,17 @@ def render_check(report: CheckReport, console: Console) -> None:
     for key, label, treatment in _QUIRKS:
         quirks.add_row(label, fmt_count(c.get(key)), treatment)
     console.print(quirks)
+
+
+def check_json(report: CheckReport) -> str:
+    """`check --json`: problems, conversions, tables and counts (dates as ISO text)."""
+    import dataclasses
+    import json
+
+    payload = {
+        "schema_version": 1,
+        "ok": report.ok,
+        **{k: v for k, v in dataclasses.asdict(report).items()},
+    }
+    return json.dumps(payload, indent=2, default=lambda v: v.isoformat()
+                      if hasattr(v, "isoformat") else str(v))

@@ -30,59 +30,64 @@ def render_plan_header(plan: Plan, console: Console) -> None:
     console.print(
         f"[bold]{escape(str(plan.target))}[/] · purpose {req.purpose} · campaign "
         f"{escape(plan.campaign_id)}",
-        soft_wrap=True,
+        soft_wrap=False,
     )
     console.print(
         f"Antecedents held in {rs.window} ({rs.level} items, rules from {rs.n_baskets:,} "
         f"{rs.basket} baskets); top {len(plan.rules)} rules by {req.rank_by}"
         + (" (picked by id)" if req.rule_ids else ""),
-        soft_wrap=True,
+        soft_wrap=False,
     )
     for note in plan.notes:
-        console.print(f"[yellow]Note:[/] {escape(note)}", soft_wrap=True)
+        console.print(f"[yellow]Note:[/] {escape(note)}", soft_wrap=False)
 
 
 def render_warnings(plan: Plan, console: Console, *, logged: bool = False) -> None:
     """Overrides and sensitive items: printed loudly by every list-producing command."""
     where = "written to the campaign log" if logged else "`build` writes it to the campaign log"
     for override in plan.overrides:
-        console.print(f"[bold red]Override:[/] {escape(override)}; {where}.", soft_wrap=True)
+        console.print(f"[bold red]Override:[/] {escape(override)}; {where}.", soft_wrap=False)
     if plan.sensitive:
         text = SENSITIVE_WARNING.format(items=", ".join(plan.sensitive))
-        console.print(f"[bold red]{escape(text)}[/]", soft_wrap=True)
+        console.print(f"[bold red]{escape(text)}[/]", soft_wrap=False)
 
 
 def render_caution(console: Console) -> None:
-    console.print(f"[dim]{escape(CAUTION)}[/]", soft_wrap=True)
+    console.print(f"[dim]{escape(CAUTION)}[/]", soft_wrap=False)
 
 
-def rules_table(outcome: ListOutcome) -> Table:
+def rules_table(outcome: ListOutcome, width: int | None = None) -> Table:
+    narrow = width is not None and width < 100  # rule ids and "above" move to --json
     t = Table(title="Rules, best first", title_justify="left", show_edge=False, pad_edge=False)
     t.add_column("#", justify="right")
-    t.add_column("rule", style="dim", overflow="fold", min_width=7)
+    if not narrow:
+        t.add_column("rule", style="dim", overflow="fold", min_width=7)
     t.add_column("antecedent", overflow="fold", min_width=12)
     t.add_column("co-purchase %", justify="right", no_wrap=True)
-    t.add_column("lift", justify="right")
-    t.add_column("b.lift", justify="right")
-    t.add_column("reach", justify="right")
-    t.add_column("kept", justify="right")
-    t.add_column("above", justify="right")
-    t.add_column("adds", justify="right")
+    t.add_column("lift", justify="right", no_wrap=True)
+    t.add_column("b.lift", justify="right", no_wrap=True)
+    t.add_column("reach", justify="right", no_wrap=True)
+    t.add_column("kept", justify="right", no_wrap=True)
+    if not narrow:
+        t.add_column("above", justify="right", no_wrap=True)
+    t.add_column("adds", justify="right", no_wrap=True)
     for rr in outcome.per_rule or []:
         r = rr.rule
         low, high = rr.interval
-        t.add_row(
-            str(r.rank),
-            escape(r.rule_id) + ("" if r.significant else " [yellow]ns[/]"),
+        cells = [
+            str(r.rank) + ("" if r.significant or not narrow else " [yellow]ns[/]"),
+            *([escape(r.rule_id) + ("" if r.significant else " [yellow]ns[/]")]
+              if not narrow else []),
             escape(" + ".join(r.antecedent)),
             f"{100 * r.score:.1f} ({100 * low:.1f}-{100 * high:.1f})",
             f"{r.lift:.2f}",
             "-" if r.breadth_lift is None else f"{r.breadth_lift:.2f}",
             fmt_count(rr.reached),
             fmt_count(rr.kept),
-            fmt_count(rr.above),
+            *([fmt_count(rr.above)] if not narrow else []),
             fmt_count(rr.adds),
-        )
+        ]
+        t.add_row(*cells)
     return t
 
 
@@ -112,7 +117,7 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
         f"[bold]List:[/] {outcome.listed.height:,} customers: {outcome.treatment.height:,} to "
         f"contact, {outcome.holdout.height:,} held out ({share:.0%} by hash of campaign and "
         "customer id; logged, not contacted).",
-        soft_wrap=True,
+        soft_wrap=False,
     )
     render_takeup(outcome, console)
     c = outcome.clearance
@@ -126,14 +131,14 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
                 f"[bold]Clearance:[/] stock {c.stock:,} ({c.stock_from}); the first "
                 f"{c.customers:,} of {c.available:,} customers, likeliest buyers first, are "
                 f"expected to take {c.expected_units:,.0f} units at {basis}.",
-                soft_wrap=True,
+                soft_wrap=False,
             )
         else:
             console.print(
                 f"[bold yellow]Clearance:[/] stock {c.stock:,} ({c.stock_from}); all "
                 f"{c.available:,} customers are expected to take only {c.expected_units:,.0f} "
                 f"units ({c.expected_units / c.stock:.0%} of the stock) at {basis}.",
-                soft_wrap=True,
+                soft_wrap=False,
             )
 
 
@@ -144,26 +149,27 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
     if r is not None:
         e = r.expected
         console.print(
-            f"[bold]Expected buyers within {r.horizon_days} days:[/] {e.expected:,.0f} "
+            f"[bold]Baseline buyers within {r.horizon_days} days[/] (expected without the offer): "
+            f"{e.expected:,.0f} "
             f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) of {r.audience:,} contacted "
             f"customers ({100 * r.rate:.2f}%), from {e.n_backtests} backtests "
             f"({escape(e.method)}).",
-            soft_wrap=True,
+            soft_wrap=False,
         )
         for line in estimate_lines(r)[1:]:
-            console.print(line, soft_wrap=True)
+            console.print(line, soft_wrap=False)
         if outcome.plan.stand_in is not None:
             console.print(
                 f"[yellow]Note:[/] expected buyers are those of the stand-in "
                 f"{escape(str(outcome.plan.stand_in))}, learnt from its past buyers.",
-                soft_wrap=True,
+                soft_wrap=False,
             )
     else:
         why = outcome.estimate_note or "no estimate"
-        tail = ("; run without --no-estimate for expected buyers with an interval from past "
+        tail = ("; run without --no-estimate for baseline buyers with an interval from past "
                 "backtests" if why == SKIPPED else "")
-        console.print(f"[yellow]Expected buyers: not estimated[/] ({escape(why)}){tail}.",
-                      soft_wrap=True)
+        console.print(f"[yellow]Baseline buyers: not estimated[/] ({escape(why)}){tail}.",
+                      soft_wrap=False)
     if outcome.holdout_plan is not None:
         render_holdout_planning(outcome.holdout_plan, console)
     rate = outcome.co_purchase_rate()
@@ -173,20 +179,20 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
             f"[dim]Historical co-purchase rate of the contacted customers' rules: {_pct(est)} "
             f"(rules' 95% intervals {_pct(low)}-{_pct(high)}). This is how often holders of the "
             "antecedent also held the target in the mining window, not a take-up forecast.[/]",
-            soft_wrap=True,
+            soft_wrap=False,
         )
 
 
 def render_sizes(outcome: ListOutcome, console: Console) -> None:
     render_plan_header(outcome.plan, console)
     render_warnings(outcome.plan, console)
-    console.print(rules_table(outcome))
+    console.print(rules_table(outcome, width=console.width))
     console.print(
         "[dim]co-purchase %: share of antecedent holders who also held the target (95% "
         "interval), not take-up; b.lift: added value over shopping breadth; reach: customers "
         "holding the antecedent; kept: left after the exclusions; above: "
         "kept customers a rule above also reaches; adds: what the rule adds to the list.[/]",
-        soft_wrap=True,
+        soft_wrap=False,
     )
     console.print(waterfall_table(outcome))
     render_outcome_totals(outcome, console)
@@ -200,19 +206,19 @@ def render_built(built: Built, console: Console) -> None:
     console.print(waterfall_table(o))
     render_outcome_totals(o, console)
     for note in built.notes:
-        console.print(f"Note: {escape(note)}", soft_wrap=True)
+        console.print(f"Note: {escape(note)}", soft_wrap=False)
     console.print(
         f"[green]Wrote {built.rows:,} customers to {escape(str(built.path))}[/]; campaign "
         f"{escape(o.plan.campaign_id)} with {o.holdout.height:,} held-out customers logged in "
         f"{escape(built.log_where)}.",
-        soft_wrap=True,
+        soft_wrap=False,
     )
     if built.also_written:
         holdout, *sidecar = built.also_written
         told = f"Held-out customers (for the platform's suppression): {escape(str(holdout))}"
         if sidecar:
             told += f"; provenance: {escape(str(sidecar[0]))}"
-        console.print(told + ".", soft_wrap=True)
+        console.print(told + ".", soft_wrap=False)
     render_caution(console)
 
 
@@ -232,7 +238,7 @@ def render_overlap(report: OverlapReport, console: Console, *, show_all: bool = 
     console.print(
         f"[bold]Promotion overlap[/] of {len(report.items)} {report.level} items: "
         f"{report.n_baskets:,} {report.basket} baskets in {report.window}",
-        soft_wrap=True,
+        soft_wrap=False,
     )
     t = Table(show_edge=False, pad_edge=False)
     t.add_column("items", overflow="fold")
@@ -261,10 +267,69 @@ def render_overlap(report: OverlapReport, console: Console, *, show_all: bool = 
         f"{report.correction}-corrected over all {len(report.sets)} sets, adjusted p < "
         f"{report.alpha}, lift > 1)" + (f"; {hidden} others hidden (--all shows them)." if hidden
                                          else "."),
-        soft_wrap=True,
+        soft_wrap=False,
     )
     if report.overlapping:
-        console.print(f"[yellow]Advice:[/] {escape(ADVICE)}", soft_wrap=True)
+        console.print(f"[yellow]Advice:[/] {escape(ADVICE)}", soft_wrap=False)
     else:
         console.print("No set stands out: discounting these items together costs no margin on "
-                      "purchases that were already happening together.", soft_wrap=True)
+                      "purchases that were already happening together.", soft_wrap=False)
+
+
+OUTCOME_SCHEMA = 1
+
+
+def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
+    """`sizes --json` / `build --json`: the preview as numbers (and, after a build, its files)."""
+    import dataclasses
+    import json
+
+    plan = outcome.plan
+    rules = []
+    reach = {r.rule.rule_id: r for r in outcome.per_rule or []}
+    for r in plan.rules:
+        row: dict[str, object] = {
+            "rank": r.rank, "rule_id": r.rule_id, "antecedent": list(r.antecedent),
+            "co_purchase_rate": r.confidence, "lift": r.lift, "breadth_lift": r.breadth_lift,
+            "significant": r.significant,
+        }
+        if r.rule_id in reach:
+            rr = reach[r.rule_id]
+            row.update(reached=rr.reached, kept=rr.kept, above=rr.above, adds=rr.adds,
+                       co_purchase_interval=list(rr.interval))
+        rules.append(row)
+    payload: dict[str, object] = {
+        "schema_version": OUTCOME_SCHEMA,
+        "campaign_id": plan.campaign_id,
+        "target": str(plan.target),
+        "stand_in": None if plan.stand_in is None else str(plan.stand_in),
+        "purpose": plan.request.purpose,
+        "as_of": plan.now.isoformat(),
+        "send_date": None if plan.send_at is None else plan.send_at.date().isoformat(),
+        "window": {"since": plan.spec.lookback.since.isoformat(),
+                   "until": plan.spec.lookback.until.isoformat()},
+        "level": plan.ruleset.level,
+        "rules": rules,
+        "reached": outcome.reached,
+        "waterfall": [
+            {"step": s.key, "label": s.label, "in_use": s.in_use, "removed": s.removed,
+             "left": s.remaining, "note": s.note or None}
+            for s in outcome.waterfall
+        ],
+        "listed": outcome.listed.height,
+        "treatment": outcome.treatment.height,
+        "holdout": outcome.holdout.height,
+        "baseline_buyers": None if outcome.takeup is None else outcome.takeup.as_dict(),
+        "estimate_note": outcome.estimate_note,
+        "holdout_power": None if outcome.holdout_plan is None else
+        outcome.holdout_plan.as_dict(),
+        "clearance": None if outcome.clearance is None else dataclasses.asdict(outcome.clearance),
+        "notes": list(plan.notes),
+        "overrides": list(plan.overrides),
+    }
+    if built is not None:
+        payload["files"] = {"list": str(built.path),
+                            "also": [str(p) for p in built.also_written]}
+        payload["log"] = built.log_where
+        payload["notes"] = [*plan.notes, *built.notes]
+    return json.dumps(payload, indent=2, default=str)

@@ -23,8 +23,16 @@ def _p(x: float) -> str:
     return "<1e-99" if x < 1e-99 else (f"{x:.1e}" if x < 0.001 else f"{x:.3f}")
 
 
-def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) -> Table:
+NARROW = 100
+"""Below this many columns the rules table drops n(X), supp and p adj (all stay in --json and
+--csv) so the antecedent keeps its room."""
+
+
+def rules_table(
+    frame: pl.DataFrame, title: str, *, limit: int | None = None, width: int | None = None
+) -> Table:
     rows = frame if limit is None else frame.head(limit)
+    narrow = width is not None and width < NARROW
     show_consequent = frame["consequent"].n_unique() > 1
     t = Table(title=title, title_justify="left", show_edge=False, pad_edge=False, expand=True)
     t.add_column("id", style="dim", no_wrap=True)
@@ -42,8 +50,10 @@ def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) ->
     measures = ("n(X)", "n(X+y)", "conf", "lift", "p adj", "sig") if show_consequent else (
         "n(X)", "n(X+y)", "supp", "conf", "lift", "b.lift" if breadth else "conv", "p adj",
         "sig")
+    dropped = {"n(X)", "supp", "p adj"} if narrow else set()
     for name in measures:
-        t.add_column(name, justify="right", no_wrap=True)
+        if name not in dropped:
+            t.add_column(name, justify="right", no_wrap=True)
     for r in rows.iter_rows(named=True):
         cells = [r["rule_id"], " + ".join(r["antecedent"])]
         if show_consequent:
@@ -60,6 +70,10 @@ def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) ->
             _p(r["p_adjusted"]),
             "[bold green]*[/]" if r["significant"] else "[yellow]ns[/]",
         ]
+        if narrow:
+            names = ["id", "antecedent", *(["-> consequent"] if show_consequent else []),
+                     *measures]
+            cells = [c for c, n in zip(cells, names, strict=True) if n not in dropped]
         t.add_row(*cells)
     return t
 
@@ -67,7 +81,7 @@ def rules_table(frame: pl.DataFrame, title: str, *, limit: int | None = None) ->
 def render_rules(
     frame: pl.DataFrame, console: Console, *, title: str, footer: list[str], limit: int
 ) -> None:
-    console.print(rules_table(frame, title, limit=limit))
+    console.print(rules_table(frame, title, limit=limit, width=console.width))
     shown = min(limit, frame.height)
     console.print(f"[dim]{shown} of {frame.height:,} rules shown (--top to change).[/]")
     for line in footer:

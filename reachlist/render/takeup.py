@@ -46,7 +46,8 @@ def estimate_lines(r: TakeUpReport) -> list[str]:
     av = r.added_value
     lines = [
         (
-            f"[bold]Expected take-up:[/] {e.expected:,.0f} of {r.audience:,} customers buy "
+            f"[bold]Baseline take-up (without the offer):[/] {e.expected:,.0f} of {r.audience:,} "
+            "customers buy "
             f"{escape(str(r.target))} within {r.horizon_days} days ({_pct(r.rate)}); "
             f"{e.level:.0%} interval {e.low:,.0f}-{e.high:,.0f}, from the spread of "
             f"{e.n_backtests} past backtests ({escape(e.method)})."
@@ -73,15 +74,15 @@ def estimate_lines(r: TakeUpReport) -> list[str]:
 
 def render_estimate(r: TakeUpReport, console: Console) -> None:
     for line in estimate_lines(r):
-        console.print(line, soft_wrap=True)
+        console.print(line, soft_wrap=False)
     if r.already_hold:
         console.print(f"[dim]{r.already_hold:,} given customers already hold the target and "
-                      "are not counted.[/]", soft_wrap=True)
+                      "are not counted.[/]", soft_wrap=False)
 
 
 def render_holdout_planning(p: HoldoutPlanning, console: Console) -> None:
     for line in p.lines():
-        console.print(f"[bold]Holdout:[/] {escape(line)}", soft_wrap=True)
+        console.print(f"[bold]Holdout:[/] {escape(line)}", soft_wrap=False)
 
 
 def backtest_table(bt: Backtest) -> Table:
@@ -124,7 +125,7 @@ def render_backtest(bt: Backtest, console: Console, *, chart: bool = True) -> No
         "breadth: breadth-matched rate; base: rate outside the rule's audience; xbreadth: "
         "added value over breadth; ! = outside the interval. Rules mined in "
         f"{bt.window}; nothing after the cutoff was read except to observe buyers.",
-        soft_wrap=True, style="dim",
+        soft_wrap=False, style="dim",
     )
     if bt.gains.height:
         console.print(gains_rich_table(bt.gains))
@@ -147,14 +148,14 @@ def render_results(r: CampaignResults, console: Console) -> None:
     console.print(t)
     if not r.complete:
         console.print("[yellow]The horizon has not ended for every contact: later orders may "
-                      "still add buyers.[/]", soft_wrap=True)
+                      "still add buyers.[/]", soft_wrap=False)
     if r.difference is not None and r.ratio is not None:
         d, q = r.difference, r.ratio
         console.print(
             f"Difference {_pct(d.estimate)} points (95% CI {_pct(d.low)} to {_pct(d.high)}); "
             f"relative uplift x{q.estimate:.2f} (95% CI x{q.low:.2f} to "
             f"{'x' + format(q.high, '.2f') if math.isfinite(q.high) else 'unbounded'}).",
-            soft_wrap=True,
+            soft_wrap=False,
         )
     if r.predicted is not None:
         p = r.predicted.expected
@@ -164,11 +165,11 @@ def render_results(r: CampaignResults, console: Console) -> None:
             f" treated, and {r.holdout.buyers:,} of {r.holdout.customers:,} held out "
             f"(scaled to the treatment group: "
             f"{r.holdout.rate.estimate * r.treatment.customers:,.0f}).",
-            soft_wrap=True,
+            soft_wrap=False,
         )
     if r.prediction_note:
-        console.print(f"[dim]{escape(r.prediction_note)}[/]", soft_wrap=True)
-    console.print(f"[bold]{escape(r.sentence())}[/]", soft_wrap=True)
+        console.print(f"[dim]{escape(r.prediction_note)}[/]", soft_wrap=False)
+    console.print(f"[bold]{escape(r.sentence())}[/]", soft_wrap=False)
 
 
 # -- the gains chart ----------------------------------------------------------------------------
