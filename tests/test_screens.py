@@ -71,3 +71,21 @@ def test_build_json_names_its_files(sample: Path, tmp_path: Path) -> None:
     assert built["files"]["list"] == str(out)
     assert built["files"]["also"] == [str(tmp_path / "m.holdout.csv"), str(out) + ".json"]
     assert built["baseline_buyers"] is None and built["estimate_note"]
+
+
+def test_help_is_in_the_order_of_the_work_with_an_example_each() -> None:
+    import click
+
+    from reachlist.cli import COMMANDS
+
+    top = run("--help").output
+    names = list(COMMANDS)
+    assert [top.index(f"  {n} ") for n in names] == sorted(top.index(f"  {n} ") for n in names)
+    assert names.index("rules") < names.index("sizes") < names.index("build")
+    ctx = click.Context(main)
+    for name in names:
+        cmd = main.get_command(ctx, name)
+        assert cmd is not None and "Example: reachlist " in (cmd.help or ""), name
+        unhelped = [p.opts[0] for p in cmd.params
+                    if isinstance(p, click.Option) and not p.help and p.name != "help"]
+        assert unhelped == [], (name, unhelped)

@@ -12,10 +12,14 @@ from reachlist.warehouse import Warehouse
 @click.option("--out", "out_path", required=True, help="DuckDB file to write.")
 @click.option("--customers", default=20_000, show_default=True, type=click.IntRange(500, 10_000_000),
               help="Customers to generate (500 to 10,000,000).")
-@click.option("--seed", default=7, show_default=True, type=click.IntRange(0, 2**32 - 1))
+@click.option("--seed", default=7, show_default=True, type=click.IntRange(0, 2**32 - 1),
+              help="Random seed: the same seed and size always give the same warehouse.")
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
-    """Write the fictional garden-and-home retailer's warehouse (deterministic)."""
+    """Write the fictional garden-and-home retailer's warehouse (deterministic).
+
+    Example: reachlist sample --out garden.duckdb --customers 20000
+    """
     from reachlist.render.sample import sample_summary
     from reachlist.sample import build_sample
 
@@ -27,7 +31,10 @@ def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
 @warehouse_options
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
 def check(wh: Warehouse, as_json: bool) -> None:
-    """Validate a warehouse against the contract and count its data quirks."""
+    """Validate a warehouse against the contract and count its data quirks.
+
+    Example: reachlist check -w postgresql+psycopg://me@db/shop -m shop-mapping.toml
+    """
     from reachlist.check import check_warehouse
     from reachlist.errors import ContractError
     from reachlist.render.check import check_json, render_check
@@ -53,7 +60,10 @@ def check(wh: Warehouse, as_json: bool) -> None:
 @click.option("--schema", default=None, help="Create the tables in this schema.")
 @click.option("--replace", is_flag=True, help="Drop and reload tables that already exist.")
 def copy_cmd(source: str, dest: str, schema: str | None, replace: bool) -> None:
-    """Copy the contract tables of SOURCE (a DuckDB file) into another warehouse."""
+    """Copy the contract tables of SOURCE (a DuckDB file) into another warehouse.
+
+    Example: reachlist copy garden.duckdb --to postgresql+psycopg://me@db/test --schema garden
+    """
     from reachlist.transfer import copy_warehouse
 
     copied = copy_warehouse(source, dest, schema=schema, replace=replace)

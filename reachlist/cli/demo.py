@@ -24,7 +24,10 @@ def _step(title: str, args: list[str]) -> None:
               help="Folder for the sample warehouse and the list.")
 def demo(directory: str) -> None:
     """Build the sample warehouse (if absent) and run the main job on it: rules toward a target,
-    a preview of the list, then the list itself with its campaign log entry."""
+    a preview of the list, then the list itself with its campaign log entry.
+
+    Example: reachlist demo --dir reachlist-demo
+    """
     from reachlist.render.sample import sample_summary
     from reachlist.sample import build_sample
 

@@ -166,7 +166,10 @@ _MINING_KEYS = (
 @click.option("--with-contact", is_flag=True, help="Include the email column.")
 def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
             **opts: Any) -> None:
-    """Print the audience SQL for TARGET exactly as it runs on this warehouse."""
+    """Print the audience SQL for TARGET exactly as it runs on this warehouse.
+
+    Example: reachlist sql SG04-104 --inline > audience.sql
+    """
     from reachlist.lists import plan_list
     from reachlist.render.lists import (
         render_caution,
@@ -200,7 +203,10 @@ def sql_cmd(wh: Warehouse, target: str, inline_values: bool, with_contact: bool,
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
 def sizes(wh: Warehouse, target: str, state: str | None, as_json: bool, **opts: Any) -> None:
     """Preview the list for TARGET: reach per rule, exclusions, list and holdout sizes, and
-    expected buyers within the horizon with an interval from past backtests."""
+    baseline buyers within the horizon with an interval from past backtests.
+
+    Example: reachlist sizes SG04-104 --purpose introduce --region North
+    """
     from reachlist.campaigns import CampaignLog
     from reachlist.lists import plan_list, preview_list
     from reachlist.render.lists import render_sizes
@@ -245,7 +251,10 @@ def sizes(wh: Warehouse, target: str, state: str | None, as_json: bool, **opts: 
 def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
           with_contact: bool, offer_code: str | None, state: str | None, as_json: bool,
           **opts: Any) -> None:
-    """Write the contact list for TARGET and record the campaign in the campaign log."""
+    """Write the contact list for TARGET and record the campaign in the campaign log.
+
+    Example: reachlist build SG04-104 --out winter-mats.csv --campaign winter-mats
+    """
     from reachlist.campaigns import CampaignLog
     from reachlist.export import check_destination
     from reachlist.lists import build_list, plan_list
@@ -283,7 +292,10 @@ def build(wh: Warehouse, target: str, out_path: str, force: bool, replace: bool,
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (numbers as numbers).")
 def overlap(wh: Warehouse, items: tuple[str, ...], basket: str, since: str | None,
             until: str | None, alpha: float, show_all: bool, as_json: bool) -> None:
-    """Which of the ITEMS planned for promotion together already sell together."""
+    """Which of the ITEMS planned for promotion together already sell together.
+
+    Example: reachlist overlap SG04-101 PC06-101 OL26-101
+    """
     from reachlist.overlap import promotion_overlap
     from reachlist.render.lists import render_overlap
 

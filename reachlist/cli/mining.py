@@ -48,9 +48,11 @@ def mining_options(fn):  # type: ignore[no-untyped-def]
                 help="Minimum share of baskets holding X+y.",
             ),
             click.option(
-                "--min-confidence", default=0.0, show_default=True, type=click.FloatRange(0, 1)
+                "--min-confidence", default=0.0, show_default=True, type=click.FloatRange(0, 1),
+                help="Keep rules whose confidence (co-purchase rate) is at least this.",
             ),
-            click.option("--min-lift", default=1.0, show_default=True, type=click.FloatRange(0)),
+            click.option("--min-lift", default=1.0, show_default=True, type=click.FloatRange(0),
+                         help="Keep rules whose lift is at least this."),
             click.option(
                 "--max-antecedent",
                 default=3,
@@ -121,6 +123,8 @@ def rules(
     """Rules toward TARGET (a SKU, category:NAME or department:NAME) with every measure.
 
     Without TARGET: the strongest rules toward any consequent (exploratory).
+
+    Example: reachlist rules SG04-104 --top 10
     """
     from rich.markup import escape
 

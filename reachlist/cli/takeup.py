@@ -38,7 +38,10 @@ _json = click.option("--json", "as_json", is_flag=True, help="Print JSON instead
 @_json
 def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state: str | None,
              as_json: bool, **opts: Any) -> None:
-    """Expected take-up of the list for TARGET, calibrated on the warehouse's past."""
+    """Baseline take-up of the list for TARGET, calibrated on the warehouse's past.
+
+    Example: reachlist estimate SG04-104 --horizon 30 --cutoffs 6
+    """
     from reachlist.campaigns import CampaignLog
     from reachlist.estimate import estimate_takeup, holdout_planning
     from reachlist.lists import plan_list, preview_list
@@ -79,13 +82,17 @@ def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state
               help="Item level of the antecedents.")
 @click.option("--top", default=5, show_default=True, type=click.IntRange(1, 100),
               help="Significant rules to backtest.")
-@click.option("--rank-by", default="leverage", show_default=True, type=click.Choice(RANK_MEASURES))
+@click.option("--rank-by", default="leverage", show_default=True, type=click.Choice(RANK_MEASURES),
+              help="Measure that ranks the rules.")
 @click.option("--chart", "chart_path", default=None, metavar="FILE.svg",
               help="Also write the gains chart to this SVG file.")
 @_json
 def backtest_cmd(wh: Warehouse, target: str, cutoff: str, horizon_days: int, level: str,
                  top: int, rank_by: str, chart_path: str | None, as_json: bool) -> None:
-    """Backtest TARGET: audiences and estimates as of --cutoff against who bought after it."""
+    """Backtest TARGET: audiences and estimates as of --cutoff against who bought after it.
+
+    Example: reachlist backtest SG04-104 --cutoff 2026-06-01 --chart gains.svg
+    """
     from reachlist.backtest import backtest
     from reachlist.render.takeup import render_backtest, to_json, write_chart
 
@@ -113,7 +120,10 @@ def backtest_cmd(wh: Warehouse, target: str, cutoff: str, horizon_days: int, lev
 def results(wh: Warehouse, campaign_id: str, horizon_days: int, state: str | None,
             no_estimate: bool, as_json: bool) -> None:
     """Take-up of CAMPAIGN_ID in treatment and holdout, uplift, and whether the holdout could
-    tell."""
+    tell.
+
+    Example: reachlist results winter-mats --horizon 30
+    """
     from reachlist.campaigns import CampaignLog
     from reachlist.render.takeup import render_results, to_json
     from reachlist.results import campaign_results
