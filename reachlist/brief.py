@@ -67,7 +67,7 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
     offer = item_names(wh, {target.name}, target.level)[target.name]
     rules = []
     for r in record["rules"]:
-        listed = per_rule.get(r["rule_id"], {"treatment": 0, "holdout": 0})
+        groups = per_rule.get(r["rule_id"], {"treatment": 0, "holdout": 0})
         rules.append({
             "rank": r["rank"],
             "rule_id": r["rule_id"],
@@ -77,8 +77,8 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
             "lift": r["lift"],
             "breadth_lift": r.get("breadth_lift"),
             "significant": bool(r["significant"]),
-            "treatment": listed["treatment"],
-            "holdout": listed["holdout"],
+            "treatment": groups["treatment"],
+            "holdout": groups["holdout"],
         })
     treatment, holdout = int(counts["treatment"]), int(counts["holdout"])
     estimate = counts.get("estimate") or {}

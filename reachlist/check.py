@@ -112,9 +112,9 @@ def contract_problems(
                 casts.append(f"{name}.{col.name}: {pc.data_type} read as {to}")
     typed = wh.typed_mapping
     for name in tables:
-        for col, to in typed.table(name).casts.items():
-            line = f"{name}.{col}: read as {to} (ids compared across tables)"
-            if not any(c.startswith(f"{name}.{col}:") for c in casts):
+        for column, to in typed.table(name).casts.items():
+            line = f"{name}.{column}: read as {to} (ids compared across tables)"
+            if not any(c.startswith(f"{name}.{column}:") for c in casts):
                 casts.append(line)
     return problems, casts
 

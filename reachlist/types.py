@@ -15,6 +15,7 @@ True
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Final
 
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Kind
@@ -90,7 +91,7 @@ def cast_for(kind: Kind, data_type: str, text_type: str) -> str | None | _Incomp
 
 
 def plan_casts(
-    mapping_tables: dict[str, object],
+    mapping_tables: Mapping[str, object],
     physical: dict[str, dict[str, str] | None],
     text_type: str,
 ) -> tuple[dict[str, dict[str, str]], bool]:
