@@ -129,7 +129,7 @@ def choose_rules(
         [rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True
     )
     if not rule_ids:
-        frame = frame.head(top)
+        frame = frame.filter(~below_breadth(frame)).head(top)
     return tuple(
         ChosenRule(
             rank=i + 1,
@@ -147,6 +147,34 @@ def choose_rules(
         )
         for i, row in enumerate(frame.iter_rows(named=True))
     )
+
+
+def below_breadth(frame: pl.DataFrame) -> pl.Expr | pl.Series:
+    """Rules whose breadth-matched lift interval lies wholly below 1: their antecedent's holders
+    buy the target less often than customers who shop as broadly. Not chosen by default."""
+    if "breadth_lift_high" not in frame.columns:
+        return pl.Series([False] * frame.height, dtype=pl.Boolean)
+    return frame["breadth_lift_high"].fill_nan(None).fill_null(2.0) < 1.0
+
+
+def skipped_below_breadth(rules: RuleSet, *, top: int, rank_by: str) -> list[str]:
+    """Ids of significant rules that would have been chosen but for a breadth-matched lift
+    interval below 1 (for the note that says so)."""
+    frame = rules.frame.filter(pl.col("significant"))
+    if rank_by not in frame.columns or frame.height == 0:
+        return []
+    frame = frame.sort([rank_by, "n_both", "rule_id"], descending=[True, True, False],
+                       nulls_last=True)
+    weak = below_breadth(frame).to_list()
+    out, kept = [], 0
+    for rule_id, is_weak in zip(frame["rule_id"].to_list(), weak, strict=True):
+        if kept >= top:
+            break
+        if is_weak:
+            out.append(str(rule_id))
+        else:
+            kept += 1
+    return out
 
 
 @dataclass(frozen=True)

@@ -33,6 +33,7 @@ from reachlist.audience import (
     choose_rules,
     reach_query,
     rule_rate_interval,
+    skipped_below_breadth,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
 from reachlist.delivery import (
@@ -439,6 +440,14 @@ def plan_list(
     chosen = choose_rules(
         rules, top=request.top, rank_by=request.rank_by, rule_ids=request.rule_ids
     )
+    if not request.rule_ids:
+        below = skipped_below_breadth(rules, top=request.top, rank_by=request.rank_by)
+        if below:
+            notes.append(
+                f"Not chosen: rule(s) {', '.join(below)}, whose breadth-matched lift lies below 1 "
+                "(95% interval): their holders buy the target less often than customers who "
+                "shop as broadly. Pick one with --rule ID to use it anyway."
+            )
     weak = [r.rule_id for r in chosen if not r.significant]
     if weak:
         notes.append(

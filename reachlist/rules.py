@@ -39,6 +39,8 @@ from reachlist.warehouse import Warehouse
 
 DEFAULT_MIN_SUPPORT = 0.002
 BREADTH_LIFT = "breadth_lift"
+BREADTH_LIFT_HIGH = "breadth_lift_high"
+"""Column of the upper end of the breadth-matched lift's 95% interval."""
 BREADTH_ROWS = 500
 """Rules (best first) whose breadth-matched lift is computed; beyond them only significant ones."""
 """Column of a rule's added value over shopping breadth (see :func:`breadth_lifts`)."""
@@ -173,6 +175,7 @@ def mine_rules(
             hint="relax the threshold named, or widen the window",
         )
     values: list[float | None] = [None] * frame.height
+    highs: list[float | None] = [None] * frame.height
     if kind == "customer":
         # breadth-matched lift for the rules that can be shown or used: the best BREADTH_ROWS
         # by the ranking measure and the significant ones among the next (others stay empty)
@@ -182,10 +185,13 @@ def mine_rules(
         say(f"Matching {rows.size:,} rules on shopping breadth")
         breadth = basket_breadth(wh, baskets, tgt, lvl, window)
         antecedents = frame["antecedent"].to_list()
-        lifts = breadth_lifts(baskets, breadth, label, [antecedents[i] for i in rows])
-        for i, v in zip(rows.tolist(), lifts, strict=True):
-            values[i] = v
-    frame = frame.with_columns(pl.Series(BREADTH_LIFT, values, dtype=pl.Float64))
+        lifts = breadth_lift_intervals(baskets, breadth, label, [antecedents[i] for i in rows])
+        for i, (v, high) in zip(rows.tolist(), lifts, strict=True):
+            values[i], highs[i] = v, high
+    frame = frame.with_columns(
+        pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
+        pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
+    )
     if sort_by == BREADTH_LIFT:
         frame = sort_by_breadth_lift(frame)
     return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame, note)
@@ -284,6 +290,25 @@ def breadth_tables(
                 [np.stack([a, n1 - a], axis=1), np.stack([c, total - n1 - c], axis=1)], axis=1
             ).astype(float)
         )
+    return out
+
+
+def breadth_lift_intervals(
+    baskets: mining.Baskets,
+    breadth: np.ndarray,
+    target: str,
+    antecedents: list[list[str]],
+) -> list[tuple[float, float]]:
+    """Each rule's breadth-matched lift and the upper end of its 95% interval (NaN where it
+    cannot be measured): a rule whose interval lies below 1 is one whose holders buy the target
+    less often than customers who shop as broadly."""
+    out = []
+    for tables in breadth_tables(baskets, breadth, target, antecedents):
+        try:
+            r = mantel_haenszel_risk_ratio(tables)
+            out.append((r.estimate, r.high))
+        except ReachlistError:
+            out.append((math.nan, math.nan))
     return out
 
 

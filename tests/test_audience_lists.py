@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import shutil
@@ -350,3 +351,24 @@ def test_the_email_channel_needs_an_address(world: Path, tmp_path: Path) -> None
     assert step.in_use and step.removed == sum(1 for v in excluded.values() if v == "no_address")
     assert not {s.key: s for s in plain.waterfall}["no_address"].in_use
     assert asked.treatment["email"].str.contains("@").all()
+
+
+def test_a_rule_below_breadth_is_not_chosen_by_default(world: Path) -> None:
+    """A rule whose breadth-matched lift interval lies below 1 is skipped (with a note) unless
+    picked by id; the reference: the hand-built ruleset's own columns."""
+    from reachlist.audience import choose_rules
+
+    rules = ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW)
+    frame = rules.frame.with_columns(
+        pl.Series("breadth_lift", [0.7, 1.4, 1.2]),
+        pl.Series("breadth_lift_high", [0.9, 1.8, 1.5]),  # R1's interval lies below 1
+    )
+    rules = dataclasses.replace(rules, frame=frame)
+    chosen = [r.rule_id for r in choose_rules(rules, top=5, rank_by="lift")]
+    assert "R1" not in chosen and chosen == ["R2", "R3"]
+    picked = choose_rules(rules, top=5, rank_by="lift", rule_ids=("R1",))
+    assert [r.rule_id for r in picked] == ["R1"]
+    with Warehouse.open(world) as wh:
+        plan = plan_list(wh, request(rank_by="lift"), rules=rules, now=NOW)
+    assert any("Not chosen: rule(s) R1" in n for n in plan.notes)
+    assert "R1" not in {r.rule_id for r in plan.rules}
