@@ -110,7 +110,7 @@ CAMPAIGN_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "adult_age": ("adult_age", _INT),
         "merge_duplicates": ("merge_duplicates", _FLAG),
     },
-    "holdout": {"share": ("holdout", _NUMBER)},
+    "holdout": {"share": ("holdout", _NUMBER), "global_share": ("global_holdout", _NUMBER)},
     "estimate": {
         "horizon_days": ("horizon_days", _INT),
         "cutoffs": ("cutoffs", _INT),
@@ -125,6 +125,7 @@ DEFAULT_KEYS: dict[str, tuple[str, str]] = {
     "mapping": ("mapping", _TEXT),
     "state": ("state", _TEXT),
     "holdout": ("holdout", _NUMBER),
+    "global_holdout": ("global_holdout", _NUMBER),
     "cap_days": ("cap_days", _INT),
     "horizon_days": ("horizon_days", _INT),
     "adult_age": ("adult_age", _INT),

@@ -29,6 +29,7 @@ STEPS: tuple[Step, ...] = (
     Step("suppressed", "on the suppression list"),
     Step("contacted_recently", "contacted within the frequency cap"),
     Step("held_out_elsewhere", "held out by another live campaign"),
+    Step("global_holdout", "in the global holdout"),
     Step("not_adult", "age-restricted target, not known to be an adult"),
     Step("outside_region", "outside the chosen regions"),
     Step("outside_channel", "no order through the chosen channels"),
@@ -38,7 +39,9 @@ STEPS: tuple[Step, ...] = (
 """The exclusion order (DESIGN.md). Consent and suppression can only be switched off explicitly."""
 
 STEP_KEYS = tuple(s.key for s in STEPS)
-FROM_LOG_OR_LIST = frozenset({"contacted_recently", "held_out_elsewhere", "no_address"})
+FROM_LOG_OR_LIST = frozenset(
+    {"contacted_recently", "held_out_elsewhere", "global_holdout", "no_address"}
+)
 """Steps reachlist flags itself (from the campaign logs, or the listed email) rather than the
 audience query."""
 

@@ -22,9 +22,23 @@ import polars as pl
 
 from reachlist.errors import InputError
 
-__all__ = ["DEFAULT_SHARE", "assign_holdout", "bucket", "check_share", "in_holdout"]
+__all__ = [
+    "DEFAULT_GLOBAL_SHARE",
+    "DEFAULT_SHARE",
+    "GLOBAL_SEED",
+    "assign_holdout",
+    "bucket",
+    "check_share",
+    "global_holdout",
+    "in_holdout",
+]
 
 DEFAULT_SHARE = 0.10
+DEFAULT_GLOBAL_SHARE = 0.02
+"""The share of all customers kept out of every campaign (a standing control group)."""
+GLOBAL_SEED = "reachlist-global"
+"""What the global holdout hashes with the customer id instead of a campaign id: the same
+customers stay in it for every campaign, until an organisation picks another seed."""
 _SCALE = float(2**64)
 
 
@@ -62,3 +76,15 @@ def assign_holdout(campaign_id: str, customer_ids: pl.Series, share: float) -> p
         for c in customer_ids.to_list()
     ]
     return pl.Series("holdout", values, dtype=pl.Boolean)
+
+
+def global_holdout(customer_ids: pl.Series, share: float, seed: str = GLOBAL_SEED) -> pl.Series:
+    """True for customers in the global holdout: ``bucket(seed, id) < share``, the same hash as a
+    campaign's holdout with the seed in the campaign id's place, so it does not depend on the
+    campaign and a customer is in it for every campaign."""
+    if not 0.0 <= share < 0.5:
+        raise InputError(
+            f"Expected a global holdout share in [0, 0.5), found {share}.",
+            hint="pass --global-holdout 0.02 for 2% (0 switches it off)",
+        )
+    return assign_holdout(seed, customer_ids, share).alias("global_holdout")

@@ -63,7 +63,14 @@ from reachlist.export import (
     stage_list,
     stage_text,
 )
-from reachlist.holdout import DEFAULT_SHARE, assign_holdout, check_share
+from reachlist.holdout import (
+    DEFAULT_GLOBAL_SHARE,
+    DEFAULT_SHARE,
+    GLOBAL_SEED,
+    assign_holdout,
+    check_share,
+    global_holdout,
+)
 from reachlist.query import Query, Rendered
 from reachlist.targets import (
     LEVEL_COLUMN,
@@ -123,6 +130,10 @@ class ListRequest:
     filters: Filters = field(default_factory=Filters)
     adult_age: int = 18
     holdout: float = DEFAULT_SHARE
+    # A standing control group: this share of all customers (by a hash of the id and the seed)
+    # is kept out of every campaign; 0 switches it off. Logged with each campaign.
+    global_holdout: float = DEFAULT_GLOBAL_SHARE
+    global_seed: str = GLOBAL_SEED
     campaign_id: str | None = None
     ignore_consent: bool = False
     ignore_suppressions: bool = False
@@ -348,6 +359,13 @@ def plan_list(
             "(surplus stock)",
         )
     check_share(request.holdout)
+    global_holdout(pl.Series("customer_id", [], dtype=pl.Int64), request.global_holdout,
+                   request.global_seed)  # checks the share before any work
+    if not 0 < len(request.global_seed) <= 80:
+        raise InputError(
+            f"Expected a global holdout seed of 1 to 80 characters, found {request.global_seed!r}.",
+            hint=f"leave it at {GLOBAL_SEED!r} unless your organisation keeps its own",
+        )
     for value, option, low, high in (
         (request.cap_days, "--cap-days", 0, MAX_CAP_DAYS),
         (request.horizon_days, "--horizon", 1, MAX_HORIZON_DAYS),
@@ -702,6 +720,13 @@ def _excluded(
     else:
         frame = frame.with_columns(pl.lit(False).alias("held_out_elsewhere"))
         notes["held_out_elsewhere"] = "no campaign log to read"
+    frame = frame.with_columns(
+        global_holdout(frame["customer_id"], req.global_holdout, req.global_seed)
+    )
+    if req.global_holdout > 0:
+        notes["global_holdout"] = f"{req.global_holdout:.0%} of all customers"
+    else:
+        notes["global_holdout"] = "switched off (--global-holdout 0)"
     if plan.spec.contact:
         frame = frame.with_columns(
             (~pl.col("email").cast(pl.String).str.contains("@").fill_null(False))
@@ -730,6 +755,8 @@ def _excluded(
         notes["contacted_recently"] = "not used (--cap-days 0)"
     if log is not None:
         in_use.add("held_out_elsewhere")
+    if req.global_holdout > 0:
+        in_use.add("global_holdout")
     if plan.spec.contact:
         in_use.add("no_address")
     if plan.spec.age_restricted:

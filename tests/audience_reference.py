@@ -34,6 +34,7 @@ ORDER = (
     "suppressed",
     "contacted_recently",
     "held_out_elsewhere",
+    "global_holdout",
     "not_adult",
     "outside_region",
     "outside_channel",

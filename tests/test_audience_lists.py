@@ -41,7 +41,9 @@ def world(pristine: Path, tmp_path: Path) -> Path:
 
 
 def request(**kw: object) -> ListRequest:
-    base: dict[str, object] = {"target": "T", "campaign_id": "c1"}
+    # the hand-worked counts below are per step; the global holdout (a hash, on by default) is
+    # switched off here and tested on its own
+    base: dict[str, object] = {"target": "T", "campaign_id": "c1", "global_holdout": 0.0}
     base.update(kw)
     return ListRequest(**base)  # type: ignore[arg-type]
 
@@ -53,6 +55,11 @@ def reference_outcome(world: Path, plan, in_use: set[str], contacted: set[int] =
         pl.col("customer_id").is_in(list(contacted)).alias("contacted_recently"),
         pl.col("customer_id").is_in(list(held_elsewhere)).alias("held_out_elsewhere"),
         ~pl.col("customer_id").is_in(list(ref.with_address(tables))).alias("no_address"),
+        # the global holdout by hashlib directly (tests/audience_reference.py): seed, id, share
+        pl.col("customer_id").map_elements(
+            lambda c: ref.in_holdout("reachlist-global", c, plan.request.global_holdout),
+            return_dtype=pl.Boolean
+        ).alias("global_holdout"),
     )
     excluded = {r["customer_id"]: ref.first_exclusion(r, in_use) for r in aud.to_dicts()}
     return aud, excluded
@@ -372,3 +379,27 @@ def test_a_rule_below_breadth_is_not_chosen_by_default(world: Path) -> None:
         plan = plan_list(wh, request(rank_by="lift"), rules=rules, now=NOW)
     assert any("Not chosen: rule(s) R1" in n for n in plan.notes)
     assert "R1" not in {r.rule_id for r in plan.rules}
+
+
+def test_the_global_holdout_keeps_the_same_customers_out_of_every_campaign(world: Path) -> None:
+    """Checked against hashlib directly (tests/audience_reference.py): the customers whose hash
+    with the seed falls under the share are removed, whatever the campaign."""
+    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "global_holdout"}
+    runs = []
+    with Warehouse.open(world) as wh:
+        for campaign in ("c1", "c2"):
+            plan = plan_list(wh, request(campaign_id=campaign, global_holdout=0.3),
+                             rules=RULESET, now=NOW)
+            runs.append((plan, preview_list(wh, plan)))
+        off = preview_list(wh, plan_list(wh, request(global_holdout=0.0), rules=RULESET,
+                                         now=NOW))
+    removed = []
+    for plan, out in runs:
+        steps = {s.key: s for s in out.waterfall}
+        _, excluded = reference_outcome(world, plan, in_use)
+        want = sorted(c for c, v in excluded.items() if v == "global_holdout")
+        assert steps["global_holdout"].removed == len(want) > 0
+        assert set(want).isdisjoint(out.listed["customer_id"].to_list())
+        removed.append(want)
+    assert removed[0] == removed[1]  # the same customers for every campaign
+    assert not {s.key: s for s in off.waterfall}["global_holdout"].in_use

@@ -102,8 +102,14 @@ def test_preview_is_quick_and_adds_up(wh: Warehouse, tables: dict) -> None:
     kept = out.waterfall[-1].remaining
     assert sum(r.adds for r in out.per_rule or []) == kept == out.listed.height
     assert out.holdout.height == pytest.approx(0.1 * kept, abs=4 * (0.09 * kept) ** 0.5)
-    aud = ref.audience(tables, plan.spec).with_columns(pl.lit(False).alias("contacted_recently"))
-    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "contacted_recently"}
+    aud = ref.audience(tables, plan.spec).with_columns(
+        pl.lit(False).alias("contacted_recently"),
+        # the global holdout (2% by default) by hashlib directly
+        pl.col("customer_id").map_elements(lambda c: ref.in_holdout("reachlist-global", c, 0.02),
+                                           return_dtype=pl.Boolean).alias("global_holdout"),
+    )
+    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "contacted_recently",
+              "global_holdout"}
     expected = sum(1 for r in aud.to_dicts() if ref.first_exclusion(r, in_use) is None)
     assert kept == expected
 

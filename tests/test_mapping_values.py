@@ -115,9 +115,11 @@ def foreign_rules():
 
 
 def test_the_mapped_warehouse_gives_the_same_lists(worlds, tmp_path: Path) -> None:
+    # holdouts hash the id's text form, so text ids fall in other global holdout buckets than
+    # the integers they stand for: it is off here, and the campaign holdout compares as a set
     world, foreign, mapping = worlds
     with Warehouse.open(world) as wh:
-        plan = plan_list(wh, ListRequest("T", campaign_id="c1", holdout=0.3),
+        plan = plan_list(wh, ListRequest("T", campaign_id="c1", holdout=0.3, global_holdout=0.0),
                          rules=ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW),
                          now=NOW)
         plain = preview_list(wh, plan, CampaignLog.open(wh))
@@ -126,7 +128,8 @@ def test_the_mapped_warehouse_gives_the_same_lists(worlds, tmp_path: Path) -> No
         casts = wh.typed_mapping
         assert casts.table("orders").casts == {"ordered_at": "TIMESTAMP"}
         assert casts.table("products").casts == {"sku": "VARCHAR"}
-        plan_f = plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1", holdout=0.3),
+        plan_f = plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1", holdout=0.3,
+                                       global_holdout=0.0),
                            rules=foreign_rules(), now=NOW)
         mapped = preview_list(wh, plan_f, CampaignLog.open(wh))
         built = build_list(wh, plan_f, tmp_path / "foreign.csv", log=CampaignLog.open(wh))
@@ -250,7 +253,7 @@ def test_postgres_with_uuid_ids_timestamptz_and_integer_articles(
     engine.dispose()
     pg_mapping = Mapping.from_dict({"schema": pg_schema, **_tables(MAPPING)})
     with Warehouse.open(world) as wh:
-        plain = preview_list(wh, plan_list(wh, ListRequest("T", campaign_id="c1"),
+        plain = preview_list(wh, plan_list(wh, ListRequest("T", campaign_id="c1", global_holdout=0.0),
                                            rules=ref.make_ruleset(cases.TARGET, cases.RULES,
                                                                   window=cases.WINDOW),
                                            now=NOW))
@@ -258,7 +261,8 @@ def test_postgres_with_uuid_ids_timestamptz_and_integer_articles(
         assert wh.text_ids and wh.typed_mapping.table("customers").casts == {
             "customer_id": "TEXT"}
         assert wh.typed_mapping.table("orders").casts["ordered_at"] == "TIMESTAMP"
-        mapped = preview_list(wh, plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1"),
+        mapped = preview_list(wh, plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1",
+                                                        global_holdout=0.0),
                                             rules=foreign_rules(), now=NOW))
         report = check_warehouse(wh, today=NOW.date())
     assert report.ok, report.problems

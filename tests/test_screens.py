@@ -51,7 +51,9 @@ def test_json_everywhere_has_numbers_as_numbers(pristine: Path) -> None:
     assert sizes["schema_version"] == 1 and isinstance(sizes["treatment"], int)
     steps = {s["step"]: s for s in sizes["waterfall"]}
     assert steps["no_consent"]["removed"] == 1369  # as the README's demo shows
-    assert sizes["listed"] == sizes["treatment"] + sizes["holdout"] == 3146
+    # the README's demo: 3,146 after suppressions, 62 in the global holdout, 3,084 listed
+    assert steps["suppressed"]["left"] == 3146 and steps["global_holdout"]["removed"] == 62
+    assert sizes["listed"] == sizes["treatment"] + sizes["holdout"] == 3084
     assert all(isinstance(r["co_purchase_rate"], float) for r in sizes["rules"])
     check = json.loads(run("check", "-w", str(pristine), "--json").output)
     assert check["ok"] is True and check["counts"]["customers"] == 20000

@@ -14,7 +14,7 @@ from reachlist.cli import err, main, out, warehouse_options
 from reachlist.cli.mining import mining_options
 from reachlist.cli.progress import delayed_status
 from reachlist.estimate import DEFAULT_HORIZON, MAX_CUTOFFS
-from reachlist.holdout import DEFAULT_SHARE
+from reachlist.holdout import DEFAULT_GLOBAL_SHARE, DEFAULT_SHARE
 from reachlist.lists import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, ListRequest
 from reachlist.warehouse import Warehouse
 
@@ -72,6 +72,11 @@ def list_options(fn: Callable[..., Any]) -> Callable[..., Any]:
             click.option("--holdout", default=DEFAULT_SHARE, show_default=True,
                          type=click.FloatRange(0, 1, max_open=True),
                          help="Share of the list kept back (not contacted) to measure take-up."),
+            click.option("--global-holdout", "global_holdout", default=DEFAULT_GLOBAL_SHARE,
+                         show_default=True, type=click.FloatRange(0, 0.5, max_open=True),
+                         metavar="SHARE",
+                         help="Share of all customers kept out of every campaign as a standing "
+                         "control group (0 switches it off)."),
             click.option("--campaign", "campaign_id", default=None, metavar="ID",
                          help="Campaign id [default: PURPOSE-TARGET-YYYYMMDD]; it seeds the "
                          "holdout."),
@@ -134,6 +139,7 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         filters=Filters(tuple(opts["regions"]), tuple(opts["channels"]), opts["ordered_within"]),
         adult_age=opts["adult_age"],
         holdout=opts["holdout"],
+        global_holdout=opts.get("global_holdout", DEFAULT_GLOBAL_SHARE),
         campaign_id=opts["campaign_id"],
         ignore_consent=opts["ignore_consent"],
         ignore_suppressions=opts["ignore_suppressions"],
