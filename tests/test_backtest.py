@@ -104,3 +104,16 @@ def test_backtest_cli_bad_cutoff(pristine: Path) -> None:
     res = CliRunner().invoke(main, ["backtest", "SG04-104", "--cutoff", "2026-07-01x", "-w",
                                     str(pristine)])
     assert res.exit_code != 0 and "Expected --cutoff as a date" in res.output
+
+
+def test_backtest_takes_the_options_that_shape_a_list(pristine: Path) -> None:
+    """--max-antecedent, --min-support, --basket and --cutoffs reach the rebuilt audiences, so
+    a backtest can rebuild the lists `build` made."""
+    res = CliRunner().invoke(main, ["backtest", "TW18-101", "--cutoff", CUTOFF, "-w",
+                                    str(pristine), "--json", "--top", "3", "--max-antecedent",
+                                    "1", "--cutoffs", "3", "--min-support", "0.004"])
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.output)
+    rules = [a for a in data["audiences"] if a["audience"] != "combined"]
+    assert rules and all(len(a["antecedent"]) == 1 for a in rules)
+    assert data["n_backtests"] <= 3 * (len(rules) + 1)

@@ -84,11 +84,22 @@ def estimate(wh: Warehouse, target: str, horizon_days: int, uplift: float, state
               help="Significant rules to backtest.")
 @click.option("--rank-by", default="leverage", show_default=True, type=click.Choice(RANK_MEASURES),
               help="Measure that ranks the rules.")
+@click.option("--basket", default="customer", show_default=True,
+              type=click.Choice(["customer", "order"]),
+              help="Mine rules from customers' holdings or from single orders (as for the list).")
+@click.option("--min-support", default=0.002, show_default=True,
+              type=click.FloatRange(0, 1, min_open=True),
+              help="Least share of baskets holding a rule's items (as for the list).")
+@click.option("--max-antecedent", default=3, show_default=True, type=click.IntRange(1, 5),
+              help="Most items in a rule's antecedent (as for the list).")
+@click.option("--cutoffs", default=13, show_default=True, type=click.IntRange(1, 60),
+              metavar="N", help="Past cutoffs the estimate is calibrated on (as for the list).")
 @click.option("--chart", "chart_path", default=None, metavar="FILE.svg",
               help="Also write the gains chart to this SVG file.")
 @_json
 def backtest_cmd(wh: Warehouse, target: str, cutoff: str, horizon_days: int, level: str,
-                 top: int, rank_by: str, chart_path: str | None, as_json: bool) -> None:
+                 top: int, rank_by: str, basket: str, min_support: float, max_antecedent: int,
+                 cutoffs: int, chart_path: str | None, as_json: bool) -> None:
     """Backtest TARGET: audiences and estimates as of --cutoff against who bought after it.
 
     Example: reachlist backtest SG04-104 --cutoff 2026-06-01 --chart gains.svg
@@ -98,7 +109,9 @@ def backtest_cmd(wh: Warehouse, target: str, cutoff: str, horizon_days: int, lev
 
     with delayed_status(err, "Backtesting") as _progress:
         bt = backtest(wh, target, cutoff=cutoff, horizon_days=horizon_days, top=top,
-                      rank_by=rank_by, level=level)
+                      rank_by=rank_by, level=level, max_cutoffs=cutoffs,
+                      mining={"basket": basket, "min_support": min_support,
+                              "max_antecedent": max_antecedent})
     if chart_path and bt.gains.height:
         write_chart(bt.chart_points(), chart_path, f"Gains: {bt.target}, cutoff {cutoff}")
     if as_json:
