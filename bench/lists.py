@@ -69,8 +69,11 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--warehouse", default=str(HERE / "results" / "garden-1000000.duckdb"))
     parser.add_argument("--repeats", type=int, default=2)
-    parser.add_argument("--extra", default="", help="options added to sizes and build, e.g. "
-                        "'--cutoffs 2' or '--no-estimate'")
+    parser.add_argument(
+        "--extra",
+        default="",
+        help="options added to sizes and build, e.g. '--cutoffs 2' or '--no-estimate'",
+    )
     opts = parser.parse_args()
     if not Path(opts.warehouse).exists():
         sys.exit(
@@ -78,8 +81,10 @@ def main() -> None:
             f"`reachlist sample --customers 1000000 --out {opts.warehouse}`"
         )
     extra = opts.extra.split()
-    print(f"warehouse {opts.warehouse}, {opts.repeats} repeat(s), median wall time, "
-          f"options: {' '.join(extra) or '(defaults)'}")
+    print(
+        f"warehouse {opts.warehouse}, {opts.repeats} repeat(s), median wall time, "
+        f"options: {' '.join(extra) or '(defaults)'}"
+    )
     failed = False
     with tempfile.TemporaryDirectory() as tmp:
         for label, target_args in CASES:
@@ -88,16 +93,25 @@ def main() -> None:
                 for i in range(opts.repeats):
                     args = [REACHLIST, command, *target_args, "-w", opts.warehouse, *extra]
                     if command == "build":
-                        args += ["--out", f"{tmp}/list-{i}.parquet", "--force",
-                                 "--state", f"{tmp}/state.duckdb", "--replace",
-                                 "--campaign", "bench"]
+                        args += [
+                            "--out",
+                            f"{tmp}/list-{i}.parquet",
+                            "--force",
+                            "--state",
+                            f"{tmp}/state.duckdb",
+                            "--replace",
+                            "--campaign",
+                            "bench",
+                        ]
                     runs.append(timed(args))
                 seconds = statistics.median(r[0] for r in runs)
                 peak = max(r[1] for r in runs)
                 ok = seconds < TARGETS[command]
                 failed |= not ok
-                print(f"  {command:<6} {label:<26} {seconds:6.1f} s  peak {peak:7,.0f} MiB  "
-                      f"(target < {TARGETS[command]:.0f} s: {'met' if ok else 'MISSED'})")
+                print(
+                    f"  {command:<6} {label:<26} {seconds:6.1f} s  peak {peak:7,.0f} MiB  "
+                    f"(target < {TARGETS[command]:.0f} s: {'met' if ok else 'MISSED'})"
+                )
             print(f"         phases: {phases(opts.warehouse, target_args)}")
     sys.exit(1 if failed else 0)
 

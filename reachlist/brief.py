@@ -68,24 +68,28 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
     rules = []
     for r in record["rules"]:
         groups = per_rule.get(r["rule_id"], {"treatment": 0, "holdout": 0})
-        rules.append({
-            "rank": r["rank"],
-            "rule_id": r["rule_id"],
-            "antecedent": list(r["antecedent"]),
-            "in_words": "bought " + " and ".join(names[a] for a in r["antecedent"]),
-            "co_purchase_rate": r["confidence"],
-            "lift": r["lift"],
-            "breadth_lift": r.get("breadth_lift"),
-            "significant": bool(r["significant"]),
-            "treatment": groups["treatment"],
-            "holdout": groups["holdout"],
-        })
+        rules.append(
+            {
+                "rank": r["rank"],
+                "rule_id": r["rule_id"],
+                "antecedent": list(r["antecedent"]),
+                "in_words": "bought " + " and ".join(names[a] for a in r["antecedent"]),
+                "co_purchase_rate": r["confidence"],
+                "lift": r["lift"],
+                "breadth_lift": r.get("breadth_lift"),
+                "significant": bool(r["significant"]),
+                "treatment": groups["treatment"],
+                "holdout": groups["holdout"],
+            }
+        )
     treatment, holdout = int(counts["treatment"]), int(counts["holdout"])
     estimate = counts.get("estimate") or {}
     expected = None
     if "expected" in estimate and estimate["expected"] is not None:
-        expected = {k: estimate.get(k) for k in ("expected", "low", "high", "level",
-                                                   "n_backtests", "horizon_days")}
+        expected = {
+            k: estimate.get(k)
+            for k in ("expected", "low", "high", "level", "n_backtests", "horizon_days")
+        }
     power = None
     listed = treatment + holdout
     if treatment and holdout:
@@ -93,15 +97,15 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
         if expected is not None and expected["expected"] is not None:
             base = expected["expected"] / treatment
         if base is None or not 0 < base < 1:
-            base = estimate.get("base_rate") if isinstance(estimate.get("base_rate"), float) \
-                else None
+            base = (
+                estimate.get("base_rate") if isinstance(estimate.get("base_rate"), float) else None
+            )
         if base is not None and 0 < base < 1:
             try:
                 m = minimum_detectable_uplift(listed, holdout / listed, base)
                 power = {
                     "baseline_rate": base,
-                    "detectable_relative_uplift": m.relative if math.isfinite(m.relative)
-                    else None,
+                    "detectable_relative_uplift": m.relative if math.isfinite(m.relative) else None,
                     "alpha": m.alpha,
                     "power": m.power,
                 }
@@ -123,8 +127,12 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
         "holdout": holdout,
         "holdout_share": params.get("holdout"),
         "waterfall": [
-            {"step": s["label"], "removed": int(s["removed"]), "left": int(s["remaining"]),
-             "in_use": bool(s["in_use"])}
+            {
+                "step": s["label"],
+                "removed": int(s["removed"]),
+                "left": int(s["remaining"]),
+                "in_use": bool(s["in_use"]),
+            }
             for s in counts["waterfall"]
         ],
         "rules": rules,

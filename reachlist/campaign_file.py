@@ -76,7 +76,14 @@ from reachlist.errors import InputError
 
 MAX_FILE_BYTES = 1_000_000  # a campaign file is a few hundred bytes; refuse anything huge
 
-_TEXT, _INT, _NUMBER, _FLAG, _TEXTS, _DAY = "text", "integer", "number", "true/false", "list of text", "date"
+_TEXT, _INT, _NUMBER, _FLAG, _TEXTS, _DAY = (
+    "text",
+    "integer",
+    "number",
+    "true/false",
+    "list of text",
+    "date",
+)
 
 # section -> key -> (the command's parameter, expected kind)
 CAMPAIGN_KEYS: dict[str, dict[str, tuple[str, str]]] = {
@@ -182,7 +189,7 @@ def _checked(value: Any, kind: str, where: str) -> Any:
     if not ok:
         raise InputError(
             f"Expected {where} to be a {kind}, found {value!r}.",
-            hint="write dates as 2026-12-07, lists as [\"a\", \"b\"], flags as true or false",
+            hint='write dates as 2026-12-07, lists as ["a", "b"], flags as true or false',
         )
     if kind == _TEXTS:
         return tuple(value)
@@ -195,8 +202,9 @@ def _unknown(key: str, known: list[str], where: str, path: str) -> InputError:
     close = difflib.get_close_matches(key, known, n=1)
     return InputError(
         f"Expected a key of {', '.join(known)} in {where} of {path!r}, found {key!r}.",
-        hint=f"did you mean {close[0]!r}?" if close else "see the README's 'Campaign files' "
-        "section for every key",
+        hint=f"did you mean {close[0]!r}?"
+        if close
+        else "see the README's 'Campaign files' section for every key",
     )
 
 
@@ -217,8 +225,9 @@ def read_campaign_file(path: str | os.PathLike[str]) -> CampaignFile:
         else:
             top = CAMPAIGN_KEYS[""]
             if key not in top:
-                raise _unknown(key, list(top) + [k for k in CAMPAIGN_KEYS if k], "the top level",
-                               str(path))
+                raise _unknown(
+                    key, list(top) + [k for k in CAMPAIGN_KEYS if k], "the top level", str(path)
+                )
             param, kind = top[key]
             values[param] = _checked(value, kind, key)
     if "target" not in values:

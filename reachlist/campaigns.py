@@ -39,8 +39,7 @@ from reachlist.query import Query, quote_ident, quote_qualified
 from reachlist.schema import CONTRACT, LOG_TABLES, Kind, Mapping
 from reachlist.warehouse import Warehouse
 
-__all__ = ["GROUPS", "KEYS", "CampaignLog", "CampaignRecord", "check_campaign_id",
-           "log_table_ddl"]
+__all__ = ["GROUPS", "KEYS", "CampaignLog", "CampaignRecord", "check_campaign_id", "log_table_ddl"]
 
 GROUPS = ("treatment", "holdout")
 _SQL_TYPE: dict[Kind, str] = {
@@ -76,8 +75,7 @@ def log_table_ddl(mapping: Mapping, table: str, *, text_ids: bool = False) -> st
     tmap = mapping.table(table)
     types = {**_SQL_TYPE, "id": "VARCHAR" if text_ids else "BIGINT"}
     cols = [
-        f"{quote_ident(tmap.column(c.name))} {types[c.kind]}"
-        + ("" if c.nullable else " NOT NULL")
+        f"{quote_ident(tmap.column(c.name))} {types[c.kind]}" + ("" if c.nullable else " NOT NULL")
         for c in CONTRACT[table].columns
     ]
     key = ", ".join(quote_ident(tmap.column(c)) for c in KEYS[table])
@@ -160,8 +158,12 @@ class CampaignLog:
                 f"Expected --state to be a local DuckDB file, found the URL {state!r}.",
                 hint="pass a path such as reachlist-state.duckdb",
             )
-        return cls(Warehouse.open(state, create=True), owned=True, also=(cls(warehouse),),
-                   text_ids=warehouse.text_ids)
+        return cls(
+            Warehouse.open(state, create=True),
+            owned=True,
+            also=(cls(warehouse),),
+            text_ids=warehouse.text_ids,
+        )
 
     def close(self) -> None:
         if self._owned:
@@ -180,8 +182,11 @@ class CampaignLog:
     @property
     def read_from(self) -> list[str]:
         """Where the contact cap reads: this log and every other log that has contacts."""
-        others = [log.where for log in self.also
-                  if log.db.physical_columns("campaign_contacts") is not None]
+        others = [
+            log.where
+            for log in self.also
+            if log.db.physical_columns("campaign_contacts") is not None
+        ]
         return [self.where, *others]
 
     def present(self) -> bool:
@@ -195,8 +200,9 @@ class CampaignLog:
             if self.db.physical_columns(table) is None:
                 continue
             parts = self.db.mapping.table(table).physical
-            schema = "table_schema = current_schema()" if len(parts) == 1 else (
-                "table_schema = :schema")
+            schema = (
+                "table_schema = current_schema()" if len(parts) == 1 else ("table_schema = :schema")
+            )
             q = Query(
                 "SELECT count(*) AS n FROM information_schema.table_constraints\n"
                 f"WHERE table_name = :name AND {schema}\n"
@@ -254,15 +260,19 @@ class CampaignLog:
             return pl.Series("customer_id", [], dtype=pl.Int64), live
         return pl.concat(members, how="vertical_relaxed").unique().sort(), sorted(set(live))
 
-    def _live_holdouts(self, as_of: datetime, other_than: str | None) -> tuple[pl.Series, list[str]]:
+    def _live_holdouts(
+        self, as_of: datetime, other_than: str | None
+    ) -> tuple[pl.Series, list[str]]:
         empty = pl.Series("customer_id", [], dtype=pl.Int64)
         if not self.present():
             return empty, []
         since = as_of - timedelta(days=MAX_HORIZON_DAYS)
-        sent = self.db.fetch(Query.from_template(
-            "live_holdout_campaigns",
-            {"holdout": "holdout", "since": since, "campaign_id": other_than or ""},
-        ))
+        sent = self.db.fetch(
+            Query.from_template(
+                "live_holdout_campaigns",
+                {"holdout": "holdout", "since": since, "campaign_id": other_than or ""},
+            )
+        )
         live = []
         for campaign_id, sent_at, parameters in sent.iter_rows():
             horizon = json.loads(parameters or "{}").get("horizon_days") or 30
@@ -270,9 +280,9 @@ class CampaignLog:
                 live.append(str(campaign_id))
         if not live:
             return empty, []
-        found = self.db.fetch(Query.from_template(
-            "holdout_members", {"holdout": "holdout", "campaign_ids": live}
-        ))
+        found = self.db.fetch(
+            Query.from_template("holdout_members", {"holdout": "holdout", "campaign_ids": live})
+        )
         return ids.normalise(found["customer_id"]), live
 
     def _recent(self, since: datetime, other_than: str | None) -> pl.Series:
@@ -390,13 +400,15 @@ class CampaignLog:
             ("campaigns", "parameters", json.dumps(parameters, default=str, sort_keys=True)),
         ):
             tmap = self.db.mapping.table(table)
-            statements.append(Query(
-                f"UPDATE {quote_qualified(tmap.physical)} "
-                f"SET {quote_ident(tmap.column(column))} = :value "
-                f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
-                {"value": value, "campaign_id": campaign_id},
-                label=f"send date in {table}",
-            ))
+            statements.append(
+                Query(
+                    f"UPDATE {quote_qualified(tmap.physical)} "
+                    f"SET {quote_ident(tmap.column(column))} = :value "
+                    f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
+                    {"value": value, "campaign_id": campaign_id},
+                    label=f"send date in {table}",
+                )
+            )
         try:
             with self.db.transaction():
                 for statement in statements:

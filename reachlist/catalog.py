@@ -27,8 +27,17 @@ DEFAULT_TOP = 10  # rows shown per kind (departments, categories, products)
 DEFAULT_MOST_COUNTED = 2_000  # products (or groups) whose buyers one search counts at most
 MAX_SEARCH_LENGTH = 200
 
-_COLUMNS = ["kind", "target", "name", "category", "department", "skus", "buyers", "units",
-            "net_amount"]
+_COLUMNS = [
+    "kind",
+    "target",
+    "name",
+    "category",
+    "department",
+    "skus",
+    "buyers",
+    "units",
+    "net_amount",
+]
 
 
 @dataclass(frozen=True)
@@ -88,15 +97,22 @@ def find_items(
         )
     cleaned = _check_text(text)
     window = mining_window(wh, since, until)
-    params = {"pattern": like_pattern(cleaned), "since": window.since, "until": window.until,
-              "most": most_counted}
+    params = {
+        "pattern": like_pattern(cleaned),
+        "since": window.since,
+        "until": window.until,
+        "most": most_counted,
+    }
     counts = wh.fetch(Query.from_template("item_match_counts", {"pattern": params["pattern"]}))
     matched = {kind: int(counts[kind][0] or 0) for kind in ("departments", "categories", "skus")}
     notes = [
         f"{matched[kind]:,} {label} match; buyers were counted for the first {most_counted:,} "
         f"by {'code' if kind == 'skus' else 'name'} (search for a longer text to see the rest)."
-        for kind, label in (("skus", "products"), ("categories", "categories"),
-                            ("departments", "departments"))
+        for kind, label in (
+            ("skus", "products"),
+            ("categories", "categories"),
+            ("departments", "departments"),
+        )
         if matched[kind] > most_counted
     ]
     parts = []
@@ -150,10 +166,15 @@ def find_items(
         .drop("_order")
         .select(_COLUMNS)
     )
-    for kind, label in (("skus", "products"), ("categories", "categories"),
-                        ("departments", "departments")):
+    for kind, label in (
+        ("skus", "products"),
+        ("categories", "categories"),
+        ("departments", "departments"),
+    ):
         shown = min(matched[kind], top)
         if matched[kind] > shown:
-            notes.append(f"{shown:,} of {matched[kind]:,} matching {label} shown, most buyers "
-                         "first (--top to change).")
+            notes.append(
+                f"{shown:,} of {matched[kind]:,} matching {label} shown, most buyers "
+                "first (--top to change)."
+            )
     return ItemSearch(cleaned, window, items, matched, notes)

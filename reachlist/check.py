@@ -75,12 +75,14 @@ def contract_problems(
         tmap = wh.mapping.table(name)
         found = wh.physical_columns(name)
         if found is None:
-            problems.append(Problem(
-                "missing table", name if tmap.physical_name == name
-                else f"{name} ({tmap.physical_name})",
-                f"no table {tmap.physical_name!r}",
-                f'create it, or {_key(wh, name)} = "your_table"',
-            ))
+            problems.append(
+                Problem(
+                    "missing table",
+                    name if tmap.physical_name == name else f"{name} ({tmap.physical_name})",
+                    f"no table {tmap.physical_name!r}",
+                    f'create it, or {_key(wh, name)} = "your_table"',
+                )
+            )
             continue
         by_name = {c.name.lower(): c for c in found}
         for col in CONTRACT[name].columns:
@@ -93,21 +95,27 @@ def contract_problems(
             physical = tmap.column(col.name)
             pc = by_name.get(physical.lower())
             if pc is None:
-                problems.append(Problem(
-                    "missing column", _where(name, col.name, tmap.physical_name, physical),
-                    f"columns {', '.join(c.name for c in found)}",
-                    f'{_key(wh, name, col.name)} = "your_column" (or an expression or constant: '
-                    "README, 'Mapping values')",
-                ))
+                problems.append(
+                    Problem(
+                        "missing column",
+                        _where(name, col.name, tmap.physical_name, physical),
+                        f"columns {', '.join(c.name for c in found)}",
+                        f'{_key(wh, name, col.name)} = "your_column" (or an expression or constant: '
+                        "README, 'Mapping values')",
+                    )
+                )
                 continue
             to = cast_for(col.kind, pc.data_type, text_type)
             if to is INCOMPATIBLE:
-                problems.append(Problem(
-                    "wrong type", _where(name, col.name, tmap.physical_name, pc.name),
-                    f"type {pc.data_type}; expected {_kind_words(col.kind)}",
-                    f'{_key(wh, name, col.name)} = {{ sql = "CAST({pc.name} AS ...)" }} or '
-                    "another column of that type",
-                ))
+                problems.append(
+                    Problem(
+                        "wrong type",
+                        _where(name, col.name, tmap.physical_name, pc.name),
+                        f"type {pc.data_type}; expected {_kind_words(col.kind)}",
+                        f'{_key(wh, name, col.name)} = {{ sql = "CAST({pc.name} AS ...)" }} or '
+                        "another column of that type",
+                    )
+                )
             elif to is not None:
                 casts.append(f"{name}.{col.name}: {pc.data_type} read as {to}")
     typed = wh.typed_mapping
@@ -137,8 +145,9 @@ def _kind_words(kind: Kind) -> str:
     }[kind]
 
 
-def _source_problem(wh: Warehouse, table: str, column: str, kind: Kind,
-                    source_kind: str) -> Problem | None:
+def _source_problem(
+    wh: Warehouse, table: str, column: str, kind: Kind, source_kind: str
+) -> Problem | None:
     """A mapped expression or constant must run against its table (checked with LIMIT 0)."""
     tmap = wh.typed_mapping.table(table)
     from reachlist.query import column_sql
@@ -148,7 +157,9 @@ def _source_problem(wh: Warehouse, table: str, column: str, kind: Kind,
         wh.fetch_raw(f"SELECT {expr} AS probe FROM {quote_qualified(tmap.physical)} LIMIT 0")
     except ReachlistError as exc:
         return Problem(
-            "expression fails", f"{table}.{column}", f"{tmap.source(column).describe()}: "  # type: ignore[union-attr]
+            "expression fails",
+            f"{table}.{column}",
+            f"{tmap.source(column).describe()}: "  # type: ignore[union-attr]
             f"{exc.message}",
             f"fix {_key(wh, table, column)} so it is one {_kind_words(kind)} expression over "
             f"{tmap.physical_name}",
@@ -160,37 +171,55 @@ def _data_problems(wh: Warehouse, counts: dict[str, Any], today: date) -> list[P
     problems: list[Problem] = []
     dup = wh.fetch(Query.from_template("duplicate_customers")).row(0, named=True)
     if dup["duplicated_ids"]:
-        problems.append(Problem(
-            "duplicate customer ids", "customers.customer_id",
-            f"{dup['duplicated_ids']:,} ids on {dup['duplicate_rows']:,} rows",
-            "keep one row per customer (lists refuse this warehouse), or build with "
-            "--merge-duplicates to read each by its strictest row",
-        ))
+        problems.append(
+            Problem(
+                "duplicate customer ids",
+                "customers.customer_id",
+                f"{dup['duplicated_ids']:,} ids on {dup['duplicate_rows']:,} rows",
+                "keep one row per customer (lists refuse this warehouse), or build with "
+                "--merge-duplicates to read each by its strictest row",
+            )
+        )
     nulls = wh.fetch(Query.from_template("null_ids")).row(0, named=True)
     for key, where, fix in (
-        ("customers_without_id", "customers.customer_id", "they can never be listed; fill or "
-         "drop them"),
+        (
+            "customers_without_id",
+            "customers.customer_id",
+            "they can never be listed; fill or drop them",
+        ),
         ("orders_without_id", "orders.order_id", "their lines cannot be joined; fill them"),
         ("lines_without_sku", "order_lines.sku", "they are ignored; fill them"),
     ):
         if nulls[key]:
-            problems.append(Problem("missing ids", where, f"{nulls[key]:,} rows without one", fix,
-                                    "warning"))
+            problems.append(
+                Problem("missing ids", where, f"{nulls[key]:,} rows without one", fix, "warning")
+            )
     tomorrow = datetime(today.year, today.month, today.day) + timedelta(days=1)
     history = wh.fetch(Query.from_template("order_history", {"tomorrow": tomorrow})).row(
-        0, named=True)
+        0, named=True
+    )
     if history["without_customer"]:
-        problems.append(Problem(
-            "orders without a customer", "orders.customer_id",
-            f"{history['without_customer']:,} orders", "ignored by every command (guest "
-            "checkouts?); nothing to do unless they should have one", "warning"))
+        problems.append(
+            Problem(
+                "orders without a customer",
+                "orders.customer_id",
+                f"{history['without_customer']:,} orders",
+                "ignored by every command (guest "
+                "checkouts?); nothing to do unless they should have one",
+                "warning",
+            )
+        )
     if history["later_orders"]:
-        problems.append(Problem(
-            "orders in the future", "orders.ordered_at",
-            f"{history['later_orders']:,} after {today:%Y-%m-%d}, the latest "
-            f"{history['latest_later']:%Y-%m-%d}",
-            "fix the dates; until then default windows end at the last order up to today",
-            "warning"))
+        problems.append(
+            Problem(
+                "orders in the future",
+                "orders.ordered_at",
+                f"{history['later_orders']:,} after {today:%Y-%m-%d}, the latest "
+                f"{history['latest_later']:%Y-%m-%d}",
+                "fix the dates; until then default windows end at the last order up to today",
+                "warning",
+            )
+        )
     months = wh.fetch(Query.from_template("order_months"))
     problems.extend(_far_months(months.rows()))
     return problems
@@ -219,11 +248,15 @@ def _far_months(rows: list[tuple[Any, ...]]) -> list[Problem]:
             continue
         first, last = run[0][2], run[-1][2]
         span = f"{first:%Y-%m}" if first == last else f"{first:%Y-%m}..{last:%Y-%m}"
-        out.append(Problem(
-            "orders far from the rest", "orders.ordered_at",
-            f"{n:,} orders in {span}; the history runs {bulk[0][2]:%Y-%m}..{bulk[-1][2]:%Y-%m}",
-            "fix the dates (a typed year?); windows you pass with --since/--until leave them out",
-            "warning"))
+        out.append(
+            Problem(
+                "orders far from the rest",
+                "orders.ordered_at",
+                f"{n:,} orders in {span}; the history runs {bulk[0][2]:%Y-%m}..{bulk[-1][2]:%Y-%m}",
+                "fix the dates (a typed year?); windows you pass with --since/--until leave them out",
+                "warning",
+            )
+        )
     return out
 
 

@@ -128,8 +128,12 @@ class _Cutoff:
         d = self.people["decile"].to_numpy()
         y = self.people["bought"].to_numpy().astype(bool)
         m = self.people[f"g{group}"].to_numpy().astype(bool)
-        cells = [np.bincount(d[m & y], minlength=k), np.bincount(d[m & ~y], minlength=k),
-                 np.bincount(d[~m & y], minlength=k), np.bincount(d[~m & ~y], minlength=k)]
+        cells = [
+            np.bincount(d[m & y], minlength=k),
+            np.bincount(d[m & ~y], minlength=k),
+            np.bincount(d[~m & y], minlength=k),
+            np.bincount(d[~m & ~y], minlength=k),
+        ]
         return np.stack(cells, axis=1).reshape(k, 2, 2).astype(float)
 
 
@@ -242,8 +246,9 @@ def _snapshot(
     return _Cutoff(at, people.with_columns(flags), edges)
 
 
-def _groups_at(wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None,
-               at: datetime) -> pl.DataFrame:
+def _groups_at(
+    wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None, at: datetime
+) -> pl.DataFrame:
     """(customer_id, rule_rank) of the audience definition rebuilt at ``at``."""
     if spec is None:
         assert ids is not None
@@ -267,8 +272,9 @@ def _mh(tables: Iterable[np.ndarray]) -> StratifiedRatio | None:
 
 def _prediction(rates_at: _Cutoff, members: pl.DataFrame, breadth_col: str = "breadth") -> float:
     n, b = rates_at.counts()
-    mix = np.bincount(assign_decile(members[breadth_col].to_numpy(), rates_at.edges),
-                      minlength=len(n)).astype(float)
+    mix = np.bincount(
+        assign_decile(members[breadth_col].to_numpy(), rates_at.edges), minlength=len(n)
+    ).astype(float)
     return breadth_matched_expectation(n, b, mix).expected_buyers
 
 
@@ -284,8 +290,10 @@ class _History:
 
     def _audiences(self, now: _Cutoff) -> list[tuple[int, pl.DataFrame]]:
         if self.fixed_ids:
-            return [(-1 - k, now.people.filter(pl.col("decile") == k))
-                    for k in range(len(now.edges) + 1)]
+            return [
+                (-1 - k, now.people.filter(pl.col("decile") == k))
+                for k in range(len(now.edges) + 1)
+            ]
         return [(g, now.people.filter(pl.col(f"g{g}"))) for g in self.ranks]
 
     def added_value(self, group: int, since: int = 0) -> StratifiedRatio | None:
@@ -305,14 +313,24 @@ class _History:
                     continue
                 prior = self.added_value(g, since=j + 1)
                 rr = prior.estimate if prior is not None else 1.0
-                rows.append({
-                    "cutoff": now.at, "group": g, "customers": members.height,
-                    "breadth_matched": base, "rule_adjusted": base * rr,
-                    "observed": int(members["bought"].sum()),
-                })
-        schema: dict[str, pl.DataType] = {"cutoff": pl.Datetime("us"), "group": pl.Int64(), "customers": pl.Int64(),
-                  "breadth_matched": pl.Float64(), "rule_adjusted": pl.Float64(),
-                  "observed": pl.Int64()}
+                rows.append(
+                    {
+                        "cutoff": now.at,
+                        "group": g,
+                        "customers": members.height,
+                        "breadth_matched": base,
+                        "rule_adjusted": base * rr,
+                        "observed": int(members["bought"].sum()),
+                    }
+                )
+        schema: dict[str, pl.DataType] = {
+            "cutoff": pl.Datetime("us"),
+            "group": pl.Int64(),
+            "customers": pl.Int64(),
+            "breadth_matched": pl.Float64(),
+            "rule_adjusted": pl.Float64(),
+            "observed": pl.Int64(),
+        }
         return pl.DataFrame(rows, schema=schema)
 
 
@@ -334,8 +352,9 @@ def _history(
         )
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
     cutoffs = [
-        _snapshot(wh, target, at, at + timedelta(days=horizon), _groups_at(wh, spec, ids, at),
-                  ranks)
+        _snapshot(
+            wh, target, at, at + timedelta(days=horizon), _groups_at(wh, spec, ids, at), ranks
+        )
         for at in ats
     ]
     return _History(cutoffs, ranks, fixed_ids=spec is None)
@@ -347,8 +366,10 @@ def _calibrated(history: _History) -> tuple[Calibration, RuleWeight, pl.DataFram
     bt = bt.with_columns(
         pl.Series(
             "predicted",
-            [weight.apply(b, r) for b, r in zip(bt["breadth_matched"], bt["rule_adjusted"],
-                                                 strict=True)],
+            [
+                weight.apply(b, r)
+                for b, r in zip(bt["breadth_matched"], bt["rule_adjusted"], strict=True)
+            ],
             dtype=pl.Float64,
         )
     )
@@ -393,8 +414,9 @@ class Calibrated:
         rebuild the audience from the rules, so they do not depend on the ids and stay valid."""
         ids = ids_.like(_as_ids(customers), self.now.people.schema["customer_id"])
         people = self.now.people.with_columns(
-            (pl.col(f"g{COMBINED}") & pl.col("customer_id").is_in(ids.implode()))
-            .alias(f"g{COMBINED}")
+            (pl.col(f"g{COMBINED}") & pl.col("customer_id").is_in(ids.implode())).alias(
+                f"g{COMBINED}"
+            )
         )
         return dataclasses.replace(self, now=_Cutoff(self.now.at, people, self.now.edges))
 
@@ -470,8 +492,10 @@ def calibrate_audience(
             f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
         )
     if spec is None and customers is None:
-        raise InputError("Expected an audience (customer ids or an AudienceSpec), found neither.",
-                         hint="pass customers=... or spec=...")
+        raise InputError(
+            "Expected an audience (customer ids or an AudienceSpec), found neither.",
+            hint="pass customers=... or spec=...",
+        )
     if as_of is not None:
         when = _as_datetime(as_of, "--as-of")
     elif spec is not None:
@@ -481,22 +505,34 @@ def calibrate_audience(
     ids = None if customers is None else _as_ids(customers)
     history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
     cal, weight, bt = _calibrated(history)
-    groups = _groups_at(wh, spec, None, when) if spec is not None else pl.DataFrame(
-        {"customer_id": ids, "rule_rank": COMBINED})
+    groups = (
+        _groups_at(wh, spec, None, when)
+        if spec is not None
+        else pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED})
+    )
     if ids is not None and spec is not None:
         # the given customers are the combined audience; rules still mark whom they reach
-        groups = pl.concat([groups.filter(pl.col("rule_rank") != COMBINED),
-                            pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED},
-                                         schema={"customer_id": ids.dtype,
-                                                 "rule_rank": pl.Int64})])
+        groups = pl.concat(
+            [
+                groups.filter(pl.col("rule_rank") != COMBINED),
+                pl.DataFrame(
+                    {"customer_id": ids, "rule_rank": COMBINED},
+                    schema={"customer_id": ids.dtype, "rule_rank": pl.Int64},
+                ),
+            ]
+        )
         ranks = history.ranks
         now = _snapshot(wh, target, when, when, groups, ranks, edges=history.cutoffs[0].edges)
-        now = _Cutoff(now.at, now.people.with_columns(
-            pl.col("customer_id").is_in(ids.implode()).alias("g0")), now.edges)
+        now = _Cutoff(
+            now.at,
+            now.people.with_columns(pl.col("customer_id").is_in(ids.implode()).alias("g0")),
+            now.edges,
+        )
     else:
         # Breadth at as_of, read with an empty outcome window: nothing at or after as_of.
-        now = _snapshot(wh, target, when, when, groups, history.ranks,
-                        edges=history.cutoffs[0].edges)
+        now = _snapshot(
+            wh, target, when, when, groups, history.ranks, edges=history.cutoffs[0].edges
+        )
     return Calibrated(target, when, horizon_days, level, history, cal, weight, bt, now)
 
 
@@ -520,8 +556,16 @@ def estimate_takeup(
     the day after the last order.
     """
     ids = None if customers is None else _as_ids(customers)
-    c = calibrate_audience(wh, target, spec=spec, customers=ids, horizon_days=horizon_days,
-                           as_of=as_of, level=level, max_cutoffs=max_cutoffs)
+    c = calibrate_audience(
+        wh,
+        target,
+        spec=spec,
+        customers=ids,
+        horizon_days=horizon_days,
+        as_of=as_of,
+        level=level,
+        max_cutoffs=max_cutoffs,
+    )
     given = ids.n_unique() if ids is not None else None
     return c.report(COMBINED, given=given)
 
@@ -529,10 +573,14 @@ def estimate_takeup(
 def decile_rate_table(cut: _Cutoff) -> pl.DataFrame:
     """Forward take-up per breadth decile at one cutoff (for display and tests)."""
     n, b = cut.counts()
-    return pl.DataFrame({
-        "decile": np.arange(len(n)), "customers": n.astype(int), "buyers": b.astype(int),
-        "rate": decile_rates(n, b),
-    })
+    return pl.DataFrame(
+        {
+            "decile": np.arange(len(n)),
+            "customers": n.astype(int),
+            "buyers": b.astype(int),
+            "rate": decile_rates(n, b),
+        }
+    )
 
 
 # -- holdout planning ---------------------------------------------------------------------------
@@ -625,8 +673,9 @@ def holdout_planning(
             needed = holdout_share_needed(list_size, rate, wanted_uplift, alpha=alpha, power=power)
         except ReachlistError as exc:
             note = str(exc)
-    return HoldoutPlanning(list_size, share, rate, detectable, wanted_uplift, needed, note,
-                           alpha, power)
+    return HoldoutPlanning(
+        list_size, share, rate, detectable, wanted_uplift, needed, note, alpha, power
+    )
 
 
 def _as_ids(customers: Iterable[object] | pl.Series) -> pl.Series:

@@ -49,8 +49,11 @@ FORMULA_START = r"^[=+\-@\t\r]"  # what a spreadsheet may run as a formula (OWAS
 def neutralise_formulas(frame: pl.DataFrame) -> pl.DataFrame:
     """Text cells that start like a formula get a leading single quote; other columns (numbers,
     dates, booleans) are left alone, so a negative number stays a number."""
-    text = [c for c, t in frame.schema.items() if t in (pl.String, pl.Categorical) or
-            isinstance(t, pl.Enum)]
+    text = [
+        c
+        for c, t in frame.schema.items()
+        if t in (pl.String, pl.Categorical) or isinstance(t, pl.Enum)
+    ]
     return frame.with_columns(
         pl.when(pl.col(c).cast(pl.String).str.contains(FORMULA_START))
         .then(pl.lit("'") + pl.col(c).cast(pl.String))
@@ -183,12 +186,16 @@ class Leftovers:
     def notes(self) -> list[str]:
         out = []
         if self.removed:
-            out.append(f"Removed {len(self.removed)} staging file(s) left by interrupted builds "
-                       f"to this place: {', '.join(p.name for p in self.removed)}.")
+            out.append(
+                f"Removed {len(self.removed)} staging file(s) left by interrupted builds "
+                f"to this place: {', '.join(p.name for p in self.removed)}."
+            )
         if self.kept:
-            out.append(f"Left alone {len(self.kept)} staging file(s) of a build that may still be "
-                       f"running (or of an older reachlist): {', '.join(str(p) for p in self.kept)}"
-                       "; delete them by hand once no build is running.")
+            out.append(
+                f"Left alone {len(self.kept)} staging file(s) of a build that may still be "
+                f"running (or of an older reachlist): {', '.join(str(p) for p in self.kept)}"
+                "; delete them by hand once no build is running."
+            )
         return out
 
 
@@ -216,7 +223,7 @@ def clear_leftovers(path: str | os.PathLike[str]) -> Leftovers:
         name = p.name
         if not (name.startswith(prefix) and name.endswith(".tmp")) or not p.is_file():
             continue
-        pid = name[len(prefix):].split("-", 1)[0]
+        pid = name[len(prefix) :].split("-", 1)[0]
         if pid.isdigit() and _process_gone(int(pid)):
             with contextlib.suppress(FileNotFoundError):
                 p.unlink()

@@ -359,8 +359,9 @@ def plan_list(
             "(surplus stock)",
         )
     check_share(request.holdout)
-    global_holdout(pl.Series("customer_id", [], dtype=pl.Int64), request.global_holdout,
-                   request.global_seed)  # checks the share before any work
+    global_holdout(
+        pl.Series("customer_id", [], dtype=pl.Int64), request.global_holdout, request.global_seed
+    )  # checks the share before any work
     if not 0 < len(request.global_seed) <= 80:
         raise InputError(
             f"Expected a global holdout seed of 1 to 80 characters, found {request.global_seed!r}.",
@@ -577,7 +578,8 @@ def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tu
     value = missing[0]
     lowered = {k.lower(): k for k in known}
     close = ([lowered[value.lower()]] if value.lower() in lowered else []) + [
-        c for c in difflib.get_close_matches(value, known, n=3, cutoff=0.6)
+        c
+        for c in difflib.get_close_matches(value, known, n=3, cutoff=0.6)
         if c.lower() != value.lower()
     ]
     if close:
@@ -709,7 +711,8 @@ def _excluded(
     if log is not None:
         held, live = log.live_holdouts(plan.now, other_than=plan.campaign_id)
         frame = frame.with_columns(
-            pl.col("customer_id").is_in(ids.like(held, frame.schema["customer_id"]).implode())
+            pl.col("customer_id")
+            .is_in(ids.like(held, frame.schema["customer_id"]).implode())
             .alias("held_out_elsewhere")
         )
         if live:
@@ -729,8 +732,9 @@ def _excluded(
         notes["global_holdout"] = "switched off (--global-holdout 0)"
     if plan.spec.contact:
         frame = frame.with_columns(
-            (~pl.col("email").cast(pl.String).str.contains("@").fill_null(False))
-            .alias("no_address")
+            (~pl.col("email").cast(pl.String).str.contains("@").fill_null(False)).alias(
+                "no_address"
+            )
         )
     else:
         frame = frame.with_columns(pl.lit(False).alias("no_address"))
@@ -815,7 +819,11 @@ def _finish(
             )
         )
     outcome = ListOutcome(
-        plan, frame, waterfall, clearance, log_where=log.where if log is not None else None,
+        plan,
+        frame,
+        waterfall,
+        clearance,
+        log_where=log.where if log is not None else None,
         estimate_note=note,
     )
     treated = outcome.treatment["customer_id"]
@@ -829,7 +837,8 @@ def _finish(
     if outcome.takeup is not None:
         listed = outcome.listed.height
         outcome.holdout_plan = holdout_planning(
-            listed, outcome.holdout.height / listed if listed else req.holdout,
+            listed,
+            outcome.holdout.height / listed if listed else req.holdout,
             outcome.takeup.rate,
         )
     return outcome
@@ -895,8 +904,9 @@ def _size_to_stock(
         latest = cal.latest.people
         per_buyer = cal.units_per_buyer
         buyers = int(latest["bought"].sum())
-        units_from = (f"new buyers of {plan.rules_target} within {horizon} days of "
-                      f"{cal.latest.at:%Y-%m-%d}")
+        units_from = (
+            f"new buyers of {plan.rules_target} within {horizon} days of {cal.latest.at:%Y-%m-%d}"
+        )
         basis = f"calibrated expected buyers within {horizon} days"
         kept = kept.join(cal.customer_rates(), on="customer_id", how="left").with_columns(
             pl.col("rate").fill_null(0.0).alias("likely")
@@ -1007,8 +1017,10 @@ def _settle(
         return plan, frame, waterfall, pairs
     sizes = ", ".join(f"{r.rule_id} ({own.get(r.rank, 0):,})" for r in small)
     if plan.request.rule_ids:  # picked by hand: keep them, but say so
-        note = (f"Rule(s) {sizes} reach fewer than --min-audience {minimum:,} customers after "
-                "the exclusions; kept because they were picked by id.")
+        note = (
+            f"Rule(s) {sizes} reach fewer than --min-audience {minimum:,} customers after "
+            "the exclusions; kept because they were picked by id."
+        )
         return dataclasses.replace(plan, notes=(*plan.notes, note)), frame, waterfall, pairs
     rules = tuple(r for r in plan.rules if r not in small)
     if not rules:
@@ -1017,8 +1029,10 @@ def _settle(
             f"{minimum:,} customers, found none: {sizes}.",
             hint="lower --min-audience, widen the window, or raise --top",
         )
-    note = (f"Not proposed: rule(s) {sizes} reach fewer than --min-audience {minimum:,} "
-            "customers after the exclusions.")
+    note = (
+        f"Not proposed: rule(s) {sizes} reach fewer than --min-audience {minimum:,} "
+        "customers after the exclusions."
+    )
     plan = dataclasses.replace(
         plan,
         rules=rules,
@@ -1045,14 +1059,17 @@ def delivered_paths(out: str | Path) -> list[Path]:
     return paths
 
 
-def _stage_delivery(wh: Warehouse, outcome: ListOutcome, out: str | Path,
-                    force: bool) -> StagedSet:
+def _stage_delivery(wh: Warehouse, outcome: ListOutcome, out: str | Path, force: bool) -> StagedSet:
     from reachlist import __version__
 
     plan = outcome.plan
-    delivery = delivery_frames(wh, outcome, built_at=plan.built_at or plan.now,
-                               version=__version__,
-                               offer_code=plan.request.offer_code)
+    delivery = delivery_frames(
+        wh,
+        outcome,
+        built_at=plan.built_at or plan.now,
+        version=__version__,
+        offer_code=plan.request.offer_code,
+    )
     provenance = provenance_json(delivery.provenance)
     meta = {PROVENANCE_KEY: provenance}
     files: list[StagedFile] = []
@@ -1155,5 +1172,11 @@ def build_list(
         raise
     staged.settle()
     stage(4)
-    return Built(outcome, path, staged.rows, log.where, tuple(notes),
-                 tuple(f.final for f in staged.files[1:]))
+    return Built(
+        outcome,
+        path,
+        staged.rows,
+        log.where,
+        tuple(notes),
+        tuple(f.final for f in staged.files[1:]),
+    )

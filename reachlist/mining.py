@@ -136,7 +136,14 @@ class Baskets:
     """
 
     __slots__ = (
-        "_index", "_rows", "_tid_ptr", "_tids", "basket_ids", "indices", "indptr", "item_counts",
+        "_index",
+        "_rows",
+        "_tid_ptr",
+        "_tids",
+        "basket_ids",
+        "indices",
+        "indptr",
+        "item_counts",
         "labels",
     )
 
@@ -214,8 +221,9 @@ class Baskets:
             labels = [str(x) for x in uniques]
         else:
             item_codes = np.asarray(item, dtype=np.int64)
-        return cls(basket_codes, item_codes, labels, _n_checked(basket_ids.size, n_baskets),
-                   basket_ids)
+        return cls(
+            basket_codes, item_codes, labels, _n_checked(basket_ids.size, n_baskets), basket_ids
+        )
 
     @classmethod
     def from_frame(
@@ -275,8 +283,10 @@ class Baskets:
         return self.n_baskets
 
     def __repr__(self) -> str:
-        return (f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, "
-                f"lines={self.indices.size})")
+        return (
+            f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, "
+            f"lines={self.indices.size})"
+        )
 
     def item_index(self, label: str) -> int:
         """Index of an item label; ``InputError`` when the item is in no basket's vocabulary."""
@@ -310,8 +320,9 @@ class Baskets:
     def bitmaps(self, items: Iterable[int]) -> np.ndarray:
         """Bitmap rows (len(items), n_words) of item indices ``items``: bit b of a row is set when
         basket b holds the item. Rows are built on first request and kept."""
-        ids = np.asarray(list(items) if not isinstance(items, np.ndarray) else items,
-                         dtype=np.int64).ravel()
+        ids = np.asarray(
+            list(items) if not isinstance(items, np.ndarray) else items, dtype=np.int64
+        ).ravel()
         missing = np.unique(ids[[int(k) not in self._rows for k in ids]]) if ids.size else ids
         if missing.size:
             block = _pack_item_rows(self._tids, self._tid_ptr, missing, self.n_words)
@@ -349,8 +360,10 @@ def _n_checked(seen: int, n_baskets: int | None) -> int:
 def _factorize(s: pl.Series) -> tuple[np.ndarray, np.ndarray]:
     """Dense codes (0..k-1, in sorted order of the values) and the sorted unique values."""
     if s.null_count():
-        raise InputError(f"column {s.name!r} has {s.null_count()} missing values.",
-                         hint="drop or fill them first")
+        raise InputError(
+            f"column {s.name!r} has {s.null_count()} missing values.",
+            hint="drop or fill them first",
+        )
     if s.len() == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
     if s.dtype.is_integer():
@@ -595,8 +608,16 @@ def _eclat(
             found.add(sub_prefix, ids[k + 1 :][keep], cc[keep])
             continue
         keep = keep[np.argsort(cc[keep], kind="stable")]
-        _eclat(child[keep], ids[k + 1 :][keep], cc[keep], min_count, max_size, sub_prefix, found,
-               pair_leaves)
+        _eclat(
+            child[keep],
+            ids[k + 1 :][keep],
+            cc[keep],
+            min_count,
+            max_size,
+            sub_prefix,
+            found,
+            pair_leaves,
+        )
 
 
 def _search(
@@ -676,8 +697,9 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
     groups = [(p, e[:, 0]) for p, e, _ in found.groups]
     if not groups:
         return np.zeros(0, np.int64)
-    needed = np.unique(np.concatenate([np.array(p, dtype=np.int64) for p, _ in groups]
-                                      + [e for _, e in groups]))
+    needed = np.unique(
+        np.concatenate([np.array(p, dtype=np.int64) for p, _ in groups] + [e for _, e in groups])
+    )
     bits = baskets.bitmaps(needed) if rows is None else _project(baskets, rows, needed)[0]
     slot = np.full(baskets.n_items, -1, dtype=np.int64)
     slot[needed] = np.arange(needed.size)
@@ -697,21 +719,26 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
         if cut_cost + work * n_first / 64 < work * n_words:
             # every basket of the cut holds ``first``: drop it from the prefixes
             local = _bit_positions(bits[slot[first]])
-            items = np.unique(np.concatenate(
-                [np.array(groups[g][0][1:], dtype=np.int64) for g in members]
-                + [groups[g][1] for g in members]))
+            items = np.unique(
+                np.concatenate(
+                    [np.array(groups[g][0][1:], dtype=np.int64) for g in members]
+                    + [groups[g][1] for g in members]
+                )
+            )
             sub, _ = _project(baskets, local if rows is None else rows[local], items)
             sub_slot = np.full(baskets.n_items, -1, dtype=np.int64)
             sub_slot[items] = np.arange(items.size)
-            _count_under(sub, sub_slot, [(groups[g][0][1:], groups[g][1]) for g in members],
-                         members, out)
+            _count_under(
+                sub, sub_slot, [(groups[g][0][1:], groups[g][1]) for g in members], members, out
+            )
         else:
             _count_under(bits, slot, [groups[g] for g in members], members, out)
     return np.concatenate(out)  # type: ignore[arg-type]
 
 
-def _count_under(bits: np.ndarray, slot: np.ndarray, groups: list, where: list[int],
-                 out: list) -> None:
+def _count_under(
+    bits: np.ndarray, slot: np.ndarray, groups: list, where: list[int], out: list
+) -> None:
     """Counts of prefix + (e,) for the groups (prefix, ext), put at ``out[where[k]]``."""
     prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
     for (prefix, ext), g in zip(groups, where, strict=True):
@@ -824,8 +851,16 @@ def _lookup(ref: np.ndarray, query: np.ndarray, base: int) -> np.ndarray:
     return np.where(rk[hit] == qk, hit, -1)
 
 
-def _productive(ante: np.ndarray, size: np.ndarray, cons: np.ndarray, n: int,
-                n_x: np.ndarray, n_y: np.ndarray, n_xy: np.ndarray, pad: int) -> np.ndarray:
+def _productive(
+    ante: np.ndarray,
+    size: np.ndarray,
+    cons: np.ndarray,
+    n: int,
+    n_x: np.ndarray,
+    n_y: np.ndarray,
+    n_xy: np.ndarray,
+    pad: int,
+) -> np.ndarray:
     """Confidence strictly above that of every rule X' -> y, X' a proper subset of X (empty
     included). Exact: fractions are compared by cross-multiplying integer counts."""
     m = ante.shape[0]
@@ -1116,13 +1151,18 @@ def plan_search(
     n = baskets.n_baskets
     n_y = int(baskets.item_counts[y])
     p_y = n_y / max(n, 1)
+
     def over(floor: int, depth: int) -> bool:
         nodes = estimate_nodes(cond_counts, n_y, floor, depth)
         plan.estimated_nodes = nodes
         return nodes > budget or estimate_rules(cond_counts, n_y, floor, depth) > rule_budget
 
-    plan = SearchPlan(min_count, max_antecedent, int((cond_counts >= min_count).sum()),
-                      estimate_nodes(cond_counts, n_y, min_count, max_antecedent))
+    plan = SearchPlan(
+        min_count,
+        max_antecedent,
+        int((cond_counts >= min_count).sum()),
+        estimate_nodes(cond_counts, n_y, min_count, max_antecedent),
+    )
     first_rules = estimate_rules(cond_counts, n_y, min_count, max_antecedent)
     if not over(min_count, max_antecedent):
         return plan
@@ -1154,9 +1194,12 @@ def plan_search(
         plan.min_count = raised
         plan.notes.append(f"a floor of {raised:,} co-purchases per rule")
     plan.items = int((cond_counts >= plan.min_count).sum())
-    plan.notes.insert(0, f"narrowed to stay within {budget:,} counted itemsets and "
-                         f"{rule_budget:,} rules (about {first:,} and {first_rules:,} estimated "
-                         "at the requested settings)")
+    plan.notes.insert(
+        0,
+        f"narrowed to stay within {budget:,} counted itemsets and "
+        f"{rule_budget:,} rules (about {first:,} and {first_rules:,} estimated "
+        "at the requested settings)",
+    )
     return plan
 
 
@@ -1203,8 +1246,18 @@ def target_rules(
     cond_bits, cond_counts = _project(baskets, holding, others)
     depth = int(max_antecedent)
     if budget is not None:
-        plan = plan_search(baskets, y, cond_counts, others, min_count, depth, sort_by=sort_by,
-                           budget=budget, keep_top=keep_top, rule_budget=rule_budget)
+        plan = plan_search(
+            baskets,
+            y,
+            cond_counts,
+            others,
+            min_count,
+            depth,
+            sort_by=sort_by,
+            budget=budget,
+            keep_top=keep_top,
+            rule_budget=rule_budget,
+        )
         if plan.notes and notes is not None:
             notes.append("; ".join(plan.notes) + "; the correction counts the rules examined")
         min_count, depth = plan.min_count, plan.max_antecedent
@@ -1212,8 +1265,17 @@ def target_rules(
     keep = keep[np.argsort(cond_counts[keep], kind="stable")]
     # every X with n(X+y) >= min_count: mined inside the baskets that hold y
     found = _Found()
-    _search(baskets, holding, cond_bits[keep], others[keep], cond_counts[keep], min_count,
-            depth, found, pair_leaves=False)
+    _search(
+        baskets,
+        holding,
+        cond_bits[keep],
+        others[keep],
+        cond_counts[keep],
+        min_count,
+        depth,
+        found,
+        pair_leaves=False,
+    )
     if budget is not None and found.size() > rule_budget:
         # the estimate assumed independence; real co-purchases cluster: keep the rule_budget
         # itemsets bought together most often, and say so
@@ -1223,11 +1285,14 @@ def target_rules(
         before = counts.size
         found.at_least(floor)
         if notes is not None:
-            line = (f"kept the {found.size():,} of {before:,} candidate rules with at least "
-                    f"{floor:,} co-purchases (at most {rule_budget:,} rules)")
+            line = (
+                f"kept the {found.size():,} of {before:,} candidate rules with at least "
+                f"{floor:,} co-purchases (at most {rule_budget:,} rules)"
+            )
             if notes:
-                notes[-1] = notes[-1].replace("; the correction counts", f"; {line}; the "
-                                              "correction counts")
+                notes[-1] = notes[-1].replace(
+                    "; the correction counts", f"; {line}; the correction counts"
+                )
             else:
                 notes.append(f"narrowed: {line}; the correction counts the rules examined")
     ante, size, n_xy = found.matrix(baskets.n_items)
@@ -1241,15 +1306,31 @@ def target_rules(
         n_x = n_xy + _count_groups(baskets, found, lacking)
     m = ante.shape[0]
     return _assemble(
-        ante, size, np.full(m, y, dtype=np.int64), n, n_x, np.full(m, n_y, dtype=np.int64),
-        n_xy, baskets.labels, min_confidence=min_confidence, min_lift=min_lift,
-        keep_unproductive=keep_unproductive, correction=correction, alpha=alpha, sort_by=sort_by,
+        ante,
+        size,
+        np.full(m, y, dtype=np.int64),
+        n,
+        n_x,
+        np.full(m, n_y, dtype=np.int64),
+        n_xy,
+        baskets.labels,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        sort_by=sort_by,
     )
 
 
 def _rules_from_matrix(
-    ids: np.ndarray, sizes: np.ndarray, counts: np.ndarray, n: int, labels: np.ndarray,
-    consequents: np.ndarray | None, **options: Any,
+    ids: np.ndarray,
+    sizes: np.ndarray,
+    counts: np.ndarray,
+    n: int,
+    labels: np.ndarray,
+    consequents: np.ndarray | None,
+    **options: Any,
 ) -> pl.DataFrame:
     """Every rule Z minus {y} -> y for y in Z from a subset-closed table of itemset counts."""
     pad = labels.size
@@ -1332,9 +1413,19 @@ def rules_from_itemsets(
     if consequents is not None:
         cons = np.array([code[c] for c in map(str, consequents) if c in code], dtype=np.int64)
     return _rules_from_matrix(
-        ids, sizes, counts, int(n_baskets), lab, cons, min_confidence=min_confidence,
-        min_lift=min_lift, keep_unproductive=keep_unproductive, correction=correction,
-        alpha=alpha, sort_by=sort_by, top=top,
+        ids,
+        sizes,
+        counts,
+        int(n_baskets),
+        lab,
+        cons,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        sort_by=sort_by,
+        top=top,
     )
 
 
@@ -1364,9 +1455,19 @@ def top_rules(
         raise InputError(f"max_size must be at least 2 for rules, got {max_size}.")
     ids, sizes, counts = _mine_all(baskets, mc, int(max_size)).matrix(baskets.n_items)
     return _rules_from_matrix(
-        ids, sizes, counts, n, baskets.labels, None, min_confidence=min_confidence,
-        min_lift=min_lift, keep_unproductive=keep_unproductive, correction=correction,
-        alpha=alpha, sort_by=measure, top=top,
+        ids,
+        sizes,
+        counts,
+        n,
+        baskets.labels,
+        None,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        sort_by=measure,
+        top=top,
     )
 
 
@@ -1409,7 +1510,18 @@ def rules_from_counts(
     cons = np.array([code[c] for c in conss], dtype=np.int64)
     col = {c: counts[c].cast(pl.Int64).to_numpy() for c in need[2:]}
     return _assemble(
-        ante, size, cons, int(n_baskets), col["n_antecedent"], col["n_consequent"], col["n_both"],
-        np.array(labels, dtype=object), min_confidence=min_confidence, min_lift=min_lift,
-        keep_unproductive=keep_unproductive, correction=correction, alpha=alpha, sort_by=sort_by,
+        ante,
+        size,
+        cons,
+        int(n_baskets),
+        col["n_antecedent"],
+        col["n_consequent"],
+        col["n_both"],
+        np.array(labels, dtype=object),
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        sort_by=sort_by,
     )

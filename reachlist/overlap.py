@@ -100,8 +100,7 @@ def promotion_overlap(
         )
     if not 2 <= len(names) <= MAX_ITEMS:
         raise InputError(
-            f"Expected 2 to {MAX_ITEMS} different items planned for promotion, found "
-            f"{len(names)}.",
+            f"Expected 2 to {MAX_ITEMS} different items planned for promotion, found {len(names)}.",
             hint="name each item once, for example `reachlist overlap SKU1 SKU2 SKU3`",
         )
     level: Level = targets[0].level
@@ -192,4 +191,3 @@ def _test_sets(
     ]
     sets.sort(key=lambda s: (not s.significant, s.p_adjusted, -s.lift, s.items))
     return tuple(sets)
-

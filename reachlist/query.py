@@ -47,8 +47,7 @@ class Dialect:
 
 
 DUCKDB = Dialect("duckdb", placeholder="dollar")
-POSTGRES = Dialect("postgresql", placeholder="colon", cte_hint="NOT MATERIALIZED",
-                   text_type="TEXT")
+POSTGRES = Dialect("postgresql", placeholder="colon", cte_hint="NOT MATERIALIZED", text_type="TEXT")
 GENERIC = Dialect("generic", placeholder="colon")
 
 
@@ -121,9 +120,7 @@ def views_sql(mapping: Mapping, tables: Iterable[str], dialect: Dialect) -> list
             continue
         cols = ", ".join(f"{column_sql(tmap, c)} AS {c}" for c in CONTRACT[name].column_names)
         hint = f" {dialect.cte_hint}" if dialect.cte_hint else ""
-        views.append(
-            f"{name} AS{hint} (SELECT {cols} FROM {quote_qualified(tmap.physical)})"
-        )
+        views.append(f"{name} AS{hint} (SELECT {cols} FROM {quote_qualified(tmap.physical)})")
     return views
 
 
@@ -152,7 +149,7 @@ def render(query: Query, dialect: Dialect, mapping: Mapping) -> Rendered:
         prelude = ",\n     ".join(views)
         m = _LEADING_WITH.match(sql)
         if m:
-            sql = f"{m.group(1)}WITH {prelude},\n{sql[m.end():]}"
+            sql = f"{m.group(1)}WITH {prelude},\n{sql[m.end() :]}"
         else:
             sql = f"WITH {prelude}\n{sql}"
     missing = [n for n in _PARAM.findall(_strip_comments(sql)) if n not in params]

@@ -80,24 +80,37 @@ class CampaignResults:
             return "No buyers in either group yet, so the holdout cannot tell anything."
         r = self.ratio
         if r.low > 1:
-            return (f"The holdout was big enough: treated customers bought more often "
-                    f"(x{r.estimate:.2f}, 95% CI x{r.low:.2f} to x{r.high:.2f}).")
+            return (
+                f"The holdout was big enough: treated customers bought more often "
+                f"(x{r.estimate:.2f}, 95% CI x{r.low:.2f} to x{r.high:.2f})."
+            )
         if r.high < 1:
-            return (f"The holdout was big enough: treated customers bought less often "
-                    f"(x{r.estimate:.2f}, 95% CI x{r.low:.2f} to x{r.high:.2f}).")
+            return (
+                f"The holdout was big enough: treated customers bought less often "
+                f"(x{r.estimate:.2f}, 95% CI x{r.low:.2f} to x{r.high:.2f})."
+            )
         d = self.detectable
         if d is not None and math.isfinite(d.relative):
-            return (f"The holdout was too small to tell: with {self.holdout.customers:,} held out "
-                    f"it could only detect an uplift of +{d.relative:.0%} or more (80% power), "
-                    f"and the observed ratio x{r.estimate:.2f} has a 95% CI of x{r.low:.2f} to "
-                    f"x{_num(r.high)}.")
-        return (f"The holdout could not tell: the 95% CI of the ratio, x{r.low:.2f} to "
-                f"x{_num(r.high)}, includes no effect.")
+            return (
+                f"The holdout was too small to tell: with {self.holdout.customers:,} held out "
+                f"it could only detect an uplift of +{d.relative:.0%} or more (80% power), "
+                f"and the observed ratio x{r.estimate:.2f} has a 95% CI of x{r.low:.2f} to "
+                f"x{_num(r.high)}."
+            )
+        return (
+            f"The holdout could not tell: the 95% CI of the ratio, x{r.low:.2f} to "
+            f"x{_num(r.high)}, includes no effect."
+        )
 
     def as_dict(self) -> dict[str, Any]:
         def grp(g: GroupTakeUp) -> dict[str, Any]:
-            return {"customers": g.customers, "buyers": g.buyers, "units": g.units,
-                    "rate": g.rate.estimate, "rate_ci": [g.rate.low, g.rate.high]}
+            return {
+                "customers": g.customers,
+                "buyers": g.buyers,
+                "units": g.units,
+                "rate": g.rate.estimate,
+                "rate_ci": [g.rate.low, g.rate.high],
+            }
 
         p = self.predicted
         return {
@@ -110,7 +123,8 @@ class CampaignResults:
             "holdout": grp(self.holdout),
             "difference": None if self.difference is None else list(self.difference),
             "relative_uplift": None if self.ratio is None else list(self.ratio),
-            "minimum_detectable_uplift": None if self.detectable is None
+            "minimum_detectable_uplift": None
+            if self.detectable is None
             else self.detectable.relative,
             "predicted_buyers": None if p is None else p.expected.expected,
             "predicted_interval": None if p is None else [p.expected.low, p.expected.high],
@@ -147,8 +161,9 @@ def campaign_results(
 ) -> CampaignResults:
     """Take-up in treatment and holdout within ``horizon_days`` of each contact's send time."""
     if horizon_days < 1:
-        raise InputError(f"Expected a horizon of at least 1 day, found {horizon_days}.",
-                         hint="pass --horizon 30")
+        raise InputError(
+            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+        )
     record = log.campaign(campaign_id)
     if record is None:
         raise InputError(
@@ -159,21 +174,26 @@ def campaign_results(
         )
     target = parse_target(str(record["target"]))
     contacts = ids.normalise_frame(log.contacts(campaign_id)).select(
-        "customer_id", "contact_group",
+        "customer_id",
+        "contact_group",
         pl.col("contacted_at").cast(pl.Datetime("us")),
     )
     if contacts.height == 0:
-        raise EmptyResultError(f"Expected contacts for campaign {campaign_id!r}, found none.",
-                               hint="rebuild the campaign with `reachlist build`")
+        raise EmptyResultError(
+            f"Expected contacts for campaign {campaign_id!r}, found none.",
+            hint="rebuild the campaign with `reachlist build`",
+        )
     horizon = timedelta(days=horizon_days)
     bought = []
     for (sent,) in contacts.select("contacted_at").unique().iter_rows():
         buyers = wh.fetch(buyers_query(target, sent, sent + horizon))
-        bought.append(buyers.select(
-            pl.col("customer_id").cast(contacts.schema["customer_id"], strict=False),
-            pl.col("units").cast(pl.Float64),
-            pl.lit(sent, dtype=pl.Datetime("us")).alias("contacted_at"),
-        ))
+        bought.append(
+            buyers.select(
+                pl.col("customer_id").cast(contacts.schema["customer_id"], strict=False),
+                pl.col("units").cast(pl.Float64),
+                pl.lit(sent, dtype=pl.Datetime("us")).alias("contacted_at"),
+            )
+        )
     joined = contacts.join(pl.concat(bought), on=["customer_id", "contacted_at"], how="left")
     first_sent = contacts["contacted_at"].min()
     last_sent = contacts["contacted_at"].max()
@@ -198,7 +218,8 @@ def campaign_results(
         base = h.buyers / h.customers if h.buyers else max(t.buyers, 1) / (t.customers + 1)
         try:
             detectable = minimum_detectable_uplift(
-                t.customers + h.customers, h.customers / (t.customers + h.customers),
+                t.customers + h.customers,
+                h.customers / (t.customers + h.customers),
                 min(max(base, 1e-6), 1 - 1e-6),
             )
         except ReachlistError:
@@ -212,12 +233,27 @@ def campaign_results(
             as_of = min(as_of, spec.lookback.until)
         treated_ids = joined.filter(pl.col("contact_group") == "treatment")["customer_id"]
         try:
-            predicted = estimate_takeup(wh, target, spec=spec, customers=treated_ids,
-                                        horizon_days=horizon_days, as_of=as_of)
-            note = (f"estimated as of {as_of:%Y-%m-%d} for the treatment group, from "
-                    f"{predicted.expected.n_backtests} backtests; it forecasts take-up without "
-                    "the offer, so the holdout's rate is its fair comparison")
+            predicted = estimate_takeup(
+                wh, target, spec=spec, customers=treated_ids, horizon_days=horizon_days, as_of=as_of
+            )
+            note = (
+                f"estimated as of {as_of:%Y-%m-%d} for the treatment group, from "
+                f"{predicted.expected.n_backtests} backtests; it forecasts take-up without "
+                "the offer, so the holdout's rate is its fair comparison"
+            )
         except ReachlistError as exc:
             note = f"no estimate: {exc.message}"
-    return CampaignResults(campaign_id, target, first_sent, horizon_days, complete, t, h, diff,
-                           ratio, detectable, predicted, note)
+    return CampaignResults(
+        campaign_id,
+        target,
+        first_sent,
+        horizon_days,
+        complete,
+        t,
+        h,
+        diff,
+        ratio,
+        detectable,
+        predicted,
+        note,
+    )

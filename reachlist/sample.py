@@ -82,285 +82,495 @@ _DEPARTMENTS = {
 }
 
 _CATEGORIES: list[tuple[str, str, float, bool, list[tuple[str, float, float, str]]]] = [
-    ("SG", "Vegetable Seeds", 1.3, True, [
-        ("Cherry tomato seeds, mixed colours", 2.49, 1.4, ""),
-        ("Runner bean seeds", 2.29, 1.0, ""),
-        ("Salad leaf seed mix", 1.99, 1.2, ""),
-        ("Early carrot seeds", 1.89, 0.8, ""),
-        ("Courgette seeds", 2.19, 0.8, ""),
-        ("Chilli pepper seeds, mild", 2.49, 0.7, ""),
-        ("Sweetcorn seeds", 2.29, 0.6, ""),
-    ]),
-    ("SG", "Flower Seeds", 1.0, True, [
-        ("Giant sunflower seeds", 1.99, 1.2, ""),
-        ("Sweet pea seeds, scented mix", 2.49, 1.0, ""),
-        ("Wildflower meadow seed mix 100g", 6.99, 0.9, ""),
-        ("Cosmos seeds", 1.99, 0.7, ""),
-        ("Nasturtium seeds", 1.79, 0.6, ""),
-        ("Field poppy seed mix", 1.99, 0.5, ""),
-    ]),
-    ("SG", "Bulbs & Plug Plants", 0.9, True, [
-        ("Spring bulb mix, 40 bulbs", 9.99, 1.0, ""),
-        ("Tulip bulbs, 20", 7.99, 1.0, ""),
-        ("Daffodil bulbs, 25", 6.99, 0.9, ""),
-        ("Bedding plug plants, 24", 12.99, 1.1, ""),
-        ("Strawberry plants, 6", 11.99, 0.7, ""),
-        ("Allium bulbs, 10", 8.49, 0.5, ""),
-    ]),
-    ("SG", "Propagation", 2.0, False, [
-        ("Windowsill propagator, 24-cell", 14.99, 3.2, ""),  # rule heated-mat antecedent
-        ("Seed trays, 10-pack", 6.49, 1.2, ""),
-        ("Root trainer cells, 32", 9.99, 0.6, ""),
-        ("Heated seedling mat 50 x 25 cm", 24.99, 0.0, ""),  # rule heated-mat target
-        ("Plant labels, 100", 2.99, 0.9, ""),
-        ("Dibber and widger set", 4.49, 0.5, ""),
-        ("Propagator vent lid, large", 5.99, 0.4, ""),
-    ]),
-    ("SG", "Indoor Growing", 0.6, False, [
-        ("LED grow light bar 60 cm", 34.99, 0.8, ""),
-        ("Herb windowsill kit", 12.99, 1.0, ""),
-        ("Hydroponic starter kit", 49.99, 0.4, ""),
-        ("Mushroom growing kit", 16.99, 0.5, ""),
-        ("Microgreens growing kit", 14.99, 0.8, "R2026-03-16"),
-    ]),
-    ("PC", "Compost & Soil", 2.2, True, [
-        ("Seed and cutting compost 40 L", 7.49, 2.8, ""),  # rule heated-mat antecedent
-        ("Multi-purpose compost 60 L", 8.99, 2.0, ""),
-        ("Peat-free compost 50 L", 9.49, 1.3, ""),
-        ("Topsoil 30 L", 4.99, 0.8, ""),
-        ("Ericaceous compost 40 L", 7.99, 0.5, ""),
-        ("Well-rotted manure 50 L", 6.99, 0.7, ""),
-        ("Horticultural grit 20 kg", 6.49, 0.4, ""),
-    ]),
-    ("PC", "Plant Feed", 1.1, True, [
-        ("Tomato feed 1 L", 5.49, 1.2, ""),
-        ("All-purpose liquid feed 1 L", 4.99, 1.1, ""),
-        ("Fish, blood and bone 3 kg", 7.99, 0.8, ""),
-        ("Slow-release feed granules 1 kg", 6.99, 0.7, ""),
-        ("Rose and shrub feed 1 kg", 6.49, 0.6, ""),
-        ("Seaweed plant tonic 1 L", 5.99, 0.5, ""),
-    ]),
-    ("PC", "Houseplant Care", 0.9, True, [
-        ("Houseplant feed 500 ml", 4.49, 1.5, ""),  # rule indoor-pots antecedent
-        ("Houseplant potting mix 10 L", 5.99, 1.1, ""),
-        ("Orchid feed 250 ml", 4.99, 0.6, ""),
-        ("Leaf shine spray", 3.99, 0.5, ""),
-        ("Plant mister 500 ml", 6.99, 0.6, ""),
-        ("Cactus and succulent compost 5 L", 4.49, 0.5, ""),
-    ]),
-    ("PC", "Pest & Disease Control", 0.8, True, [
-        ("Organic slug pellets 1 kg", 6.99, 1.2, ""),
-        ("Sticky fly traps, 10", 4.49, 0.9, ""),
-        ("Copper slug tape 4 m", 5.99, 0.7, ""),
-        ("Fungus gnat traps", 4.99, 0.5, ""),
-        ("Beneficial nematode slug control", 12.99, 0.6, "R2026-02-23"),
-        ("Plant-oil bug spray 1 L", 6.49, 0.8, ""),
-    ]),
-    ("PC", "Lawn Care", 0.9, True, [
-        ("Hard-wearing lawn seed 1 kg", 9.99, 1.2, ""),
-        ("Lawn feed and weed 3 kg", 12.99, 1.0, ""),
-        ("Lawn sand 10 kg", 8.99, 0.5, ""),
-        ("Moss remover granules 5 kg", 11.99, 0.7, ""),
-        ("Lawn patch repair kit", 7.99, 0.7, ""),
-        ("Lawn edging strip 10 m", 9.49, 0.5, ""),
-    ]),
-    ("PC", "Weed Control & Mulch", 1.0, False, [
-        ("Gas weed burner wand", 27.99, 2.4, ""),  # rule butane antecedent
-        ("Weed-control fabric 10 m", 8.99, 1.0, ""),
-        ("Long-handled weed puller", 14.99, 0.8, ""),
-        ("Bark mulch 70 L", 7.49, 1.1, ""),
-        ("Acetic-acid path weeder 1 L", 5.99, 0.7, ""),
-        ("Paving crack brush", 4.99, 0.6, ""),
-    ]),
-    ("TW", "Hand Tools", 1.1, False, [
-        ("Hand trowel", 7.99, 1.3, ""),
-        ("Hand fork", 7.99, 1.0, ""),
-        ("Folding pruning knife", 12.99, 0.5, "A"),
-        ("Grafting knife", 14.99, 0.3, "A"),
-        ("Kneeling pad", 5.99, 0.9, ""),
-        ("Gardening gloves, medium", 4.99, 1.1, ""),
-        ("Gardening gloves, large", 4.99, 1.0, ""),
-        ("Bulb planter", 6.49, 0.5, ""),
-    ]),
-    ("TW", "Digging & Raking", 0.7, False, [
-        ("Border spade", 24.99, 1.0, ""),
-        ("Digging fork", 24.99, 0.9, ""),
-        ("Soil rake", 17.99, 0.8, ""),
-        ("Leaf rake", 12.99, 1.0, ""),
-        ("Draw hoe", 14.99, 0.5, ""),
-        ("Push hoe", 14.99, 0.6, ""),
-    ]),
-    ("TW", "Cutting & Pruning", 0.8, False, [
-        ("Bypass secateurs", 14.99, 1.4, ""),
-        ("Anvil loppers", 24.99, 0.8, ""),
-        ("Folding pruning saw", 16.99, 0.6, ""),
-        ("Hedge shears", 19.99, 0.8, ""),
-        ("Grass shears", 12.99, 0.6, ""),
-        ("Blade sharpening stone", 6.99, 0.4, ""),
-    ]),
-    ("TW", "Hoses & Fittings", 1.0, False, [
-        ("Garden hose 30 m", 24.99, 1.2, ""),
-        ("Hose reel cart", 39.99, 0.7, ""),
-        ("Spray gun, 8 patterns", 9.99, 1.1, ""),
-        ("Hose connector set", 7.49, 1.0, ""),
-        ("Soaker hose 15 m", 14.99, 0.5, ""),
-        ("Outdoor tap kit", 19.99, 0.4, ""),
-    ]),
-    ("TW", "Watering & Irrigation", 0.9, False, [
-        ("Watering can 10 L", 9.99, 1.3, ""),
-        ("Indoor watering can 1.5 L", 6.99, 0.8, ""),
-        ("Drip irrigation kit", 29.99, 0.5, ""),
-        ("Water butt 200 L", 44.99, 0.6, ""),
-        ("Water butt diverter kit", 14.99, 0.4, ""),
-        ("Terracotta watering spikes, 4", 8.99, 0.5, ""),
-    ]),
-    ("TW", "Power Tools", 1.1, False, [
-        ("Electric pressure washer 1800 W", 119.00, 2.0, ""),  # rule patio-cleaner antecedent
-        ("Cordless hedge trimmer", 89.00, 0.8, ""),
-        ("Electric lawn mower 33 cm", 99.00, 0.9, ""),
-        ("Grass trimmer 500 W", 44.99, 0.9, ""),
-        ("Leaf blower vacuum", 59.99, 0.6, ""),
-        ("Pressure washer patio brush head", 24.99, 0.4, ""),
-    ]),
-    ("TW", "Fuels & Garden Gas", 0.5, True, [
-        ("Butane gas refill cans, 4-pack", 9.99, 0.0, "A"),  # rule butane target
-        ("Barbecue lighter fluid 1 L", 4.49, 1.0, "A"),
-        ("Methylated spirit 1 L", 4.99, 0.6, "A"),
-        ("White spirit 2 L", 6.49, 0.7, "A"),
-        ("Jerry can 5 L", 12.99, 0.4, ""),
-    ]),
-    ("GP", "Greenhouses & Cold Frames", 0.9, False, [
-        ("Mini greenhouse, 4 tier", 39.99, 2.2, ""),  # rule frost-fleece antecedent
-        ("Walk-in polytunnel 3 m", 149.00, 0.4, ""),
-        ("Timber cold frame", 69.99, 0.6, ""),
-        ("Greenhouse staging shelves", 34.99, 0.5, ""),
-        ("Replacement greenhouse cover", 19.99, 0.5, ""),
-        ("Max-min greenhouse thermometer", 8.99, 0.7, ""),
-    ]),
-    ("GP", "Frost Protection", 0.6, False, [
-        ("Frost fleece 2 m x 10 m", 8.99, 0.0, ""),  # rule frost-fleece target (surplus stock)
-        ("Fleece plant jackets, 3", 7.99, 1.0, ""),
-        ("Cloche tunnel 3 m", 14.99, 0.7, ""),
-        ("Bubble insulation 10 m", 12.99, 0.6, ""),
-        ("Hessian pot wrap 5 m", 6.99, 0.5, ""),
-    ]),
-    ("GP", "Supports & Netting", 0.8, True, [
-        ("Bamboo canes 1.8 m, 20", 6.99, 1.3, ""),
-        ("Plant ties and clips set", 3.99, 1.0, ""),
-        ("Pea and bean netting", 5.99, 0.7, ""),
-        ("Metal obelisk plant support", 19.99, 0.5, ""),
-        ("Tomato spiral supports, 5", 9.99, 0.6, ""),
-        ("Fruit cage netting 4 m", 12.99, 0.4, ""),
-    ]),
-    ("OL", "Outdoor Pots & Planters", 1.2, False, [
-        ("Terracotta pot 30 cm", 12.99, 1.3, ""),
-        ("Glazed pot 40 cm", 29.99, 0.8, ""),
-        ("Trough planter 80 cm", 24.99, 0.7, ""),
-        ("Raised bed kit 1.2 m", 49.99, 0.6, ""),
-        ("Hanging basket 35 cm", 9.99, 1.0, ""),
-        ("Window box 60 cm", 11.99, 0.8, ""),
-        ("Grow bags, 3-pack", 8.99, 1.0, ""),
-    ]),
-    ("OL", "Indoor Pots & Planters", 0.0, False, [  # rule indoor-pots target category
-        ("Ceramic houseplant pot 14 cm", 8.99, 1.4, ""),
-        ("Plant pot saucers, 5", 4.99, 0.9, ""),
-        ("Macrame plant hanger", 9.99, 0.6, ""),
-        ("Tiered plant stand", 29.99, 0.5, ""),
-        ("Decorative cachepot 18 cm", 14.99, 0.8, ""),
-        ("Self-watering planter 30 cm", 27.99, 0.0, "X"),  # brand new: no order history
-    ]),
-    ("OL", "Barbecue & Outdoor Cooking", 0.8, False, [
-        ("Charcoal kettle barbecue", 79.00, 0.6, ""),
-        ("Lumpwood charcoal 10 kg", 14.99, 1.3, ""),
-        ("Barbecue tool set", 19.99, 0.7, ""),
-        ("Barbecue cover", 16.99, 0.5, ""),
-        ("Pizza stone 33 cm", 19.99, 0.4, ""),
-        ("Natural firelighters, 48", 4.99, 1.0, ""),
-    ]),
-    ("OL", "Garden Furniture", 0.6, False, [
-        ("Folding bistro set", 99.00, 0.6, ""),
-        ("Two-seat garden bench", 129.00, 0.4, ""),
-        ("Reclining sun lounger", 59.99, 0.5, ""),
-        ("Parasol 2.5 m", 39.99, 0.6, ""),
-        ("Furniture cover, large", 24.99, 0.7, ""),
-        ("Seat cushions, 2", 19.99, 0.8, ""),
-    ]),
-    ("OL", "Patio & Decking Care", 0.7, True, [
-        ("Patio cleaner concentrate 5 L", 14.99, 0.0, ""),  # rule patio-cleaner target
-        ("Decking oil 2.5 L", 19.99, 1.0, ""),
-        ("Stiff decking brush", 12.99, 0.8, ""),
-        ("Fence paint 5 L", 17.99, 1.1, ""),
-        ("Patio joint filler", 11.99, 0.5, ""),
-        ("Green algae remover 1 L", 6.99, 0.8, ""),
-    ]),
-    ("OL", "Outdoor Lighting", 0.7, False, [
-        ("Solar stake lights, 6", 19.99, 1.2, ""),
-        ("Solar string lights 10 m", 14.99, 0.9, "R2026-05-04"),
-        ("Motion-sensor wall light", 24.99, 0.6, ""),
-        ("Solar lantern", 12.99, 0.8, ""),
-        ("Festoon lights 10 m", 29.99, 0.6, ""),
-    ]),
-    ("WL", "Bird Food", 1.2, True, [  # rule bird-feeders antecedent category
-        ("Sunflower hearts 2 kg", 9.99, 1.4, ""),
-        ("Suet fat balls, 50", 11.99, 1.3, ""),
-        ("Mixed wild bird seed 4 kg", 8.99, 1.2, ""),
-        ("Nyjer seed 1 kg", 6.49, 0.5, ""),
-        ("Suet pellets 1 kg", 5.99, 0.7, ""),
-        ("Dried mealworms 500 g", 9.49, 0.6, ""),
-    ]),
-    ("WL", "Bird Feeders & Tables", 0.0, False, [  # rule bird-feeders target category
-        ("Hanging seed feeder", 12.99, 1.4, ""),
-        ("Fat ball feeder", 8.99, 1.2, ""),
-        ("Timber bird table", 39.99, 0.6, ""),
-        ("Ground feeding tray", 9.99, 0.6, ""),
-        ("Squirrel-resistant feeder", 24.99, 0.7, ""),
-        ("Window suction feeder", 11.99, 0.5, ""),
-    ]),
-    ("WL", "Wildlife Homes", 0.5, False, [
-        ("Bee hotel", 14.99, 1.0, ""),
-        ("Hedgehog house", 34.99, 0.6, ""),
-        ("Nest box, 32 mm hole", 14.99, 0.9, ""),
-        ("Stone-effect bird bath", 29.99, 0.6, ""),
-        ("Bat box", 19.99, 0.3, ""),
-        ("Butterfly feeding station", 12.99, 0.4, ""),
-    ]),
-    ("HH", "Cleaning", 1.0, True, [
-        ("Multi-surface cleaner 750 ml", 2.49, 1.3, ""),
-        ("Microfibre cloths, 10", 4.99, 1.1, ""),
-        ("Outdoor yard broom", 14.99, 0.7, ""),
-        ("Window cleaning kit", 12.99, 0.5, ""),
-        ("Spin mop and bucket", 24.99, 0.5, ""),
-        ("Disinfectant 2 L", 3.99, 0.9, ""),
-    ]),
-    ("HH", "Indoor Lighting", 0.7, False, [
-        ("LED bulbs E27, 4-pack", 9.99, 1.3, ""),
-        ("LED spotlights GU10, 4-pack", 11.99, 0.9, ""),
-        ("Adjustable desk lamp", 24.99, 0.5, ""),
-        ("Rechargeable torch", 14.99, 0.7, ""),
-        ("Plug-in night lights, 2", 7.99, 0.5, ""),
-    ]),
-    ("HH", "Storage & Organisation", 0.6, False, [
-        ("Storage box 45 L", 9.99, 1.2, ""),
-        ("Wall-mounted tool rack", 19.99, 0.7, ""),
-        ("Shed shelving unit", 34.99, 0.5, ""),
-        ("Stacking crates, 3", 14.99, 0.8, ""),
-        ("Heavy-duty wall hooks, 6", 8.99, 0.7, ""),
-    ]),
-    ("HH", "Kitchen & Home", 0.7, False, [
-        ("Kitchen knife set, 5 piece", 39.99, 0.5, "A"),
-        ("Kitchen compost caddy 5 L", 9.99, 1.1, ""),
-        ("Enamel bread bin", 24.99, 0.5, ""),
-        ("Fresh herb keeper", 12.99, 0.5, ""),
-        ("Chopping board set", 19.99, 0.7, ""),
-    ]),
-    ("HH", "Health & Wellbeing", 0.5, True, [  # the one sensitive category
-        ("Hay-fever relief nasal spray", 7.99, 1.2, ""),
-        ("One-a-day antihistamine tablets, 30", 5.99, 1.1, ""),
-        ("Knee support brace", 14.99, 0.6, ""),
-        ("Wrist support", 9.99, 0.5, ""),
-        ("Insect bite relief gel", 4.99, 0.8, ""),
-        ("Back support belt", 19.99, 0.4, ""),
-    ]),
+    (
+        "SG",
+        "Vegetable Seeds",
+        1.3,
+        True,
+        [
+            ("Cherry tomato seeds, mixed colours", 2.49, 1.4, ""),
+            ("Runner bean seeds", 2.29, 1.0, ""),
+            ("Salad leaf seed mix", 1.99, 1.2, ""),
+            ("Early carrot seeds", 1.89, 0.8, ""),
+            ("Courgette seeds", 2.19, 0.8, ""),
+            ("Chilli pepper seeds, mild", 2.49, 0.7, ""),
+            ("Sweetcorn seeds", 2.29, 0.6, ""),
+        ],
+    ),
+    (
+        "SG",
+        "Flower Seeds",
+        1.0,
+        True,
+        [
+            ("Giant sunflower seeds", 1.99, 1.2, ""),
+            ("Sweet pea seeds, scented mix", 2.49, 1.0, ""),
+            ("Wildflower meadow seed mix 100g", 6.99, 0.9, ""),
+            ("Cosmos seeds", 1.99, 0.7, ""),
+            ("Nasturtium seeds", 1.79, 0.6, ""),
+            ("Field poppy seed mix", 1.99, 0.5, ""),
+        ],
+    ),
+    (
+        "SG",
+        "Bulbs & Plug Plants",
+        0.9,
+        True,
+        [
+            ("Spring bulb mix, 40 bulbs", 9.99, 1.0, ""),
+            ("Tulip bulbs, 20", 7.99, 1.0, ""),
+            ("Daffodil bulbs, 25", 6.99, 0.9, ""),
+            ("Bedding plug plants, 24", 12.99, 1.1, ""),
+            ("Strawberry plants, 6", 11.99, 0.7, ""),
+            ("Allium bulbs, 10", 8.49, 0.5, ""),
+        ],
+    ),
+    (
+        "SG",
+        "Propagation",
+        2.0,
+        False,
+        [
+            ("Windowsill propagator, 24-cell", 14.99, 3.2, ""),  # rule heated-mat antecedent
+            ("Seed trays, 10-pack", 6.49, 1.2, ""),
+            ("Root trainer cells, 32", 9.99, 0.6, ""),
+            ("Heated seedling mat 50 x 25 cm", 24.99, 0.0, ""),  # rule heated-mat target
+            ("Plant labels, 100", 2.99, 0.9, ""),
+            ("Dibber and widger set", 4.49, 0.5, ""),
+            ("Propagator vent lid, large", 5.99, 0.4, ""),
+        ],
+    ),
+    (
+        "SG",
+        "Indoor Growing",
+        0.6,
+        False,
+        [
+            ("LED grow light bar 60 cm", 34.99, 0.8, ""),
+            ("Herb windowsill kit", 12.99, 1.0, ""),
+            ("Hydroponic starter kit", 49.99, 0.4, ""),
+            ("Mushroom growing kit", 16.99, 0.5, ""),
+            ("Microgreens growing kit", 14.99, 0.8, "R2026-03-16"),
+        ],
+    ),
+    (
+        "PC",
+        "Compost & Soil",
+        2.2,
+        True,
+        [
+            ("Seed and cutting compost 40 L", 7.49, 2.8, ""),  # rule heated-mat antecedent
+            ("Multi-purpose compost 60 L", 8.99, 2.0, ""),
+            ("Peat-free compost 50 L", 9.49, 1.3, ""),
+            ("Topsoil 30 L", 4.99, 0.8, ""),
+            ("Ericaceous compost 40 L", 7.99, 0.5, ""),
+            ("Well-rotted manure 50 L", 6.99, 0.7, ""),
+            ("Horticultural grit 20 kg", 6.49, 0.4, ""),
+        ],
+    ),
+    (
+        "PC",
+        "Plant Feed",
+        1.1,
+        True,
+        [
+            ("Tomato feed 1 L", 5.49, 1.2, ""),
+            ("All-purpose liquid feed 1 L", 4.99, 1.1, ""),
+            ("Fish, blood and bone 3 kg", 7.99, 0.8, ""),
+            ("Slow-release feed granules 1 kg", 6.99, 0.7, ""),
+            ("Rose and shrub feed 1 kg", 6.49, 0.6, ""),
+            ("Seaweed plant tonic 1 L", 5.99, 0.5, ""),
+        ],
+    ),
+    (
+        "PC",
+        "Houseplant Care",
+        0.9,
+        True,
+        [
+            ("Houseplant feed 500 ml", 4.49, 1.5, ""),  # rule indoor-pots antecedent
+            ("Houseplant potting mix 10 L", 5.99, 1.1, ""),
+            ("Orchid feed 250 ml", 4.99, 0.6, ""),
+            ("Leaf shine spray", 3.99, 0.5, ""),
+            ("Plant mister 500 ml", 6.99, 0.6, ""),
+            ("Cactus and succulent compost 5 L", 4.49, 0.5, ""),
+        ],
+    ),
+    (
+        "PC",
+        "Pest & Disease Control",
+        0.8,
+        True,
+        [
+            ("Organic slug pellets 1 kg", 6.99, 1.2, ""),
+            ("Sticky fly traps, 10", 4.49, 0.9, ""),
+            ("Copper slug tape 4 m", 5.99, 0.7, ""),
+            ("Fungus gnat traps", 4.99, 0.5, ""),
+            ("Beneficial nematode slug control", 12.99, 0.6, "R2026-02-23"),
+            ("Plant-oil bug spray 1 L", 6.49, 0.8, ""),
+        ],
+    ),
+    (
+        "PC",
+        "Lawn Care",
+        0.9,
+        True,
+        [
+            ("Hard-wearing lawn seed 1 kg", 9.99, 1.2, ""),
+            ("Lawn feed and weed 3 kg", 12.99, 1.0, ""),
+            ("Lawn sand 10 kg", 8.99, 0.5, ""),
+            ("Moss remover granules 5 kg", 11.99, 0.7, ""),
+            ("Lawn patch repair kit", 7.99, 0.7, ""),
+            ("Lawn edging strip 10 m", 9.49, 0.5, ""),
+        ],
+    ),
+    (
+        "PC",
+        "Weed Control & Mulch",
+        1.0,
+        False,
+        [
+            ("Gas weed burner wand", 27.99, 2.4, ""),  # rule butane antecedent
+            ("Weed-control fabric 10 m", 8.99, 1.0, ""),
+            ("Long-handled weed puller", 14.99, 0.8, ""),
+            ("Bark mulch 70 L", 7.49, 1.1, ""),
+            ("Acetic-acid path weeder 1 L", 5.99, 0.7, ""),
+            ("Paving crack brush", 4.99, 0.6, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Hand Tools",
+        1.1,
+        False,
+        [
+            ("Hand trowel", 7.99, 1.3, ""),
+            ("Hand fork", 7.99, 1.0, ""),
+            ("Folding pruning knife", 12.99, 0.5, "A"),
+            ("Grafting knife", 14.99, 0.3, "A"),
+            ("Kneeling pad", 5.99, 0.9, ""),
+            ("Gardening gloves, medium", 4.99, 1.1, ""),
+            ("Gardening gloves, large", 4.99, 1.0, ""),
+            ("Bulb planter", 6.49, 0.5, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Digging & Raking",
+        0.7,
+        False,
+        [
+            ("Border spade", 24.99, 1.0, ""),
+            ("Digging fork", 24.99, 0.9, ""),
+            ("Soil rake", 17.99, 0.8, ""),
+            ("Leaf rake", 12.99, 1.0, ""),
+            ("Draw hoe", 14.99, 0.5, ""),
+            ("Push hoe", 14.99, 0.6, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Cutting & Pruning",
+        0.8,
+        False,
+        [
+            ("Bypass secateurs", 14.99, 1.4, ""),
+            ("Anvil loppers", 24.99, 0.8, ""),
+            ("Folding pruning saw", 16.99, 0.6, ""),
+            ("Hedge shears", 19.99, 0.8, ""),
+            ("Grass shears", 12.99, 0.6, ""),
+            ("Blade sharpening stone", 6.99, 0.4, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Hoses & Fittings",
+        1.0,
+        False,
+        [
+            ("Garden hose 30 m", 24.99, 1.2, ""),
+            ("Hose reel cart", 39.99, 0.7, ""),
+            ("Spray gun, 8 patterns", 9.99, 1.1, ""),
+            ("Hose connector set", 7.49, 1.0, ""),
+            ("Soaker hose 15 m", 14.99, 0.5, ""),
+            ("Outdoor tap kit", 19.99, 0.4, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Watering & Irrigation",
+        0.9,
+        False,
+        [
+            ("Watering can 10 L", 9.99, 1.3, ""),
+            ("Indoor watering can 1.5 L", 6.99, 0.8, ""),
+            ("Drip irrigation kit", 29.99, 0.5, ""),
+            ("Water butt 200 L", 44.99, 0.6, ""),
+            ("Water butt diverter kit", 14.99, 0.4, ""),
+            ("Terracotta watering spikes, 4", 8.99, 0.5, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Power Tools",
+        1.1,
+        False,
+        [
+            ("Electric pressure washer 1800 W", 119.00, 2.0, ""),  # rule patio-cleaner antecedent
+            ("Cordless hedge trimmer", 89.00, 0.8, ""),
+            ("Electric lawn mower 33 cm", 99.00, 0.9, ""),
+            ("Grass trimmer 500 W", 44.99, 0.9, ""),
+            ("Leaf blower vacuum", 59.99, 0.6, ""),
+            ("Pressure washer patio brush head", 24.99, 0.4, ""),
+        ],
+    ),
+    (
+        "TW",
+        "Fuels & Garden Gas",
+        0.5,
+        True,
+        [
+            ("Butane gas refill cans, 4-pack", 9.99, 0.0, "A"),  # rule butane target
+            ("Barbecue lighter fluid 1 L", 4.49, 1.0, "A"),
+            ("Methylated spirit 1 L", 4.99, 0.6, "A"),
+            ("White spirit 2 L", 6.49, 0.7, "A"),
+            ("Jerry can 5 L", 12.99, 0.4, ""),
+        ],
+    ),
+    (
+        "GP",
+        "Greenhouses & Cold Frames",
+        0.9,
+        False,
+        [
+            ("Mini greenhouse, 4 tier", 39.99, 2.2, ""),  # rule frost-fleece antecedent
+            ("Walk-in polytunnel 3 m", 149.00, 0.4, ""),
+            ("Timber cold frame", 69.99, 0.6, ""),
+            ("Greenhouse staging shelves", 34.99, 0.5, ""),
+            ("Replacement greenhouse cover", 19.99, 0.5, ""),
+            ("Max-min greenhouse thermometer", 8.99, 0.7, ""),
+        ],
+    ),
+    (
+        "GP",
+        "Frost Protection",
+        0.6,
+        False,
+        [
+            ("Frost fleece 2 m x 10 m", 8.99, 0.0, ""),  # rule frost-fleece target (surplus stock)
+            ("Fleece plant jackets, 3", 7.99, 1.0, ""),
+            ("Cloche tunnel 3 m", 14.99, 0.7, ""),
+            ("Bubble insulation 10 m", 12.99, 0.6, ""),
+            ("Hessian pot wrap 5 m", 6.99, 0.5, ""),
+        ],
+    ),
+    (
+        "GP",
+        "Supports & Netting",
+        0.8,
+        True,
+        [
+            ("Bamboo canes 1.8 m, 20", 6.99, 1.3, ""),
+            ("Plant ties and clips set", 3.99, 1.0, ""),
+            ("Pea and bean netting", 5.99, 0.7, ""),
+            ("Metal obelisk plant support", 19.99, 0.5, ""),
+            ("Tomato spiral supports, 5", 9.99, 0.6, ""),
+            ("Fruit cage netting 4 m", 12.99, 0.4, ""),
+        ],
+    ),
+    (
+        "OL",
+        "Outdoor Pots & Planters",
+        1.2,
+        False,
+        [
+            ("Terracotta pot 30 cm", 12.99, 1.3, ""),
+            ("Glazed pot 40 cm", 29.99, 0.8, ""),
+            ("Trough planter 80 cm", 24.99, 0.7, ""),
+            ("Raised bed kit 1.2 m", 49.99, 0.6, ""),
+            ("Hanging basket 35 cm", 9.99, 1.0, ""),
+            ("Window box 60 cm", 11.99, 0.8, ""),
+            ("Grow bags, 3-pack", 8.99, 1.0, ""),
+        ],
+    ),
+    (
+        "OL",
+        "Indoor Pots & Planters",
+        0.0,
+        False,
+        [  # rule indoor-pots target category
+            ("Ceramic houseplant pot 14 cm", 8.99, 1.4, ""),
+            ("Plant pot saucers, 5", 4.99, 0.9, ""),
+            ("Macrame plant hanger", 9.99, 0.6, ""),
+            ("Tiered plant stand", 29.99, 0.5, ""),
+            ("Decorative cachepot 18 cm", 14.99, 0.8, ""),
+            ("Self-watering planter 30 cm", 27.99, 0.0, "X"),  # brand new: no order history
+        ],
+    ),
+    (
+        "OL",
+        "Barbecue & Outdoor Cooking",
+        0.8,
+        False,
+        [
+            ("Charcoal kettle barbecue", 79.00, 0.6, ""),
+            ("Lumpwood charcoal 10 kg", 14.99, 1.3, ""),
+            ("Barbecue tool set", 19.99, 0.7, ""),
+            ("Barbecue cover", 16.99, 0.5, ""),
+            ("Pizza stone 33 cm", 19.99, 0.4, ""),
+            ("Natural firelighters, 48", 4.99, 1.0, ""),
+        ],
+    ),
+    (
+        "OL",
+        "Garden Furniture",
+        0.6,
+        False,
+        [
+            ("Folding bistro set", 99.00, 0.6, ""),
+            ("Two-seat garden bench", 129.00, 0.4, ""),
+            ("Reclining sun lounger", 59.99, 0.5, ""),
+            ("Parasol 2.5 m", 39.99, 0.6, ""),
+            ("Furniture cover, large", 24.99, 0.7, ""),
+            ("Seat cushions, 2", 19.99, 0.8, ""),
+        ],
+    ),
+    (
+        "OL",
+        "Patio & Decking Care",
+        0.7,
+        True,
+        [
+            ("Patio cleaner concentrate 5 L", 14.99, 0.0, ""),  # rule patio-cleaner target
+            ("Decking oil 2.5 L", 19.99, 1.0, ""),
+            ("Stiff decking brush", 12.99, 0.8, ""),
+            ("Fence paint 5 L", 17.99, 1.1, ""),
+            ("Patio joint filler", 11.99, 0.5, ""),
+            ("Green algae remover 1 L", 6.99, 0.8, ""),
+        ],
+    ),
+    (
+        "OL",
+        "Outdoor Lighting",
+        0.7,
+        False,
+        [
+            ("Solar stake lights, 6", 19.99, 1.2, ""),
+            ("Solar string lights 10 m", 14.99, 0.9, "R2026-05-04"),
+            ("Motion-sensor wall light", 24.99, 0.6, ""),
+            ("Solar lantern", 12.99, 0.8, ""),
+            ("Festoon lights 10 m", 29.99, 0.6, ""),
+        ],
+    ),
+    (
+        "WL",
+        "Bird Food",
+        1.2,
+        True,
+        [  # rule bird-feeders antecedent category
+            ("Sunflower hearts 2 kg", 9.99, 1.4, ""),
+            ("Suet fat balls, 50", 11.99, 1.3, ""),
+            ("Mixed wild bird seed 4 kg", 8.99, 1.2, ""),
+            ("Nyjer seed 1 kg", 6.49, 0.5, ""),
+            ("Suet pellets 1 kg", 5.99, 0.7, ""),
+            ("Dried mealworms 500 g", 9.49, 0.6, ""),
+        ],
+    ),
+    (
+        "WL",
+        "Bird Feeders & Tables",
+        0.0,
+        False,
+        [  # rule bird-feeders target category
+            ("Hanging seed feeder", 12.99, 1.4, ""),
+            ("Fat ball feeder", 8.99, 1.2, ""),
+            ("Timber bird table", 39.99, 0.6, ""),
+            ("Ground feeding tray", 9.99, 0.6, ""),
+            ("Squirrel-resistant feeder", 24.99, 0.7, ""),
+            ("Window suction feeder", 11.99, 0.5, ""),
+        ],
+    ),
+    (
+        "WL",
+        "Wildlife Homes",
+        0.5,
+        False,
+        [
+            ("Bee hotel", 14.99, 1.0, ""),
+            ("Hedgehog house", 34.99, 0.6, ""),
+            ("Nest box, 32 mm hole", 14.99, 0.9, ""),
+            ("Stone-effect bird bath", 29.99, 0.6, ""),
+            ("Bat box", 19.99, 0.3, ""),
+            ("Butterfly feeding station", 12.99, 0.4, ""),
+        ],
+    ),
+    (
+        "HH",
+        "Cleaning",
+        1.0,
+        True,
+        [
+            ("Multi-surface cleaner 750 ml", 2.49, 1.3, ""),
+            ("Microfibre cloths, 10", 4.99, 1.1, ""),
+            ("Outdoor yard broom", 14.99, 0.7, ""),
+            ("Window cleaning kit", 12.99, 0.5, ""),
+            ("Spin mop and bucket", 24.99, 0.5, ""),
+            ("Disinfectant 2 L", 3.99, 0.9, ""),
+        ],
+    ),
+    (
+        "HH",
+        "Indoor Lighting",
+        0.7,
+        False,
+        [
+            ("LED bulbs E27, 4-pack", 9.99, 1.3, ""),
+            ("LED spotlights GU10, 4-pack", 11.99, 0.9, ""),
+            ("Adjustable desk lamp", 24.99, 0.5, ""),
+            ("Rechargeable torch", 14.99, 0.7, ""),
+            ("Plug-in night lights, 2", 7.99, 0.5, ""),
+        ],
+    ),
+    (
+        "HH",
+        "Storage & Organisation",
+        0.6,
+        False,
+        [
+            ("Storage box 45 L", 9.99, 1.2, ""),
+            ("Wall-mounted tool rack", 19.99, 0.7, ""),
+            ("Shed shelving unit", 34.99, 0.5, ""),
+            ("Stacking crates, 3", 14.99, 0.8, ""),
+            ("Heavy-duty wall hooks, 6", 8.99, 0.7, ""),
+        ],
+    ),
+    (
+        "HH",
+        "Kitchen & Home",
+        0.7,
+        False,
+        [
+            ("Kitchen knife set, 5 piece", 39.99, 0.5, "A"),
+            ("Kitchen compost caddy 5 L", 9.99, 1.1, ""),
+            ("Enamel bread bin", 24.99, 0.5, ""),
+            ("Fresh herb keeper", 12.99, 0.5, ""),
+            ("Chopping board set", 19.99, 0.7, ""),
+        ],
+    ),
+    (
+        "HH",
+        "Health & Wellbeing",
+        0.5,
+        True,
+        [  # the one sensitive category
+            ("Hay-fever relief nasal spray", 7.99, 1.2, ""),
+            ("One-a-day antihistamine tablets, 30", 5.99, 1.1, ""),
+            ("Knee support brace", 14.99, 0.6, ""),
+            ("Wrist support", 9.99, 0.5, ""),
+            ("Insect bite relief gel", 4.99, 0.8, ""),
+            ("Back support belt", 19.99, 0.4, ""),
+        ],
+    ),
 ]
 _SENSITIVE_CATEGORY = "Health & Wellbeing"
 
@@ -572,12 +782,27 @@ def _build_catalog() -> _Catalog:
         old = idx[launch_day[idx] <= 0]
         fallback[c] = old[np.argmax(weight_a[old])] if weight_a[old].max() > 0 else old[0]
     return _Catalog(
-        sku=sku, name=name, category=category, department=department, cat_idx=cat_idx_a,
-        price_cents=np.array(price, dtype=np.int64), weight=weight_a, launch=launch,
-        launch_day=launch_day, age_restricted=np.array(age), sensitive=np.array(sens),
-        stock=stock.astype(np.int64), consumable=np.array(cons), cat_names=cat_names,
-        cat_weight=np.array(cat_weight, dtype=float), cat_fallback=fallback, cat_lo=cat_lo,
-        cat_w=cat_w, cum=cum, cat_first=cat_first, cat_last=cat_last,
+        sku=sku,
+        name=name,
+        category=category,
+        department=department,
+        cat_idx=cat_idx_a,
+        price_cents=np.array(price, dtype=np.int64),
+        weight=weight_a,
+        launch=launch,
+        launch_day=launch_day,
+        age_restricted=np.array(age),
+        sensitive=np.array(sens),
+        stock=stock.astype(np.int64),
+        consumable=np.array(cons),
+        cat_names=cat_names,
+        cat_weight=np.array(cat_weight, dtype=float),
+        cat_fallback=fallback,
+        cat_lo=cat_lo,
+        cat_w=cat_w,
+        cum=cum,
+        cat_first=cat_first,
+        cat_last=cat_last,
     )
 
 
@@ -591,24 +816,34 @@ def _catalog() -> _Catalog:
 def catalog() -> pa.Table:
     """The products table of the sample (fixed, whatever the seed), as an arrow table."""
     cat = _catalog()
-    return pa.table({
-        "sku": pa.array(cat.sku, pa.string()),
-        "name": pa.array(cat.name, pa.string()),
-        "category": pa.array(cat.category, pa.string()),
-        "department": pa.array(cat.department, pa.string()),
-        "age_restricted": pa.array(cat.age_restricted, pa.bool_()),
-        "sensitive": pa.array(cat.sensitive, pa.bool_()),
-        "launch_date": pa.array(cat.launch, pa.date32()),
-        "stock_on_hand": pa.array(cat.stock, pa.int32()),
-    })
+    return pa.table(
+        {
+            "sku": pa.array(cat.sku, pa.string()),
+            "name": pa.array(cat.name, pa.string()),
+            "category": pa.array(cat.category, pa.string()),
+            "department": pa.array(cat.department, pa.string()),
+            "age_restricted": pa.array(cat.age_restricted, pa.bool_()),
+            "sensitive": pa.array(cat.sensitive, pa.bool_()),
+            "launch_date": pa.array(cat.launch, pa.date32()),
+            "stock_on_hand": pa.array(cat.stock, pa.int32()),
+        }
+    )
 
 
 # --------------------------------------------------------------------------------------------
 # Generation
 # --------------------------------------------------------------------------------------------
 
-_REGIONS = ("North", "North East", "North West", "Midlands", "East", "South East", "South West",
-            "Coast & Islands")
+_REGIONS = (
+    "North",
+    "North East",
+    "North West",
+    "Midlands",
+    "East",
+    "South East",
+    "South West",
+    "Coast & Islands",
+)
 _REGION_P = np.array([0.11, 0.09, 0.12, 0.17, 0.12, 0.19, 0.14, 0.06])
 _REASONS = ("unsubscribed", "hard_bounce", "complaint", "customer_request", "deceased")
 _REASON_P = np.array([0.55, 0.2, 0.07, 0.15, 0.03])
@@ -675,8 +910,10 @@ def _rule_masks(cat: _Catalog) -> tuple[np.ndarray, np.ndarray]:
     ante = np.zeros(len(cat.sku), dtype=bool)
     target = np.zeros(len(cat.sku), dtype=bool)
     for r in PLANTED_RULES:
-        for mask, level, vals in ((ante, r["antecedent_level"], r["antecedent"]),
-                                  (target, r["target_level"], (r["target"],))):
+        for mask, level, vals in (
+            (ante, r["antecedent_level"], r["antecedent"]),
+            (target, r["target_level"], (r["target"],)),
+        ):
             for v in vals:
                 if level == "sku":
                     mask[cat.sku.index(v)] = True
@@ -772,13 +1009,16 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     n_general = len(o_cust)
     o_day = np.searchsorted(day_cdf, rng.random(n_general), side="right").clip(0, _DAYS - 1)
     o_online = rng.random(n_general) < online_share[o_cust]
-    sod = np.where(o_online, rng.integers(0, 86_400, n_general), rng.integers(8 * 3600, 20 * 3600, n_general))
+    sod = np.where(
+        o_online, rng.integers(0, 86_400, n_general), rng.integers(8 * 3600, 20 * 3600, n_general)
+    )
     o_t = o_day.astype(np.int64) * 86_400 + sod
     n_lines = 1 + rng.poisson(1.6, n_general)
     l_order = np.repeat(np.arange(n_general), n_lines)
     l_cust = o_cust[l_order]
-    l_sku, l_qty, l_cents = _draw_lines(rng, cat, gen_cats, gen_p, fav, nfav, l_cust,
-                                        o_day[l_order])
+    l_sku, l_qty, l_cents = _draw_lines(
+        rng, cat, gen_cats, gen_p, fav, nfav, l_cust, o_day[l_order]
+    )
     keep = _dedupe(l_order, l_sku, nsku)
     l_order, l_sku, l_qty, l_cents = l_order[keep], l_sku[keep], l_qty[keep], l_cents[keep]
     l_t = o_t[l_order].astype(float)
@@ -857,8 +1097,17 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
             n_ret[a[again]] += 1
             active, start = a[again], tr[again].astype(float)
         who = np.flatnonzero(np.isfinite(hold) | (n_pur > 0))
-        planted.append((who, np.where(np.isfinite(hold[who]), hold[who], np.nan), first_t[who],
-                        first_src[who], first_sku[who], n_pur[who], n_ret[who]))
+        planted.append(
+            (
+                who,
+                np.where(np.isfinite(hold[who]), hold[who], np.nan),
+                first_t[who],
+                first_src[who],
+                first_sku[who],
+                n_pur[who],
+                n_ret[who],
+            )
+        )
 
     # target orders: one order per planted purchase, plus filler lines (never planted SKUs)
     t_cust = np.concatenate(p_cust)
@@ -872,8 +1121,9 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     n_fill = rng.poisson(0.8, T)
     f_order_local = np.repeat(np.arange(T), n_fill)
     f_cust = t_cust[f_order_local]
-    f_sku, f_qty, f_cents = _draw_lines(rng, cat, gen_cats, gen_p, fav, nfav, f_cust,
-                                        t_t[f_order_local] // 86_400)
+    f_sku, f_qty, f_cents = _draw_lines(
+        rng, cat, gen_cats, gen_p, fav, nfav, f_cust, t_t[f_order_local] // 86_400
+    )
     ok = ~planted_mask[f_sku]
     f_order = t_order[f_order_local][ok]
     f_sku, f_qty, f_cents = f_sku[ok], f_qty[ok], f_cents[ok]
@@ -950,15 +1200,36 @@ def _gen_chunk(seed: int, k: int, n: int, cat: _Catalog, day_cdf: np.ndarray) ->
     l_sku = np.concatenate([l_sku, l_sku[ret], tr_sku, l_sku[dup]])
     l_qty = np.concatenate([l_qty, -r_qty, -tr_qty, l_qty[dup]])
     l_cents = np.concatenate([l_cents, r_cents, tr_cents, l_cents[dup]])
-    quirks.update(unknown_sku_lines=int((l_sku >= nsku).sum()), zero_quantity_lines=len(zero),
-                  duplicate_lines=len(dup))
+    quirks.update(
+        unknown_sku_lines=int((l_sku >= nsku).sum()),
+        zero_quantity_lines=len(zero),
+        duplicate_lines=len(dup),
+    )
 
     return _Chunk(
-        n=n, breadth=breadth, nfav=nfav, online_share=online_share, n_general_orders=n_orders,
-        has_email=has_email, domain=domain, consent=consent, consent_day=consent_day,
-        birth_day=birth_day, age_known=age_known, region=region, supp_cust=supp_cust,
-        supp_reason=supp_reason, supp_day=supp_day, o_cust=o_cust, o_t=o_t, o_online=o_online,
-        l_order=l_order, l_sku=l_sku, l_qty=l_qty, l_cents=l_cents, planted=planted,
+        n=n,
+        breadth=breadth,
+        nfav=nfav,
+        online_share=online_share,
+        n_general_orders=n_orders,
+        has_email=has_email,
+        domain=domain,
+        consent=consent,
+        consent_day=consent_day,
+        birth_day=birth_day,
+        age_known=age_known,
+        region=region,
+        supp_cust=supp_cust,
+        supp_reason=supp_reason,
+        supp_day=supp_day,
+        o_cust=o_cust,
+        o_t=o_t,
+        o_online=o_online,
+        l_order=l_order,
+        l_sku=l_sku,
+        l_qty=l_qty,
+        l_cents=l_cents,
+        planted=planted,
         quirks=quirks,
     )
 
@@ -1003,8 +1274,9 @@ def _timestamps(seconds: np.ndarray, valid: np.ndarray | None = None) -> pa.Arra
 
 
 def _dict(indices: np.ndarray, values: tuple[str, ...] | list[str]) -> pa.Array:
-    return pa.DictionaryArray.from_arrays(pa.array(indices.astype(np.int32)),
-                                          pa.array(list(values), pa.string()))
+    return pa.DictionaryArray.from_arrays(
+        pa.array(indices.astype(np.int32)), pa.array(list(values), pa.string())
+    )
 
 
 def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
@@ -1015,33 +1287,48 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     cid = _CUSTOMER_ID0 + np.arange(cust_off[-1], dtype=np.int64)
     has_email = np.concatenate([c.has_email for c in chunks])
     domain = np.concatenate([c.domain for c in chunks])
-    emails = [f"shopper{i}@{_DOMAINS[d]}" if h else None
-              for i, d, h in zip(cid.tolist(), domain.tolist(), has_email.tolist(), strict=False)]
+    emails = [
+        f"shopper{i}@{_DOMAINS[d]}" if h else None
+        for i, d, h in zip(cid.tolist(), domain.tolist(), has_email.tolist(), strict=False)
+    ]
     consent_day = np.concatenate([c.consent_day for c in chunks])
     age_known = np.concatenate([c.age_known for c in chunks])
-    customers = pa.table({
-        "customer_id": pa.array(cid),
-        "email": pa.array(emails, pa.string()),
-        "marketing_consent": pa.array(np.concatenate([c.consent for c in chunks])),
-        "consent_date": _dates(np.where(consent_day > -(10**8), consent_day, 0),
-                               consent_day > -(10**8)),
-        "birth_date": _dates(np.concatenate([c.birth_day for c in chunks]), age_known),
-        "region": _dict(np.concatenate([c.region for c in chunks]), _REGIONS),
-    })
-    truth = pa.table({
-        "customer_id": pa.array(cid),
-        "breadth": pa.array(np.concatenate([c.breadth for c in chunks])),
-        "favoured_categories": pa.array(np.concatenate([c.nfav for c in chunks]).astype(np.int32)),
-        "online_share": pa.array(np.concatenate([c.online_share for c in chunks])),
-        "general_orders": pa.array(
-            np.concatenate([c.n_general_orders for c in chunks]).astype(np.int32)),
-    })
-    suppressions = pa.table({
-        "customer_id": pa.array(np.concatenate(
-            [cid[o + c.supp_cust] for c, o in zip(chunks, cust_off, strict=False)])),
-        "reason": _dict(np.concatenate([c.supp_reason for c in chunks]), _REASONS),
-        "suppressed_at": _dates(np.concatenate([c.supp_day for c in chunks])),
-    })
+    customers = pa.table(
+        {
+            "customer_id": pa.array(cid),
+            "email": pa.array(emails, pa.string()),
+            "marketing_consent": pa.array(np.concatenate([c.consent for c in chunks])),
+            "consent_date": _dates(
+                np.where(consent_day > -(10**8), consent_day, 0), consent_day > -(10**8)
+            ),
+            "birth_date": _dates(np.concatenate([c.birth_day for c in chunks]), age_known),
+            "region": _dict(np.concatenate([c.region for c in chunks]), _REGIONS),
+        }
+    )
+    truth = pa.table(
+        {
+            "customer_id": pa.array(cid),
+            "breadth": pa.array(np.concatenate([c.breadth for c in chunks])),
+            "favoured_categories": pa.array(
+                np.concatenate([c.nfav for c in chunks]).astype(np.int32)
+            ),
+            "online_share": pa.array(np.concatenate([c.online_share for c in chunks])),
+            "general_orders": pa.array(
+                np.concatenate([c.n_general_orders for c in chunks]).astype(np.int32)
+            ),
+        }
+    )
+    suppressions = pa.table(
+        {
+            "customer_id": pa.array(
+                np.concatenate(
+                    [cid[o + c.supp_cust] for c, o in zip(chunks, cust_off, strict=False)]
+                )
+            ),
+            "reason": _dict(np.concatenate([c.supp_reason for c in chunks]), _REASONS),
+            "suppressed_at": _dates(np.concatenate([c.supp_day for c in chunks])),
+        }
+    )
 
     # orders: ids increase with time (ties broken by customer)
     o_cust = np.concatenate([c.o_cust + o for c, o in zip(chunks, cust_off, strict=False)])
@@ -1050,12 +1337,14 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     rank_order = np.lexsort((o_cust, o_t))
     order_id = np.empty(len(o_t), dtype=np.int64)
     order_id[rank_order] = _ORDER_ID0 + np.arange(len(o_t))
-    orders = pa.table({
-        "order_id": pa.array(order_id[rank_order]),
-        "customer_id": pa.array(cid[o_cust[rank_order]]),
-        "ordered_at": _timestamps(o_t[rank_order]),
-        "channel": _dict(o_online[rank_order].astype(np.int8), ("store", "online")),
-    })
+    orders = pa.table(
+        {
+            "order_id": pa.array(order_id[rank_order]),
+            "customer_id": pa.array(cid[o_cust[rank_order]]),
+            "ordered_at": _timestamps(o_t[rank_order]),
+            "channel": _dict(o_online[rank_order].astype(np.int8), ("store", "online")),
+        }
+    )
     del rank_order
 
     # lines, sorted by order id (stable: lines keep their order inside an order)
@@ -1064,55 +1353,75 @@ def _assemble(chunks: list[_Chunk], cat: _Catalog) -> dict[str, pa.Table]:
     l_qty = np.concatenate([c.l_qty for c in chunks])
     l_cents = np.concatenate([c.l_cents for c in chunks])
     s = np.argsort(l_oid, kind="stable")
-    order_lines = pa.table({
-        "order_id": pa.array(l_oid[s]),
-        "sku": _dict(l_sku[s], list(cat.sku) + list(_UNKNOWN_SKUS)),
-        "quantity": pa.array(l_qty[s].astype(np.int32)),
-        "cents": pa.array(l_cents[s]),
-    })
+    order_lines = pa.table(
+        {
+            "order_id": pa.array(l_oid[s]),
+            "sku": _dict(l_sku[s], list(cat.sku) + list(_UNKNOWN_SKUS)),
+            "quantity": pa.array(l_qty[s].astype(np.int32)),
+            "cents": pa.array(l_cents[s]),
+        }
+    )
     del s, l_oid, l_sku, l_qty, l_cents
 
     # planted ground truth
     parts = []
-    schema = pa.schema([
-        ("rule_id", pa.string()), ("customer_id", pa.int64()),
-        ("antecedent_held_at", pa.timestamp("s")), ("target_bought_at", pa.timestamp("s")),
-        ("target_sku", pa.string()), ("source", pa.string()),
-        ("target_purchases", pa.int32()), ("target_full_returns", pa.int32()),
-    ])
+    schema = pa.schema(
+        [
+            ("rule_id", pa.string()),
+            ("customer_id", pa.int64()),
+            ("antecedent_held_at", pa.timestamp("s")),
+            ("target_bought_at", pa.timestamp("s")),
+            ("target_sku", pa.string()),
+            ("source", pa.string()),
+            ("target_purchases", pa.int32()),
+            ("target_full_returns", pa.int32()),
+        ]
+    )
     for ri, r in enumerate(PLANTED_RULES):
         cols = [np.concatenate([c.planted[ri][j] for c in chunks]) for j in range(7)]
         who = np.concatenate([c.planted[ri][0] + o for c, o in zip(chunks, cust_off, strict=False)])
         _, hold, tgt, src, tsku, n_pur, n_ret = cols
-        parts.append(pa.table({
-            "rule_id": pa.array([r["rule_id"]] * len(who), pa.string()),
-            "customer_id": pa.array(cid[who]),
-            "antecedent_held_at": _timestamps(hold, ~np.isnan(hold)),
-            "target_bought_at": _timestamps(tgt, ~np.isnan(tgt)),
-            "target_sku": pa.DictionaryArray.from_arrays(
-                pa.array(np.maximum(tsku, 0).astype(np.int32), mask=tsku < 0),
-                pa.array(list(cat.sku), pa.string())).cast(pa.string()),
-            "source": _dict(src, ("none", "base", "rule")).cast(pa.string()),
-            "target_purchases": pa.array(n_pur, pa.int32()),
-            "target_full_returns": pa.array(n_ret, pa.int32()),
-        }, schema=schema))
+        parts.append(
+            pa.table(
+                {
+                    "rule_id": pa.array([r["rule_id"]] * len(who), pa.string()),
+                    "customer_id": pa.array(cid[who]),
+                    "antecedent_held_at": _timestamps(hold, ~np.isnan(hold)),
+                    "target_bought_at": _timestamps(tgt, ~np.isnan(tgt)),
+                    "target_sku": pa.DictionaryArray.from_arrays(
+                        pa.array(np.maximum(tsku, 0).astype(np.int32), mask=tsku < 0),
+                        pa.array(list(cat.sku), pa.string()),
+                    ).cast(pa.string()),
+                    "source": _dict(src, ("none", "base", "rule")).cast(pa.string()),
+                    "target_purchases": pa.array(n_pur, pa.int32()),
+                    "target_full_returns": pa.array(n_ret, pa.int32()),
+                },
+                schema=schema,
+            )
+        )
     planted = pa.concat_tables(parts)
 
-    rules = pa.table({
-        "rule_id": [r["rule_id"] for r in PLANTED_RULES],
-        "antecedent_level": [r["antecedent_level"] for r in PLANTED_RULES],
-        "antecedent": [list(r["antecedent"]) for r in PLANTED_RULES],
-        "target_level": [r["target_level"] for r in PLANTED_RULES],
-        "target": [r["target"] for r in PLANTED_RULES],
-        "hazard_30d": [float(r["hazard_30d"]) for r in PLANTED_RULES],
-        "base_hazard_30d": [float(r["base_hazard_30d"]) for r in PLANTED_RULES],
-        "purpose": [r["purpose"] for r in PLANTED_RULES],
-        "description": [r["description"] for r in PLANTED_RULES],
-    })
+    rules = pa.table(
+        {
+            "rule_id": [r["rule_id"] for r in PLANTED_RULES],
+            "antecedent_level": [r["antecedent_level"] for r in PLANTED_RULES],
+            "antecedent": [list(r["antecedent"]) for r in PLANTED_RULES],
+            "target_level": [r["target_level"] for r in PLANTED_RULES],
+            "target": [r["target"] for r in PLANTED_RULES],
+            "hazard_30d": [float(r["hazard_30d"]) for r in PLANTED_RULES],
+            "base_hazard_30d": [float(r["base_hazard_30d"]) for r in PLANTED_RULES],
+            "purpose": [r["purpose"] for r in PLANTED_RULES],
+            "description": [r["description"] for r in PLANTED_RULES],
+        }
+    )
     return {
-        "customers": customers, "orders": orders, "order_lines": order_lines,
-        "suppressions": suppressions, "sample_customer_truth": truth,
-        "sample_planted": planted, "sample_rules": rules,
+        "customers": customers,
+        "orders": orders,
+        "order_lines": order_lines,
+        "suppressions": suppressions,
+        "sample_customer_truth": truth,
+        "sample_planted": planted,
+        "sample_rules": rules,
     }
 
 
@@ -1148,18 +1457,18 @@ CREATE TABLE sample_planted (
 
 _INSERT = {
     "customers": "SELECT customer_id, email, marketing_consent, consent_date, birth_date, "
-                 "CAST(region AS VARCHAR) FROM src",
+    "CAST(region AS VARCHAR) FROM src",
     "products": "SELECT * FROM src",
     "orders": "SELECT order_id, customer_id, CAST(ordered_at AS TIMESTAMP), "
-              "CAST(channel AS VARCHAR) FROM src",
+    "CAST(channel AS VARCHAR) FROM src",
     "order_lines": "SELECT order_id, CAST(sku AS VARCHAR), quantity, "
-                   "CAST(cents AS DECIMAL(18,0)) / 100 FROM src",
+    "CAST(cents AS DECIMAL(18,0)) / 100 FROM src",
     "suppressions": "SELECT customer_id, CAST(reason AS VARCHAR), suppressed_at FROM src",
     "sample_rules": "SELECT * FROM src",
     "sample_customer_truth": "SELECT * FROM src",
     "sample_planted": "SELECT rule_id, customer_id, CAST(antecedent_held_at AS TIMESTAMP), "
-                      "CAST(target_bought_at AS TIMESTAMP), target_sku, source, "
-                      "target_purchases, target_full_returns FROM src",
+    "CAST(target_bought_at AS TIMESTAMP), target_sku, source, "
+    "target_purchases, target_full_returns FROM src",
     "sample_meta": "SELECT * FROM src",
 }
 
@@ -1189,26 +1498,36 @@ def build_sample(
     """
     started = time.perf_counter()
     if isinstance(customers, bool) or not isinstance(customers, int | np.integer):
-        raise InputError(f"expected a whole number of customers, found {customers!r}.",
-                         hint=f"pass an integer of at least {MIN_CUSTOMERS}.")
+        raise InputError(
+            f"expected a whole number of customers, found {customers!r}.",
+            hint=f"pass an integer of at least {MIN_CUSTOMERS}.",
+        )
     if customers < MIN_CUSTOMERS:
         raise InputError(
             f"expected at least {MIN_CUSTOMERS} customers, found {customers}.",
-            hint=f"pass customers >= {MIN_CUSTOMERS} (the default is 20,000).")
+            hint=f"pass customers >= {MIN_CUSTOMERS} (the default is 20,000).",
+        )
     if isinstance(seed, bool) or not isinstance(seed, int | np.integer) or seed < 0:
-        raise InputError(f"expected a non-negative integer seed, found {seed!r}.",
-                         hint="pass a seed such as 7 (the default).")
+        raise InputError(
+            f"expected a non-negative integer seed, found {seed!r}.",
+            hint="pass a seed such as 7 (the default).",
+        )
     target = Path(path)
     if target.is_dir():
-        raise StateError(f"expected a file path for the sample warehouse, found a directory at "
-                         f"{target}.", hint="give a file name such as sample.duckdb.")
+        raise StateError(
+            f"expected a file path for the sample warehouse, found a directory at {target}.",
+            hint="give a file name such as sample.duckdb.",
+        )
     if target.exists() and not overwrite:
         raise StateError(
             f"expected no file at {target}, found an existing file.",
-            hint="pass overwrite=True (CLI: --overwrite) to replace it, or choose another path.")
+            hint="pass overwrite=True (CLI: --overwrite) to replace it, or choose another path.",
+        )
     if not target.parent.is_dir():
-        raise InputError(f"expected an existing directory for {target}, found none at "
-                         f"{target.parent}.", hint="create the directory first.")
+        raise InputError(
+            f"expected an existing directory for {target}, found none at {target.parent}.",
+            hint="create the directory first.",
+        )
 
     cat = _catalog()
     day_cdf = _day_cdf()
@@ -1223,7 +1542,8 @@ def build_sample(
     del chunks
     cust = tables["customers"]
     quirks["customers_without_consent"] = cust.num_rows - int(
-        pc.sum(cust["marketing_consent"]).as_py())
+        pc.sum(cust["marketing_consent"]).as_py()
+    )
     quirks["customers_age_unknown"] = cust["birth_date"].null_count
     quirks["customers_without_email"] = cust["email"].null_count
     quirks["suppression_rows"] = tables["suppressions"].num_rows
@@ -1233,9 +1553,12 @@ def build_sample(
     first = pc.min(ts).as_py()
     last = pc.max(ts).as_py()
     meta = {
-        "generator": "reachlist.sample", "generator_version": GENERATOR_VERSION,
-        "seed": str(seed), "customers": str(customers),
-        "period_start": PERIOD_START.isoformat(), "period_end": PERIOD_END.isoformat(),
+        "generator": "reachlist.sample",
+        "generator_version": GENERATOR_VERSION,
+        "seed": str(seed),
+        "customers": str(customers),
+        "period_start": PERIOD_START.isoformat(),
+        "period_end": PERIOD_END.isoformat(),
         **{f"quirk.{k}": str(v) for k, v in quirks.items()},
     }
     tables["sample_meta"] = pa.table({"key": list(meta), "value": list(meta.values())})
@@ -1253,10 +1576,16 @@ def build_sample(
             leftover.unlink(missing_ok=True)
 
     return SampleSummary(
-        path=str(target), seed=int(seed), customers=customers,
-        products=tables["products"].num_rows, orders=tables["orders"].num_rows,
+        path=str(target),
+        seed=int(seed),
+        customers=customers,
+        products=tables["products"].num_rows,
+        orders=tables["orders"].num_rows,
         order_lines=tables["order_lines"].num_rows,
-        suppressions=tables["suppressions"].num_rows, first_order_at=first, last_order_at=last,
+        suppressions=tables["suppressions"].num_rows,
+        first_order_at=first,
+        last_order_at=last,
         build_seconds=round(time.perf_counter() - started, 3),
-        file_bytes=target.stat().st_size, quirks=quirks,
+        file_bytes=target.stat().st_size,
+        quirks=quirks,
     )

@@ -166,7 +166,9 @@ class ColumnSource:
     value: object = None
 
     def describe(self) -> str:
-        return f"{{ sql = {self.sql!r} }}" if self.kind == "sql" else f"{{ value = {self.value!r} }}"
+        return (
+            f"{{ sql = {self.sql!r} }}" if self.kind == "sql" else f"{{ value = {self.value!r} }}"
+        )
 
 
 @dataclass(frozen=True)
@@ -284,8 +286,10 @@ class Mapping:
                     sources[col] = _column_source(value, f"{key}.{col}", source)
                     continue
                 if not isinstance(value, str) or not value.strip():
-                    expression = "" if table.owned or col == "table" else (
-                        ', { sql = "EXPRESSION" } or { value = CONSTANT }'
+                    expression = (
+                        ""
+                        if table.owned or col == "table"
+                        else (', { sql = "EXPRESSION" } or { value = CONSTANT }')
                     )
                     raise InputError(
                         f"Mapping {source}: {key}.{col} must be a non-empty string"
@@ -332,7 +336,7 @@ def _column_source(value: dict[str, object], where: str, source: str) -> ColumnS
     if keys == ["value"] and isinstance(value["value"], bool | int | float | str | date):
         return ColumnSource("value", value=value["value"])
     raise InputError(
-        f"Mapping {source}: {where} must be a column name, {{ sql = \"EXPRESSION\" }} or "
+        f'Mapping {source}: {where} must be a column name, {{ sql = "EXPRESSION" }} or '
         f"{{ value = CONSTANT }}, found {value!r}.",
         hint='for example { sql = "CAST(article_no AS VARCHAR)" } or { value = false }',
     )

@@ -214,8 +214,11 @@ def last_order_day(wh: Warehouse, today: date | None = None) -> datetime:
 
 def _window_end(history: OrderHistory) -> datetime:
     if history.window_end is None:
-        later = (f" ({history.later_orders:,} order(s) are all dated after today)"
-                 if history.later_orders else "")
+        later = (
+            f" ({history.later_orders:,} order(s) are all dated after today)"
+            if history.later_orders
+            else ""
+        )
         raise InputError(
             f"Expected order history up to today, found no orders in the warehouse{later}.",
             hint="load orders first; `reachlist check` shows what the warehouse holds",

@@ -110,8 +110,7 @@ class Warehouse:
             engine = sa.create_engine(url, connect_args=connect_args)
         except Exception as exc:  # bad URL or missing driver
             raise WarehouseError(
-                f"Cannot use warehouse URL {_redact(url)!r}: "
-                f"{redact_text(_first_line(exc), url)}.",
+                f"Cannot use warehouse URL {_redact(url)!r}: {redact_text(_first_line(exc), url)}.",
                 hint="use a SQLAlchemy URL such as postgresql+psycopg://user@host:5432/db and "
                 "install its driver (pip install 'reachlist[postgres]')",
             ) from None
@@ -119,8 +118,7 @@ class Warehouse:
             conn = engine.connect()
         except Exception as exc:
             raise WarehouseError(
-                f"Cannot reach warehouse {_redact(url)!r}: "
-                f"{redact_text(_first_line(exc), url)}.",
+                f"Cannot reach warehouse {_redact(url)!r}: {redact_text(_first_line(exc), url)}.",
                 hint="check host, port, database name and credentials, and that the server runs",
             ) from None
         return cls(url, dialect_named(engine.dialect.name), mapping, conn, engine)
@@ -169,8 +167,9 @@ class Warehouse:
                     for col in CONTRACT[name].column_names
                     if tmap.source(col) is None and tmap.column(col).lower() in by_name
                 }
-            casts, self._text_ids = plan_casts(self.mapping.tables, physical,
-                                               self.dialect.text_type)
+            casts, self._text_ids = plan_casts(
+                self.mapping.tables, physical, self.dialect.text_type
+            )
             self._typed = self.mapping.with_casts(casts)
         return self._typed
 

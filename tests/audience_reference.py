@@ -87,14 +87,16 @@ def reach_pairs(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataF
     return pl.concat(frames).sort("rule_rank", "customer_id")
 
 
-def target_holders(tables: dict[str, pl.DataFrame], target: Target, since: datetime,
-                   until: datetime) -> set[int]:
+def target_holders(
+    tables: dict[str, pl.DataFrame], target: Target, since: datetime, until: datetime
+) -> set[int]:
     h = held(tables, target.level, since, until)
     return set(h.filter(pl.col("item") == target.name)["customer_id"].to_list())
 
 
-def target_returners(tables: dict[str, pl.DataFrame], target: Target, since: datetime,
-                     until: datetime) -> set[int]:
+def target_returners(
+    tables: dict[str, pl.DataFrame], target: Target, since: datetime, until: datetime
+) -> set[int]:
     """Customers with a target SKU they bought (some line of positive quantity) and whose net
     quantity of it in [since, until) is zero or less."""
     lines = tables["order_lines"].unique()
@@ -213,16 +215,19 @@ def in_holdout(campaign_id: str, customer_id: int, share: float) -> bool:
 def normalise(frame: pl.DataFrame) -> pl.DataFrame:
     """SQL results in the reference's types and order (for exact comparison)."""
     cols = ["customer_id", "rule_id", "score", *FLAGS]
-    return frame.select(
-        pl.col("customer_id").cast(pl.Int64),
-        pl.col("rule_id").cast(pl.String),
-        pl.col("score").cast(pl.Float64),
-        *[pl.col(k).cast(pl.Boolean) for k in FLAGS],
-    ).select(cols).sort("customer_id")
+    return (
+        frame.select(
+            pl.col("customer_id").cast(pl.Int64),
+            pl.col("rule_id").cast(pl.String),
+            pl.col("score").cast(pl.Float64),
+            *[pl.col(k).cast(pl.Boolean) for k in FLAGS],
+        )
+        .select(cols)
+        .sort("customer_id")
+    )
 
 
-def make_ruleset(target: Target, rules: list[tuple], *, level: str = "sku",
-                 window=None) -> RuleSet:  # noqa: F821
+def make_ruleset(target: Target, rules: list[tuple], *, level: str = "sku", window=None) -> RuleSet:  # noqa: F821
     """A RuleSet built by hand: rules are (rule_id, antecedent, confidence[, lift, significant])."""
     from reachlist.rules import RuleSet
     from reachlist.targets import Window

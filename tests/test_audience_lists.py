@@ -48,18 +48,25 @@ def request(**kw: object) -> ListRequest:
     return ListRequest(**base)  # type: ignore[arg-type]
 
 
-def reference_outcome(world: Path, plan, in_use: set[str], contacted: set[int] = frozenset(),
-                      held_elsewhere: set[int] = frozenset()):
+def reference_outcome(
+    world: Path,
+    plan,
+    in_use: set[str],
+    contacted: set[int] = frozenset(),
+    held_elsewhere: set[int] = frozenset(),
+):
     tables = ref.load(world)
     aud = ref.audience(tables, plan.spec).with_columns(
         pl.col("customer_id").is_in(list(contacted)).alias("contacted_recently"),
         pl.col("customer_id").is_in(list(held_elsewhere)).alias("held_out_elsewhere"),
         ~pl.col("customer_id").is_in(list(ref.with_address(tables))).alias("no_address"),
         # the global holdout by hashlib directly (tests/audience_reference.py): seed, id, share
-        pl.col("customer_id").map_elements(
+        pl.col("customer_id")
+        .map_elements(
             lambda c: ref.in_holdout("reachlist-global", c, plan.request.global_holdout),
-            return_dtype=pl.Boolean
-        ).alias("global_holdout"),
+            return_dtype=pl.Boolean,
+        )
+        .alias("global_holdout"),
     )
     excluded = {r["customer_id"]: ref.first_exclusion(r, in_use) for r in aud.to_dicts()}
     return aud, excluded
@@ -69,12 +76,13 @@ def test_waterfall_holdout_and_per_rule_match_the_reference(world: Path) -> None
     with Warehouse.open(world) as wh:
         plan = plan_list(wh, request(holdout=0.3), rules=RULESET, now=NOW)
         out = preview_list(wh, plan, CampaignLog.open(wh))
-    _, excluded = reference_outcome(world, plan, {"has_target", "returned_target", "no_consent",
-                                                    "suppressed", "contacted_recently"})
+    _, excluded = reference_outcome(
+        world,
+        plan,
+        {"has_target", "returned_target", "no_consent", "suppressed", "contacted_recently"},
+    )
     removed = Counter(v for v in excluded.values() if v)
-    assert {s.key: s.removed for s in out.waterfall} == {
-        k: removed.get(k, 0) for k in ref.ORDER
-    }
+    assert {s.key: s.removed for s in out.waterfall} == {k: removed.get(k, 0) for k in ref.ORDER}
     assert out.waterfall[-1].remaining == sum(1 for v in excluded.values() if v is None)
     kept = sorted(c for c, v in excluded.items() if v is None)
     holdout = {c for c in kept if ref.in_holdout("c1", c, 0.3)}
@@ -108,8 +116,7 @@ def test_filters_and_age_restriction(world: Path) -> None:
     with Warehouse.open(world) as wh:
         plan = plan_list(
             wh,
-            request(target="R", stand_in="T",
-                    filters=Filters(regions=("north",), active_days=330)),
+            request(target="R", stand_in="T", filters=Filters(regions=("north",), active_days=330)),
             rules=RULESET,
             now=NOW,
         )
@@ -137,10 +144,10 @@ def test_frequency_cap_reads_the_campaign_log(world: Path) -> None:
         log.record(earlier, contacts)
         plan = plan_list(wh, request(), rules=RULESET, now=NOW)
         capped = preview_list(wh, plan, log)
-        uncapped = preview_list(wh, plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW),
-                                log)
-        late = preview_list(wh, plan_list(wh, request(), rules=RULESET, now=datetime(2026, 2, 1)),
-                            log)
+        uncapped = preview_list(wh, plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW), log)
+        late = preview_list(
+            wh, plan_list(wh, request(), rules=RULESET, now=datetime(2026, 2, 1)), log
+        )
     step = {s.key: s for s in capped.waterfall}["contacted_recently"]
     assert step.removed == 2  # 3 and 4; 10 was only in a holdout
     assert {s.key: s for s in uncapped.waterfall}["contacted_recently"].removed == 0
@@ -150,8 +157,8 @@ def test_frequency_cap_reads_the_campaign_log(world: Path) -> None:
 def test_clearance_list_is_sized_to_the_stock(world: Path) -> None:
     with Warehouse.open(world) as wh:
         small = preview_list(
-            wh, plan_list(wh, request(purpose="clear", stock=1, holdout=0.0), rules=RULESET,
-                          now=NOW)
+            wh,
+            plan_list(wh, request(purpose="clear", stock=1, holdout=0.0), rules=RULESET, now=NOW),
         )
         big = preview_list(
             wh, plan_list(wh, request(purpose="clear", holdout=0.0), rules=RULESET, now=NOW)
@@ -226,8 +233,15 @@ def test_build_writes_treatment_only_and_logs_both_groups(world: Path, tmp_path:
         record = log.campaign("c1")
         contacts = log.contacts("c1")
     written = pl.read_csv(out)
-    assert written.columns == ["customer_id", "campaign_id", "offer_item", "offer_name", "score",
-                               "rule_id", "because_bought"]
+    assert written.columns == [
+        "customer_id",
+        "campaign_id",
+        "offer_item",
+        "offer_name",
+        "score",
+        "rule_id",
+        "because_bought",
+    ]
     assert set(written["customer_id"]) == set(built.outcome.treatment["customer_id"])
     assert written["because_bought"][0] == "A and B"  # the hand-made products are named as coded
     assert set(written["campaign_id"]) == {"c1"} and set(written["offer_item"]) == {"T"}
@@ -321,11 +335,19 @@ def test_live_holdouts_stay_out_of_other_treatment_groups(world: Path, tmp_path:
     """Customers another campaign held out stay out of this one's treatment group until that
     campaign's horizon ends; checked against the log's own holdout rows and the reference."""
     with Warehouse.open(world) as wh:
-        first = plan_list(wh, request(campaign_id="c0", holdout=0.5, cap_days=0,
-                                      horizon_days=30), rules=RULESET, now=NOW)
+        first = plan_list(
+            wh,
+            request(campaign_id="c0", holdout=0.5, cap_days=0, horizon_days=30),
+            rules=RULESET,
+            now=NOW,
+        )
         build_list(wh, first, tmp_path / "c0.csv", log=CampaignLog.open(wh))
-        held = set(CampaignLog.open(wh).contacts("c0").filter(
-            pl.col("contact_group") == "holdout")["customer_id"].to_list())
+        held = set(
+            CampaignLog.open(wh)
+            .contacts("c0")
+            .filter(pl.col("contact_group") == "holdout")["customer_id"]
+            .to_list()
+        )
         soon = plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW + timedelta(days=10))
         during = preview_list(wh, soon, CampaignLog.open(wh))
         late = plan_list(wh, request(cap_days=0), rules=RULESET, now=NOW + timedelta(days=31))
@@ -335,7 +357,8 @@ def test_live_holdouts_stay_out_of_other_treatment_groups(world: Path, tmp_path:
     _, excluded = reference_outcome(world, soon, in_use, held_elsewhere=held)
     steps = {s.key: s for s in during.waterfall}
     assert steps["held_out_elsewhere"].removed == sum(
-        1 for v in excluded.values() if v == "held_out_elsewhere")
+        1 for v in excluded.values() if v == "held_out_elsewhere"
+    )
     assert steps["held_out_elsewhere"].removed > 0 and "c0" in steps["held_out_elsewhere"].note
     assert held.isdisjoint(during.treatment["customer_id"].to_list())
     gone = {s.key: s for s in after.waterfall}["held_out_elsewhere"]
@@ -388,11 +411,11 @@ def test_the_global_holdout_keeps_the_same_customers_out_of_every_campaign(world
     runs = []
     with Warehouse.open(world) as wh:
         for campaign in ("c1", "c2"):
-            plan = plan_list(wh, request(campaign_id=campaign, global_holdout=0.3),
-                             rules=RULESET, now=NOW)
+            plan = plan_list(
+                wh, request(campaign_id=campaign, global_holdout=0.3), rules=RULESET, now=NOW
+            )
             runs.append((plan, preview_list(wh, plan)))
-        off = preview_list(wh, plan_list(wh, request(global_holdout=0.0), rules=RULESET,
-                                         now=NOW))
+        off = preview_list(wh, plan_list(wh, request(global_holdout=0.0), rules=RULESET, now=NOW))
     removed = []
     for plan, out in runs:
         steps = {s.key: s for s in out.waterfall}

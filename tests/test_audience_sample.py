@@ -43,8 +43,12 @@ def test_planted_rule_audience_is_who_the_generator_planted(
     target = Target(planted["target_level"], planted["target"])
     window = Window(datetime.combine(PERIOD_START, datetime.min.time()), last_order_day(wh))
     rules = choose_rules(
-        ref.make_ruleset(target, [("P", planted["antecedent"], 0.5)],
-                         level=planted["antecedent_level"], window=window)
+        ref.make_ruleset(
+            target,
+            [("P", planted["antecedent"], 0.5)],
+            level=planted["antecedent_level"],
+            window=window,
+        )
     )
     spec = AudienceSpec(target, rules, planted["antecedent_level"], window)
     got = wh.fetch(audience_query(spec))
@@ -74,8 +78,14 @@ def test_mined_rules_audience_matches_the_reference(wh: Warehouse, tables: dict,
     pair = tuple(sorted((KEY_SKUS["propagator"], KEY_SKUS["seed_compost"])))
     assert pair in {tuple(sorted(r.antecedent)) for r in rules}
     for filters in (Filters(), Filters(("North", "East"), ("online",), 90)):
-        spec = AudienceSpec(Target("sku", KEY_SKUS["heated_mat"]), rules, "sku", mat_rules.window,
-                            filters=filters, bought_within_days=180)
+        spec = AudienceSpec(
+            Target("sku", KEY_SKUS["heated_mat"]),
+            rules,
+            "sku",
+            mat_rules.window,
+            filters=filters,
+            bought_within_days=180,
+        )
         got = wh.fetch(audience_query(spec))
         assert ref.normalise(got).equals(ref.audience(tables, spec))
 
@@ -83,11 +93,19 @@ def test_mined_rules_audience_matches_the_reference(wh: Warehouse, tables: dict,
 def test_category_target_and_age_restriction_match_the_reference(
     wh: Warehouse, tables: dict
 ) -> None:
-    for target, restricted in ((Target("category", "Bird Feeders & Tables"), False),
-                               (Target("sku", KEY_SKUS["butane_refill"]), True)):
+    for target, restricted in (
+        (Target("category", "Bird Feeders & Tables"), False),
+        (Target("sku", KEY_SKUS["butane_refill"]), True),
+    ):
         rs = mine_rules(wh, target, level="category" if target.level == "category" else "sku")
-        spec = AudienceSpec(target, choose_rules(rs), rs.level, rs.window,
-                            age_restricted=restricted, adult_born_by=NOW.date().replace(year=2008))
+        spec = AudienceSpec(
+            target,
+            choose_rules(rs),
+            rs.level,
+            rs.window,
+            age_restricted=restricted,
+            adult_born_by=NOW.date().replace(year=2008),
+        )
         got = wh.fetch(audience_query(spec))
         assert ref.normalise(got).equals(ref.audience(tables, spec))
         assert got.height > 500
@@ -105,18 +123,28 @@ def test_preview_is_quick_and_adds_up(wh: Warehouse, tables: dict) -> None:
     aud = ref.audience(tables, plan.spec).with_columns(
         pl.lit(False).alias("contacted_recently"),
         # the global holdout (2% by default) by hashlib directly
-        pl.col("customer_id").map_elements(lambda c: ref.in_holdout("reachlist-global", c, 0.02),
-                                           return_dtype=pl.Boolean).alias("global_holdout"),
+        pl.col("customer_id")
+        .map_elements(
+            lambda c: ref.in_holdout("reachlist-global", c, 0.02), return_dtype=pl.Boolean
+        )
+        .alias("global_holdout"),
     )
-    in_use = {"has_target", "returned_target", "no_consent", "suppressed", "contacted_recently",
-              "global_holdout"}
+    in_use = {
+        "has_target",
+        "returned_target",
+        "no_consent",
+        "suppressed",
+        "contacted_recently",
+        "global_holdout",
+    }
     expected = sum(1 for r in aud.to_dicts() if ref.first_exclusion(r, in_use) is None)
     assert kept == expected
 
 
 def test_clearing_the_frost_fleece_stops_at_the_stock(wh: Warehouse) -> None:
     plan = plan_list(
-        wh, ListRequest(KEY_SKUS["frost_fleece"], purpose="clear", stock=60, campaign_id="c"),
+        wh,
+        ListRequest(KEY_SKUS["frost_fleece"], purpose="clear", stock=60, campaign_id="c"),
         now=NOW,
     )
     out = preview_list(wh, plan)
@@ -125,8 +153,12 @@ def test_clearing_the_frost_fleece_stops_at_the_stock(wh: Warehouse) -> None:
     t = out.treatment.sort("score", descending=True)
     assert t["score"].sum() * c.units_per_buyer == pytest.approx(c.expected_units)
     assert c.expected_units >= 60 > c.expected_units - t["score"][-1] * c.units_per_buyer
-    whole = preview_list(wh, plan_list(wh, ListRequest(KEY_SKUS["frost_fleece"], purpose="clear",
-                                                       campaign_id="c"), now=NOW))
+    whole = preview_list(
+        wh,
+        plan_list(
+            wh, ListRequest(KEY_SKUS["frost_fleece"], purpose="clear", campaign_id="c"), now=NOW
+        ),
+    )
     assert whole.clearance is not None and whole.clearance.stock == 1200
     assert not whole.clearance.clears and whole.clearance.expected_units < 1200
 
@@ -140,7 +172,8 @@ def test_the_new_planter_is_introduced_through_its_category(wh: Warehouse) -> No
         refused.value.hint
     )
     plan = plan_list(
-        wh, ListRequest(new, stand_in="category:Indoor Pots & Planters", campaign_id="n"),
+        wh,
+        ListRequest(new, stand_in="category:Indoor Pots & Planters", campaign_id="n"),
         now=NOW,
     )
     assert plan.stand_in == Target("category", "Indoor Pots & Planters")

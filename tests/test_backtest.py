@@ -30,8 +30,11 @@ def mat_backtest(pristine: Path) -> Backtest:
 def test_planted_rule_take_up_within_interval(mat_backtest: Backtest) -> None:
     # Source: sample_warehouse/README.md, planted rule heated-mat: propagator + seed compost ->
     # heated mat, 30-day take-up of holders lacking the mat exactly 0.25 (hazard_30d).
-    pair = next(r for r in mat_backtest.rows
-                if r.rule is not None and set(r.rule.antecedent) == {"SG04-101", "PC06-101"})
+    pair = next(
+        r
+        for r in mat_backtest.rows
+        if r.rule is not None and set(r.rule.antecedent) == {"SG04-101", "PC06-101"}
+    )
     planted = 0.25 * pair.customers
     e = pair.estimate.expected
     assert e.low <= planted <= e.high
@@ -52,19 +55,22 @@ def test_combined_list_estimate_and_naive(mat_backtest: Backtest) -> None:
     assert mat_backtest.gains["cum_share_buyers"][0] > mat_backtest.gains["cum_share_customers"][0]
 
 
-def test_no_leakage_after_cutoff(pristine: Path, tmp_path: Path,
-                                 mat_backtest: Backtest) -> None:
+def test_no_leakage_after_cutoff(pristine: Path, tmp_path: Path, mat_backtest: Backtest) -> None:
     changed = tmp_path / "changed.duckdb"
     shutil.copy(pristine, changed)
     con = duckdb.connect(str(changed))
     # Every audience customer buys the target right after the cutoff, and later orders vanish.
     ids = mat_backtest.calibration.members(0)["customer_id"].head(300).to_list()
-    con.execute("DELETE FROM order_lines WHERE order_id IN "
-                "(SELECT order_id FROM orders WHERE ordered_at >= TIMESTAMP '2026-08-15')")
+    con.execute(
+        "DELETE FROM order_lines WHERE order_id IN "
+        "(SELECT order_id FROM orders WHERE ordered_at >= TIMESTAMP '2026-08-15')"
+    )
     con.execute("DELETE FROM orders WHERE ordered_at >= TIMESTAMP '2026-08-15'")
     for i, cid in enumerate(ids):
-        con.execute("INSERT INTO orders VALUES (?, ?, TIMESTAMP '2026-07-02 10:00:00', 'online')",
-                    [90_000_000 + i, cid])
+        con.execute(
+            "INSERT INTO orders VALUES (?, ?, TIMESTAMP '2026-07-02 10:00:00', 'online')",
+            [90_000_000 + i, cid],
+        )
         con.execute("INSERT INTO order_lines VALUES (?, 'SG04-104', 3, 30.00)", [90_000_000 + i])
     con.close()
     with Warehouse.open(changed, read_only=True) as wh:
@@ -76,7 +82,8 @@ def test_no_leakage_after_cutoff(pristine: Path, tmp_path: Path,
         assert a.estimate.expected == b.estimate.expected
         assert a.naive == b.naive
     assert after.calibration.members(0)["customer_id"].equals(
-        before.calibration.members(0)["customer_id"])
+        before.calibration.members(0)["customer_id"]
+    )
     assert after.combined.observed > before.combined.observed  # only the observation moved
 
 
@@ -90,9 +97,22 @@ def test_gains_chart_text_and_svg(mat_backtest: Backtest) -> None:
 
 def test_backtest_cli_json(pristine: Path, tmp_path: Path) -> None:
     chart = tmp_path / "gains.svg"
-    res = CliRunner().invoke(main, ["backtest", "TW18-101", "--cutoff", CUTOFF, "-w",
-                                    str(pristine), "--json", "--chart", str(chart),
-                                    "--top", "2"])
+    res = CliRunner().invoke(
+        main,
+        [
+            "backtest",
+            "TW18-101",
+            "--cutoff",
+            CUTOFF,
+            "-w",
+            str(pristine),
+            "--json",
+            "--chart",
+            str(chart),
+            "--top",
+            "2",
+        ],
+    )
     assert res.exit_code == 0, res.output
     data = json.loads(res.output)
     assert data["audiences"][-1]["audience"] == "combined"
@@ -101,17 +121,35 @@ def test_backtest_cli_json(pristine: Path, tmp_path: Path) -> None:
 
 
 def test_backtest_cli_bad_cutoff(pristine: Path) -> None:
-    res = CliRunner().invoke(main, ["backtest", "SG04-104", "--cutoff", "2026-07-01x", "-w",
-                                    str(pristine)])
+    res = CliRunner().invoke(
+        main, ["backtest", "SG04-104", "--cutoff", "2026-07-01x", "-w", str(pristine)]
+    )
     assert res.exit_code != 0 and "Expected --cutoff as a date" in res.output
 
 
 def test_backtest_takes_the_options_that_shape_a_list(pristine: Path) -> None:
     """--max-antecedent, --min-support, --basket and --cutoffs reach the rebuilt audiences, so
     a backtest can rebuild the lists `build` made."""
-    res = CliRunner().invoke(main, ["backtest", "TW18-101", "--cutoff", CUTOFF, "-w",
-                                    str(pristine), "--json", "--top", "3", "--max-antecedent",
-                                    "1", "--cutoffs", "3", "--min-support", "0.004"])
+    res = CliRunner().invoke(
+        main,
+        [
+            "backtest",
+            "TW18-101",
+            "--cutoff",
+            CUTOFF,
+            "-w",
+            str(pristine),
+            "--json",
+            "--top",
+            "3",
+            "--max-antecedent",
+            "1",
+            "--cutoffs",
+            "3",
+            "--min-support",
+            "0.004",
+        ],
+    )
     assert res.exit_code == 0, res.output
     data = json.loads(res.output)
     rules = [a for a in data["audiences"] if a["audience"] != "combined"]

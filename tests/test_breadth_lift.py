@@ -98,8 +98,9 @@ def test_breadth_lift_is_the_mantel_haenszel_risk_ratio_of_the_strata(
 
 
 def test_rules_shows_and_ranks_by_breadth_lift(pristine: Path) -> None:
-    result = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--by", "breadth_lift",
-                                       "--top", "5", "--json"])
+    result = CliRunner().invoke(
+        main, ["rules", MAT, "-w", str(pristine), "--by", "breadth_lift", "--top", "5", "--json"]
+    )
     assert result.exit_code == 0, result.output
     rules = json.loads(result.stdout)["rules"]
     values = [r["breadth_lift"] for r in rules if r["breadth_lift"] is not None]
@@ -108,16 +109,19 @@ def test_rules_shows_and_ranks_by_breadth_lift(pristine: Path) -> None:
     assert "b.lift" in table.output and "added value over shopping breadth" in table.output
     none = CliRunner().invoke(main, ["rules", "-w", str(pristine), "--by", "breadth_lift"])
     assert none.exit_code == 2 and none.output.startswith("Error:")
-    orders = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--basket", "order",
-                                       "--by", "breadth_lift"])
+    orders = CliRunner().invoke(
+        main, ["rules", MAT, "-w", str(pristine), "--basket", "order", "--by", "breadth_lift"]
+    )
     assert orders.exit_code == 2 and "--basket customer" in orders.output
 
 
-def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(pristine: Path,
-                                                               ruleset: RuleSet) -> None:
+def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(
+    pristine: Path, ruleset: RuleSet
+) -> None:
     with Warehouse.open(pristine, read_only=True) as wh:
-        by_breadth = plan_list(wh, ListRequest(MAT, rank_by="breadth_lift", campaign_id="b"),
-                               rules=ruleset)
+        by_breadth = plan_list(
+            wh, ListRequest(MAT, rank_by="breadth_lift", campaign_id="b"), rules=ruleset
+        )
         values = [r.breadth_lift for r in by_breadth.rules]
         assert values == sorted(values, reverse=True)  # type: ignore[type-var]
         plain = preview_list(wh, plan_list(wh, ListRequest(MAT, campaign_id="m"), rules=ruleset))
@@ -130,12 +134,16 @@ def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(pristine: Path,
         )
     assert {r.rule_id for r in trimmed.plan.rules} == set(own) - small
     assert all(rr.kept >= cut for rr in trimmed.per_rule or [])
-    assert any(n.startswith("Not proposed") and f"--min-audience {cut:,}" in n
-               for n in trimmed.plan.notes)
-    with Warehouse.open(pristine, read_only=True) as wh, pytest.raises(EmptyResultError,
-                                                                     match="--min-audience"):
+    assert any(
+        n.startswith("Not proposed") and f"--min-audience {cut:,}" in n for n in trimmed.plan.notes
+    )
+    with (
+        Warehouse.open(pristine, read_only=True) as wh,
+        pytest.raises(EmptyResultError, match="--min-audience"),
+    ):
         preview_list(wh, plan_list(wh, ListRequest(MAT, min_audience=10**6), rules=ruleset))
-    out = CliRunner().invoke(main, ["sizes", MAT, "-w", str(pristine), "--no-estimate",
-                                    "--min-audience", str(cut)])
+    out = CliRunner().invoke(
+        main, ["sizes", MAT, "-w", str(pristine), "--no-estimate", "--min-audience", str(cut)]
+    )
     assert out.exit_code == 0, out.output
     assert "Not proposed" in out.output and "b.lift" in out.output

@@ -31,8 +31,18 @@ def built(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> tuple[Pat
     folder = tmp_path_factory.mktemp("brief")
     wh = folder / "garden.duckdb"
     shutil.copy(pristine, wh)
-    result = run("build", MAT, "-w", str(wh), "--out", str(folder / "mats.csv"), "--campaign",
-                 "brief-1", "--cutoffs", "3")
+    result = run(
+        "build",
+        MAT,
+        "-w",
+        str(wh),
+        "--out",
+        str(folder / "mats.csv"),
+        "--campaign",
+        "brief-1",
+        "--cutoffs",
+        "3",
+    )
     assert result.exit_code == 0, result.output
     page = folder / "brief.html"
     written = run("brief", "brief-1", "-w", str(wh), "--out", str(page))
@@ -56,9 +66,11 @@ def test_the_brief_agrees_with_the_campaign_log(built: tuple[Path, Path, dict]) 
     assert data["offer_name"] and data["rules"][0]["in_words"].startswith("bought ")
 
 
-@pytest.mark.skipif(not (CHROMIUM and CHROMEDRIVER),
-                    reason="needs Chromium and ChromeDriver from the system packages "
-                    "(.ci/run installs chromium and chromium-driver)")
+@pytest.mark.skipif(
+    not (CHROMIUM and CHROMEDRIVER),
+    reason="needs Chromium and ChromeDriver from the system packages "
+    "(.ci/run installs chromium and chromium-driver)",
+)
 def test_the_page_in_a_real_browser_shows_the_json_numbers(
     built: tuple[Path, Path, dict],
 ) -> None:
@@ -77,8 +89,10 @@ def test_the_page_in_a_real_browser_shows_the_json_numbers(
         driver.get(page.as_uri())
         errors = [e for e in driver.get_log("browser") if e["level"] == "SEVERE"]
         assert errors == []
-        field = {el.get_attribute("data-field"): el.text
-                 for el in driver.find_elements(By.CSS_SELECTOR, "[data-field]")}
+        field = {
+            el.get_attribute("data-field"): el.text
+            for el in driver.find_elements(By.CSS_SELECTOR, "[data-field]")
+        }
         assert field["campaign_id"] == "brief-1"
         assert field["treatment"] == f"{data['treatment']:,}"
         assert field["holdout"] == f"{data['holdout']:,}"
@@ -87,11 +101,14 @@ def test_the_page_in_a_real_browser_shows_the_json_numbers(
         assert field["expected"] == f"{exp['expected']:,.0f}"
         assert field["expected_low"] == f"{exp['low']:,.0f}"
         assert field["expected_high"] == f"{exp['high']:,.0f}"
-        shown = [int(el.text.replace(",", "")) for el in
-                 driver.find_elements(By.CSS_SELECTOR, "[data-rule-treatment]")]
+        shown = [
+            int(el.text.replace(",", ""))
+            for el in driver.find_elements(By.CSS_SELECTOR, "[data-rule-treatment]")
+        ]
         assert sum(shown) == data["treatment"]
         embedded = driver.execute_script(
-            "return JSON.parse(document.getElementById('brief-data').textContent)")
+            "return JSON.parse(document.getElementById('brief-data').textContent)"
+        )
         assert embedded == data
         charts = driver.find_elements(By.CSS_SELECTOR, ".chart svg")
         assert len(charts) == 2 and all(c.size["width"] > 300 for c in charts)

@@ -93,8 +93,14 @@ def test_a_build_killed_at_each_stage_never_logs_a_missing_list(
     out = tmp_path / "lists" / "mats.csv"
     out.parent.mkdir()
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    done = subprocess.run([sys.executable, "-c", KILLER, str(world), str(out), str(stop_at)],
-                          cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+    done = subprocess.run(
+        [sys.executable, "-c", KILLER, str(world), str(out), str(stop_at)],
+        cwd=ROOT,
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert done.returncode == -signal.SIGKILL, done.stderr
     assert done.stdout.splitlines()[-1] == f"{stop_at} {BUILD_STAGES[stop_at - 1]}"
     present, logged, hidden = state(world, out)
@@ -111,8 +117,9 @@ def test_a_build_killed_at_each_stage_never_logs_a_missing_list(
     # the next build to the same place removes the left-over and completes the campaign
     with Warehouse.open(world) as wh:
         plan = plan_list(wh, request(), rules=RULESET, now=NOW)
-        built = build_list(wh, plan, out, log=CampaignLog.open(wh), force=True,
-                           replace=stop_at == 4)
+        built = build_list(
+            wh, plan, out, log=CampaignLog.open(wh), force=True, replace=stop_at == 4
+        )
     assert any("Removed 1 staging file" in n for n in built.notes) == (stop_at <= 2)
     present, logged, hidden = state(world, out)
     assert present and hidden == []
@@ -158,8 +165,9 @@ def test_a_list_that_cannot_be_moved_into_place_is_not_logged(world: Path, tmp_p
 
 def test_leftovers_of_live_or_unknown_processes_are_reported_not_removed(tmp_path: Path) -> None:
     out = tmp_path / "mats.csv"
-    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
-                          capture_output=True, text=True).stdout.strip()
+    dead = subprocess.run(
+        [sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True
+    ).stdout.strip()
     files = {
         "dead": tmp_path / f".mats.csv.{dead}-abc.tmp",
         "live": tmp_path / f".mats.csv.{os.getpid()}-abc.tmp",
@@ -184,9 +192,11 @@ def test_log_tables_get_unique_keys_and_old_keyless_tables_keep_working(
         first = build_list(wh, plan, tmp_path / "a.csv", log=CampaignLog.open(wh))
         assert CampaignLog(wh).unkeyed() == [] and first.notes == ()
     con = duckdb.connect(str(world))
-    keys = con.execute("SELECT table_name, constraint_type FROM information_schema."
-                       "table_constraints WHERE constraint_type = 'PRIMARY KEY' "
-                       "ORDER BY 1").fetchall()
+    keys = con.execute(
+        "SELECT table_name, constraint_type FROM information_schema."
+        "table_constraints WHERE constraint_type = 'PRIMARY KEY' "
+        "ORDER BY 1"
+    ).fetchall()
     assert keys == [("campaign_contacts", "PRIMARY KEY"), ("campaigns", "PRIMARY KEY")]
     with pytest.raises(duckdb.ConstraintException):
         con.execute("INSERT INTO campaigns SELECT * FROM campaigns")
@@ -243,8 +253,14 @@ def test_concurrent_replace_builds_on_postgres_log_a_campaign_once(
 
         try:
             with Warehouse.open(pg_url, mapping) as wh:
-                results[i] = build_list(wh, plan, tmp_path / f"l{i}.csv",
-                                        log=CampaignLog.open(wh), replace=True, progress=wait)
+                results[i] = build_list(
+                    wh,
+                    plan,
+                    tmp_path / f"l{i}.csv",
+                    log=CampaignLog.open(wh),
+                    replace=True,
+                    progress=wait,
+                )
         except Exception as exc:
             results[i] = exc
 
@@ -254,12 +270,12 @@ def test_concurrent_replace_builds_on_postgres_log_a_campaign_once(
     for t in threads:
         t.join(120)
     with Warehouse.open(pg_url, mapping) as wh:
-        assert CampaignLog(wh).unkeyed() == ([] if keys else [f"{pg_schema}.campaigns",
-                                                              f"{pg_schema}.campaign_contacts"])
+        assert CampaignLog(wh).unkeyed() == (
+            [] if keys else [f"{pg_schema}.campaigns", f"{pg_schema}.campaign_contacts"]
+        )
         logged = CampaignLog(wh).contacts("c1").height
         records = wh.scalar(ref_count_query())
-    listed = next(r.outcome.listed.height for r in results.values()
-                  if not isinstance(r, Exception))
+    listed = next(r.outcome.listed.height for r in results.values() if not isinstance(r, Exception))
     wins = [i for i, r in results.items() if not isinstance(r, Exception)]
     if keys:
         assert len(wins) == 1, results

@@ -45,17 +45,47 @@ def test_a_file_builds_what_the_same_options_build(sample: Path, tmp_path: Path)
     spec.write_text(CAMPAIGN)
     twin = tmp_path / "twin.duckdb"  # the typed build runs on its own copy: on the same log the
     shutil.copy(sample, twin)  # first campaign's holdout would be kept out of the second
-    by_file = run("build", "-w", str(sample), "--campaign-file", str(spec), "--no-estimate",
-                  "--out", str(tmp_path / "file.csv"))
+    by_file = run(
+        "build",
+        "-w",
+        str(sample),
+        "--campaign-file",
+        str(spec),
+        "--no-estimate",
+        "--out",
+        str(tmp_path / "file.csv"),
+    )
     assert by_file.exit_code == 0, by_file.output
-    typed = run("build", MAT, "-w", str(twin), "--no-estimate", "--campaign", "typed",
-                "--send-date", "2026-12-07", "--top", "3", "--cap-days", "0", "--holdout", "0.2",
-                "--offer-code", "MAT-15", "--out", str(tmp_path / "typed.csv"))
+    typed = run(
+        "build",
+        MAT,
+        "-w",
+        str(twin),
+        "--no-estimate",
+        "--campaign",
+        "typed",
+        "--send-date",
+        "2026-12-07",
+        "--top",
+        "3",
+        "--cap-days",
+        "0",
+        "--holdout",
+        "0.2",
+        "--offer-code",
+        "MAT-15",
+        "--out",
+        str(tmp_path / "typed.csv"),
+    )
     assert typed.exit_code == 0, typed.output
     a, b = pl.read_csv(tmp_path / "file.csv"), pl.read_csv(tmp_path / "typed.csv")
     # the holdout hashes the campaign id, so compare everyone listed (treatment and holdout)
-    listed_a = set(a["customer_id"]) | set(pl.read_csv(tmp_path / "file.holdout.csv")["customer_id"])
-    listed_b = set(b["customer_id"]) | set(pl.read_csv(tmp_path / "typed.holdout.csv")["customer_id"])
+    listed_a = set(a["customer_id"]) | set(
+        pl.read_csv(tmp_path / "file.holdout.csv")["customer_id"]
+    )
+    listed_b = set(b["customer_id"]) | set(
+        pl.read_csv(tmp_path / "typed.holdout.csv")["customer_id"]
+    )
     assert listed_a == listed_b and set(a["offer_code"]) == {"MAT-15"}
     assert set(a["campaign_id"]) == {"winter-mats"}
     # the log keeps the file as written; it rebuilds the identical list
@@ -63,8 +93,17 @@ def test_a_file_builds_what_the_same_options_build(sample: Path, tmp_path: Path)
     assert stored.exit_code == 0 and stored.output == CAMPAIGN
     again = tmp_path / "again.toml"
     again.write_text(stored.output)
-    rebuilt = run("build", "-w", str(sample), "--campaign-file", str(again), "--no-estimate",
-                  "--out", str(tmp_path / "again.csv"), "--replace")
+    rebuilt = run(
+        "build",
+        "-w",
+        str(sample),
+        "--campaign-file",
+        str(again),
+        "--no-estimate",
+        "--out",
+        str(tmp_path / "again.csv"),
+        "--replace",
+    )
     assert rebuilt.exit_code == 0, rebuilt.output
     assert pl.read_csv(tmp_path / "again.csv").equals(a)
 
@@ -72,8 +111,16 @@ def test_a_file_builds_what_the_same_options_build(sample: Path, tmp_path: Path)
 def test_the_command_line_wins_over_the_file(sample: Path, tmp_path: Path) -> None:
     spec = tmp_path / "mats.toml"
     spec.write_text(CAMPAIGN)
-    result = run("sizes", "-w", str(sample), "--campaign-file", str(spec), "--no-estimate",
-                 "--holdout", "0.5")
+    result = run(
+        "sizes",
+        "-w",
+        str(sample),
+        "--campaign-file",
+        str(spec),
+        "--no-estimate",
+        "--holdout",
+        "0.5",
+    )
     assert result.exit_code == 0, result.output
     assert "50% by hash" in " ".join(result.output.split())
 
@@ -110,8 +157,11 @@ def test_a_wrong_file_on_the_command_line_is_one_line(sample: Path, tmp_path: Pa
 def test_project_defaults_apply_to_every_command(sample: Path, tmp_path: Path) -> None:
     defaults = tmp_path / "reachlist.toml"
     defaults.write_text(f'[defaults]\nwarehouse = "{sample}"\nholdout = 0.3\ncap_days = 0\n')
-    assert read_project_defaults(defaults) == {"warehouse": str(sample), "holdout": 0.3,
-                                               "cap_days": 0}
+    assert read_project_defaults(defaults) == {
+        "warehouse": str(sample),
+        "holdout": 0.3,
+        "cap_days": 0,
+    }
     env = {"REACHLIST_DEFAULTS": str(defaults), "REACHLIST_WAREHOUSE": None}
     result = run("sizes", MAT, "--no-estimate", env=env)  # no -w: the project file names it
     assert result.exit_code == 0, result.output

@@ -27,8 +27,18 @@ def run(*args: str):
 
 
 def _build(sample: Path, out: Path, target: str, campaign: str, *extra: str) -> None:
-    result = run("build", target, "-w", str(sample), "--no-estimate", "--out", str(out),
-                 "--campaign", campaign, *extra)
+    result = run(
+        "build",
+        target,
+        "-w",
+        str(sample),
+        "--no-estimate",
+        "--out",
+        str(out),
+        "--campaign",
+        campaign,
+        *extra,
+    )
     assert result.exit_code == 0, result.output
 
 

@@ -25,8 +25,12 @@ def contacts(ids: list[int | None], group: str = "treatment") -> pl.DataFrame:
             "score": [0.25] * len(ids),
             "reason": ["R1"] * len(ids),
         },
-        schema={"customer_id": pl.Int64, "contact_group": pl.String, "score": pl.Float64,
-                "reason": pl.String},
+        schema={
+            "customer_id": pl.Int64,
+            "contact_group": pl.String,
+            "score": pl.Float64,
+            "reason": pl.String,
+        },
     )
 
 

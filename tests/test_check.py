@@ -131,8 +131,12 @@ def test_every_problem_in_one_run(tiny: Path) -> None:
     con.execute("ALTER TABLE customers RENAME COLUMN region TO area")
     con.close()
     problems = _problems(tiny)
-    assert sorted(p.what for p in problems) == ["missing column", "missing column",
-                                                "missing table", "wrong type"]
+    assert sorted(p.what for p in problems) == [
+        "missing column",
+        "missing column",
+        "missing table",
+        "wrong type",
+    ]
     with Warehouse.open(tiny) as wh:
         buf = io.StringIO()
         render_check(check_warehouse(wh), Console(file=buf, width=80))
@@ -248,12 +252,16 @@ def test_the_readme_lists_every_column_of_the_contract() -> None:
     from reachlist.schema import CONTRACT
 
     readme = (Path(__file__).parents[1] / "README.md").read_text()
-    rows = {tuple(c.strip() for c in line.strip("|").split("|")[:3])
-            for line in readme.splitlines() if line.startswith("| ")}
+    rows = {
+        tuple(c.strip() for c in line.strip("|").split("|")[:3])
+        for line in readme.splitlines()
+        if line.startswith("| ")
+    }
     for table in CONTRACT.values():
         for col in table.columns:
             if table.owned:
                 assert any(r[0] == table.name and col.name in r[1] for r in rows), col.name
             else:
-                assert any(r[:2] == (table.name, col.name) and r[2].startswith(col.kind)
-                           for r in rows), (table.name, col.name, col.kind)
+                assert any(
+                    r[:2] == (table.name, col.name) and r[2].startswith(col.kind) for r in rows
+                ), (table.name, col.name, col.kind)

@@ -115,8 +115,16 @@ def test_a_server_that_never_answers_times_out() -> None:
     thread.start()
     try:
         started = time.monotonic()
-        line = one_line(run("check", "-w", f"postgresql+psycopg://u@127.0.0.1:{port}/x",
-                            "--connect-timeout", "2"), 4)
+        line = one_line(
+            run(
+                "check",
+                "-w",
+                f"postgresql+psycopg://u@127.0.0.1:{port}/x",
+                "--connect-timeout",
+                "2",
+            ),
+            4,
+        )
         waited = time.monotonic() - started
     finally:
         stop.set()
@@ -134,17 +142,38 @@ def test_read_only_commands_leave_the_warehouse_untouched(sample: Path, tmp_path
     process (which refuses writers) does not stop them."""
     before = hashlib.sha256(sample.read_bytes()).hexdigest()
     holder = subprocess.Popen(
-        [sys.executable, "-c", "import duckdb, sys, time; c = duckdb.connect(sys.argv[1], "
-         "read_only=True); print('open', flush=True); time.sleep(120)", str(sample)],
-        stdout=subprocess.PIPE, text=True)
+        [
+            sys.executable,
+            "-c",
+            "import duckdb, sys, time; c = duckdb.connect(sys.argv[1], "
+            "read_only=True); print('open', flush=True); time.sleep(120)",
+            str(sample),
+        ],
+        stdout=subprocess.PIPE,
+        text=True,
+    )
     try:
         assert holder.stdout is not None and holder.stdout.readline().strip() == "open"
-        for args in (("rules", MAT), ("sizes", MAT, "--no-estimate"), ("check",),
-                     ("campaigns",), ("items", "mat")):
+        for args in (
+            ("rules", MAT),
+            ("sizes", MAT, "--no-estimate"),
+            ("check",),
+            ("campaigns",),
+            ("items", "mat"),
+        ):
             result = run(*args, "-w", str(sample))
             assert result.exit_code == 0, (args, result.output)
-        built = run("build", MAT, "-w", str(sample), "--no-estimate", "--out",
-                    str(tmp_path / "a.csv"), "--state", str(tmp_path / "state.duckdb"))
+        built = run(
+            "build",
+            MAT,
+            "-w",
+            str(sample),
+            "--no-estimate",
+            "--out",
+            str(tmp_path / "a.csv"),
+            "--state",
+            str(tmp_path / "state.duckdb"),
+        )
         assert built.exit_code == 0, built.output
     finally:
         holder.kill()
@@ -154,10 +183,22 @@ def test_read_only_commands_leave_the_warehouse_untouched(sample: Path, tmp_path
 
 def test_two_previews_run_at_once(pristine: Path) -> None:
     """Read-only commands open DuckDB read-only, so two processes can preview together."""
-    cmd = [sys.executable, "-m", "reachlist.cli", "sizes", MAT, "-w", str(pristine),
-           "--no-estimate", "--campaign", "x"]
-    procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-             for _ in range(2)]
+    cmd = [
+        sys.executable,
+        "-m",
+        "reachlist.cli",
+        "sizes",
+        MAT,
+        "-w",
+        str(pristine),
+        "--no-estimate",
+        "--campaign",
+        "x",
+    ]
+    procs = [
+        subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        for _ in range(2)
+    ]
     results = [p.communicate(timeout=300) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], results
 

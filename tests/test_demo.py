@@ -24,13 +24,34 @@ def test_demo_runs_end_to_end_and_twice(tmp_path: Path) -> None:
 
 
 def test_public_api_is_pinned() -> None:
-    assert sorted(reachlist.__all__) == sorted([
-        "ContractError", "EmptyResultError", "InputError", "Mapping", "ReachlistError",
-        "StateError", "Warehouse", "WarehouseError", "__version__",
-        "CampaignLog", "ListRequest", "RuleSet", "backtest", "brief_data", "build_list",
-        "build_sample", "calibrate_audience", "campaign_results", "check_warehouse",
-        "estimate_takeup", "find_items", "list_campaigns", "mine_rules", "plan_list",
-        "preview_list",
-    ])
+    assert sorted(reachlist.__all__) == sorted(
+        [
+            "ContractError",
+            "EmptyResultError",
+            "InputError",
+            "Mapping",
+            "ReachlistError",
+            "StateError",
+            "Warehouse",
+            "WarehouseError",
+            "__version__",
+            "CampaignLog",
+            "ListRequest",
+            "RuleSet",
+            "backtest",
+            "brief_data",
+            "build_list",
+            "build_sample",
+            "calibrate_audience",
+            "campaign_results",
+            "check_warehouse",
+            "estimate_takeup",
+            "find_items",
+            "list_campaigns",
+            "mine_rules",
+            "plan_list",
+            "preview_list",
+        ]
+    )
     for name in reachlist.__all__:
         assert hasattr(reachlist, name)

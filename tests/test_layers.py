@@ -62,7 +62,9 @@ def test_module_imports_only_what_its_layer_may(module: str) -> None:
         wrong += [i for i in reachlist if _layer(i) == "render"]
         wrong += [i for i in imports if _top(i) in TERMINAL]
     if layer == "stats":
-        wrong += [i for i in reachlist if _layer(i) != "stats" and not i.startswith("reachlist.errors")]
+        wrong += [
+            i for i in reachlist if _layer(i) != "stats" and not i.startswith("reachlist.errors")
+        ]
     if layer != "engine":
         wrong += [i for i in imports if _top(i) in DATABASE_DRIVERS]
     assert not wrong, f"{module} ({layer} layer) imports {sorted(set(wrong))}"

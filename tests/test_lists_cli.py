@@ -58,14 +58,24 @@ def test_sizes_shows_rules_waterfall_holdout_and_labels_the_rate(sample: Path) -
     result = run("sizes", MAT, "-w", str(sample), "--campaign", "preview")
     assert result.exit_code == 0, result.output
     text = result.output
-    for expected in ("Rules, best first", "Exclusions, in order", "already has the target",
-                     "no marketing consent", "held out", "Historical co-purchase rate",
-                     "not a take-up forecast", CAUTION_START):
+    for expected in (
+        "Rules, best first",
+        "Exclusions, in order",
+        "already has the target",
+        "no marketing consent",
+        "held out",
+        "Historical co-purchase rate",
+        "not a take-up forecast",
+        CAUTION_START,
+    ):
         assert expected in text, expected
     # the rate is never presented as take-up (take-up is the estimate's, labelled as expected
     # buyers; see tests/test_takeup_wiring.py)
-    assert all("not a take-up forecast" in ln for ln in text.splitlines()
-               if "co-purchase rate" in ln and "take-up" in ln)
+    assert all(
+        "not a take-up forecast" in ln
+        for ln in text.splitlines()
+        if "co-purchase rate" in ln and "take-up" in ln
+    )
     with Warehouse.open(sample, read_only=True) as wh:
         assert not CampaignLog(wh).present()  # a preview writes nothing
 
@@ -77,8 +87,15 @@ def test_build_writes_logs_and_refuses_to_overwrite(sample: Path, tmp_path: Path
     assert first.exit_code == 0, first.output
     assert "Wrote" in first.output and CAUTION_START in first.output
     listed = pl.read_csv(out)
-    assert listed.columns == ["customer_id", "campaign_id", "offer_item", "offer_name", "score",
-                              "rule_id", "because_bought"]
+    assert listed.columns == [
+        "customer_id",
+        "campaign_id",
+        "offer_item",
+        "offer_name",
+        "score",
+        "rule_id",
+        "because_bought",
+    ]
     con = duckdb.connect(str(sample), read_only=True)
     names = dict(con.execute("SELECT sku, name FROM products").fetchall())
     consent = dict(con.execute("SELECT customer_id, consent_date FROM customers").fetchall())
@@ -110,8 +127,9 @@ def test_build_writes_logs_and_refuses_to_overwrite(sample: Path, tmp_path: Path
 
 def test_parquet_lists_carry_their_provenance(sample: Path, tmp_path: Path) -> None:
     out = tmp_path / "mats.parquet"
-    result = run("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "pq-1",
-                 "--no-estimate")
+    result = run(
+        "build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "pq-1", "--no-estimate"
+    )
     assert result.exit_code == 0, result.output
     meta = json.loads(pl.read_parquet_metadata(out)["reachlist"])
     listed, held = pl.read_parquet(out), pl.read_parquet(tmp_path / "mats.holdout.parquet")
@@ -122,8 +140,18 @@ def test_parquet_lists_carry_their_provenance(sample: Path, tmp_path: Path) -> N
 
 
 def test_an_offer_code_is_checked_before_any_work(sample: Path, tmp_path: Path) -> None:
-    line = one_error_line(run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "a.csv"),
-                              "--offer-code", "=HYPERLINK(1)"))
+    line = one_error_line(
+        run(
+            "build",
+            MAT,
+            "-w",
+            str(sample),
+            "--out",
+            str(tmp_path / "a.csv"),
+            "--offer-code",
+            "=HYPERLINK(1)",
+        )
+    )
     assert "--offer-code" in line and "found '=HYPERLINK(1)'" in line
     assert [p.name for p in tmp_path.iterdir()] == [sample.name]  # nothing written
 
@@ -133,8 +161,17 @@ def test_files_follow_the_umask(sample: Path, tmp_path: Path) -> None:
 
     old = os.umask(0o022)
     try:
-        result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "u.csv"),
-                     "--campaign", "u", "--no-estimate")
+        result = run(
+            "build",
+            MAT,
+            "-w",
+            str(sample),
+            "--out",
+            str(tmp_path / "u.csv"),
+            "--campaign",
+            "u",
+            "--no-estimate",
+        )
     finally:
         os.umask(old)
     assert result.exit_code == 0, result.output
@@ -143,8 +180,17 @@ def test_files_follow_the_umask(sample: Path, tmp_path: Path) -> None:
 
 
 def test_switching_off_consent_is_printed_and_logged(sample: Path, tmp_path: Path) -> None:
-    result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "a.parquet"),
-                 "--campaign", "loud", "--ignore-consent")
+    result = run(
+        "build",
+        MAT,
+        "-w",
+        str(sample),
+        "--out",
+        str(tmp_path / "a.parquet"),
+        "--campaign",
+        "loud",
+        "--ignore-consent",
+    )
     assert result.exit_code == 0, result.output
     assert "Override: marketing-consent exclusion switched off" in result.output
     with Warehouse.open(sample, read_only=True) as wh:
@@ -157,16 +203,36 @@ def test_state_file_keeps_the_log_out_of_the_warehouse(sample: Path, tmp_path: P
     state = tmp_path / "state.duckdb"
     assert run("sizes", MAT, "-w", str(sample), "--state", str(state)).exit_code == 0
     assert not state.exists()  # a preview creates nothing
-    result = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "l.csv"),
-                 "--state", str(state), "--campaign", "st")
+    result = run(
+        "build",
+        MAT,
+        "-w",
+        str(sample),
+        "--out",
+        str(tmp_path / "l.csv"),
+        "--state",
+        str(state),
+        "--campaign",
+        "st",
+    )
     assert result.exit_code == 0, result.output
     with Warehouse.open(sample, read_only=True) as wh:
         assert not CampaignLog(wh).present()
     with Warehouse.open(state, read_only=True) as db:
         assert CampaignLog(db).has_campaign("st")
     # the frequency cap now reads that state file
-    capped = run("sizes", MAT, "-w", str(sample), "--state", str(state), "--campaign", "next",
-                 "--min-audience", "0")  # st's treatment is capped and its holdout kept out
+    capped = run(
+        "sizes",
+        MAT,
+        "-w",
+        str(sample),
+        "--state",
+        str(state),
+        "--campaign",
+        "next",
+        "--min-audience",
+        "0",
+    )  # st's treatment is capped and its holdout kept out
     assert capped.exit_code == 0
     line = next(ln for ln in capped.output.splitlines() if "frequency cap" in ln)
     assert line.split()[-2] != "0"
@@ -201,7 +267,8 @@ def test_bad_input_is_one_line(sample: Path, tmp_path: Path) -> None:
     line = one_error_line(run("build", MAT, "-w", str(sample), "--out", str(existing)))
     assert "already exists" in line and existing.read_text() == "keep me\n"
     assert ".csv or .parquet" in one_error_line(
-        run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "x.xlsx")))
+        run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "x.xlsx"))
+    )
     assert "Rnope" in one_error_line(run("sizes", MAT, "-w", str(sample), "--rule", "Rnope"))
     con = duckdb.connect(str(sample), read_only=True)
     assert con.execute("SELECT count(*) FROM orders").fetchone()[0] > 0
@@ -209,8 +276,16 @@ def test_bad_input_is_one_line(sample: Path, tmp_path: Path) -> None:
 
 
 def test_overlap_flags_items_that_sell_together(sample: Path) -> None:
-    result = run("overlap", KEY_SKUS["pressure_washer"], KEY_SKUS["patio_cleaner"],
-                 KEY_SKUS["houseplant_feed"], "-w", str(sample), "--basket", "customer")
+    result = run(
+        "overlap",
+        KEY_SKUS["pressure_washer"],
+        KEY_SKUS["patio_cleaner"],
+        KEY_SKUS["houseplant_feed"],
+        "-w",
+        str(sample),
+        "--basket",
+        "customer",
+    )
     assert result.exit_code == 0, result.output
     assert f"{KEY_SKUS['pressure_washer']} + {KEY_SKUS['patio_cleaner']}" in result.output
     assert "Advice:" in result.output and "holm-corrected" in result.output
@@ -226,8 +301,10 @@ def test_orders_without_customer_or_from_the_future_do_not_break_sizes(sample: P
     con.execute("UPDATE orders SET customer_id = NULL WHERE order_id % 50 = 0")
     nulls = con.execute("SELECT count(*) FROM orders WHERE customer_id IS NULL").fetchone()[0]
     last = con.execute("SELECT max(ordered_at) FROM orders").fetchone()[0]
-    con.execute("UPDATE orders SET ordered_at = TIMESTAMP '2062-05-01 10:00' "
-                "WHERE order_id = (SELECT min(order_id) FROM orders)")
+    con.execute(
+        "UPDATE orders SET ordered_at = TIMESTAMP '2062-05-01 10:00' "
+        "WHERE order_id = (SELECT min(order_id) FROM orders)"
+    )
     con.close()
     result = run("sizes", MAT, "-w", str(sample), "--no-estimate", "--campaign", "n")
     assert result.exit_code == 0, result.output
@@ -238,8 +315,9 @@ def test_orders_without_customer_or_from_the_future_do_not_break_sizes(sample: P
 
 
 def test_a_misspelt_region_is_an_input_error_with_a_suggestion(sample: Path) -> None:
-    line = one_error_line(run("sizes", MAT, "-w", str(sample), "--region", "north",
-                              "--min-audience", "0"))
+    line = one_error_line(
+        run("sizes", MAT, "-w", str(sample), "--region", "north", "--min-audience", "0")
+    )
     assert "found 'north'" in line and "did you mean --region 'North'?" in line
 
 
@@ -248,18 +326,31 @@ def test_build_with_state_caps_on_campaigns_logged_in_the_warehouse(
 ) -> None:
     common = ("-w", str(sample), "--no-estimate")
     # the first campaign uses two rules, so the second (five rules) reaches customers it did not
-    first = run("build", MAT, *common, "--out", str(tmp_path / "a.csv"), "--campaign", "wh-1",
-                "--top", "2")
+    first = run(
+        "build", MAT, *common, "--out", str(tmp_path / "a.csv"), "--campaign", "wh-1", "--top", "2"
+    )
     assert first.exit_code == 0, first.output
     contacted = set(pl.read_csv(tmp_path / "a.csv")["customer_id"])
     state = tmp_path / "state.duckdb"
     # a preview with a state file that does not exist yet still reads the warehouse's log
-    preview = run("sizes", MAT, *common, "--state", str(state), "--campaign", "st-1",
-                  "--min-audience", "0")
+    preview = run(
+        "sizes", MAT, *common, "--state", str(state), "--campaign", "st-1", "--min-audience", "0"
+    )
     line = next(ln for ln in preview.output.splitlines() if "frequency cap" in ln)
     assert f"{len(contacted):,}" in line
-    second = run("build", MAT, *common, "--out", str(tmp_path / "b.csv"), "--state", str(state),
-                 "--campaign", "st-1", "--min-audience", "0")
+    second = run(
+        "build",
+        MAT,
+        *common,
+        "--out",
+        str(tmp_path / "b.csv"),
+        "--state",
+        str(state),
+        "--campaign",
+        "st-1",
+        "--min-audience",
+        "0",
+    )
     assert second.exit_code == 0, second.output
     line = next(ln for ln in second.output.splitlines() if "frequency cap" in ln)
     assert line.split("│")[1].strip() == f"{len(contacted):,}"  # every earlier contact removed

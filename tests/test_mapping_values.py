@@ -109,8 +109,10 @@ def worlds(tmp_path: Path) -> tuple[Path, Path, Mapping]:
 
 
 def foreign_rules():
-    rules = [(rid, tuple(str(ARTICLE[a]) for a in ante), conf, lift)
-             for rid, ante, conf, lift in cases.RULES]
+    rules = [
+        (rid, tuple(str(ARTICLE[a]) for a in ante), conf, lift)
+        for rid, ante, conf, lift in cases.RULES
+    ]
     return ref.make_ruleset(Target("sku", str(ARTICLE["T"])), rules, window=cases.WINDOW)
 
 
@@ -119,23 +121,30 @@ def test_the_mapped_warehouse_gives_the_same_lists(worlds, tmp_path: Path) -> No
     # the integers they stand for: it is off here, and the campaign holdout compares as a set
     world, foreign, mapping = worlds
     with Warehouse.open(world) as wh:
-        plan = plan_list(wh, ListRequest("T", campaign_id="c1", holdout=0.3, global_holdout=0.0),
-                         rules=ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW),
-                         now=NOW)
+        plan = plan_list(
+            wh,
+            ListRequest("T", campaign_id="c1", holdout=0.3, global_holdout=0.0),
+            rules=ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW),
+            now=NOW,
+        )
         plain = preview_list(wh, plan, CampaignLog.open(wh))
     with Warehouse.open(foreign, mapping) as wh:
         assert wh.text_ids
         casts = wh.typed_mapping
         assert casts.table("orders").casts == {"ordered_at": "TIMESTAMP"}
         assert casts.table("products").casts == {"sku": "VARCHAR"}
-        plan_f = plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1", holdout=0.3,
-                                       global_holdout=0.0),
-                           rules=foreign_rules(), now=NOW)
+        plan_f = plan_list(
+            wh,
+            ListRequest(str(ARTICLE["T"]), campaign_id="c1", holdout=0.3, global_holdout=0.0),
+            rules=foreign_rules(),
+            now=NOW,
+        )
         mapped = preview_list(wh, plan_f, CampaignLog.open(wh))
         built = build_list(wh, plan_f, tmp_path / "foreign.csv", log=CampaignLog.open(wh))
         logged = CampaignLog.open(wh).contacts("c1")
     assert [(s.key, s.removed) for s in mapped.waterfall] == [
-        (s.key, s.removed) for s in plain.waterfall]
+        (s.key, s.removed) for s in plain.waterfall
+    ]
     listed = {code(c) for c in plain.listed["customer_id"].to_list()}
     assert set(mapped.listed["customer_id"].to_list()) == listed
     # text ids: the export and the log keep them as text
@@ -166,8 +175,13 @@ def test_mining_reads_integer_articles_as_text_items(worlds) -> None:
     from reachlist.rules import mine_rules
 
     world, foreign, mapping = worlds
-    opts = dict(since=cases.WINDOW.since, until=cases.WINDOW.until, min_support=0.01,
-                min_lift=0.0, keep_unproductive=True)
+    opts = dict(
+        since=cases.WINDOW.since,
+        until=cases.WINDOW.until,
+        min_support=0.01,
+        min_lift=0.0,
+        keep_unproductive=True,
+    )
     with Warehouse.open(world) as wh:
         a = mine_rules(wh, "C", **opts).frame
     with Warehouse.open(foreign, mapping) as wh:
@@ -195,7 +209,7 @@ def test_check_reports_the_conversions_and_a_failing_expression(worlds, tmp_path
 @pytest.mark.parametrize(
     ("line", "found"),
     [
-        ('sensitive = { value = [1] }', "must be a column name"),
+        ("sensitive = { value = [1] }", "must be a column name"),
         ('sensitive = { sql = "" }', "must be a column name"),
         ('sensitive = { sql = "1; DROP TABLE x" }', "one SQL expression"),
         ('sensitive = { sql = "1", value = true }', "must be a column name"),
@@ -222,14 +236,16 @@ def test_postgres_with_uuid_ids_timestamptz_and_integer_articles(
     world, foreign, mapping = worlds
     ids = {code(c): str(uuid.uuid5(uuid.NAMESPACE_OID, code(c))) for c in range(1, 30)}
     con = duckdb.connect(str(foreign), read_only=True)
-    tables = {t: con.sql(f"SELECT * FROM {t}").pl() for t in
-              ("shopper", "article", "till", "till_row", "optout")}
+    tables = {
+        t: con.sql(f"SELECT * FROM {t}").pl()
+        for t in ("shopper", "article", "till", "till_row", "optout")
+    }
     con.close()
     types = {
         "shopper": "shopper_code uuid, mail text, opt_in integer, consent_day date, born date, "
-                   "area text",
+        "area text",
         "article": "article_no bigint, title text, cat text, dept text, restricted boolean, "
-                   "launch date, stock integer",
+        "launch date, stock integer",
         "till": "receipt bigint, shopper_code uuid, placed timestamptz, channel text",
         "till_row": "receipt bigint, article_no bigint, qty integer, amount double precision",
         "optout": "shopper_code uuid, reason text, since_day date",
@@ -237,7 +253,7 @@ def test_postgres_with_uuid_ids_timestamptz_and_integer_articles(
     engine = sa.create_engine(pg_url)
     with engine.begin() as c:
         c.execute(sa.text(f'CREATE SCHEMA "{pg_schema}"'))
-        c.execute(sa.text('SET LOCAL TIME ZONE \'UTC\''))
+        c.execute(sa.text("SET LOCAL TIME ZONE 'UTC'"))
         for t, ddl in types.items():
             c.execute(sa.text(f'CREATE TABLE "{pg_schema}".{t} ({ddl})'))
             frame = tables[t]
@@ -245,31 +261,46 @@ def test_postgres_with_uuid_ids_timestamptz_and_integer_articles(
                 frame = frame.with_columns(pl.col("shopper_code").replace_strict(ids))
             if "placed" in frame.columns:
                 frame = frame.with_columns(
-                    pl.col("placed").cast(pl.Datetime("us")).dt.replace_time_zone("UTC"))
+                    pl.col("placed").cast(pl.Datetime("us")).dt.replace_time_zone("UTC")
+                )
             cols = ", ".join(frame.columns)
             marks = ", ".join(f":{k}" for k in frame.columns)
-            c.execute(sa.text(f'INSERT INTO "{pg_schema}".{t} ({cols}) VALUES ({marks})'),
-                      frame.to_dicts())
+            c.execute(
+                sa.text(f'INSERT INTO "{pg_schema}".{t} ({cols}) VALUES ({marks})'),
+                frame.to_dicts(),
+            )
     engine.dispose()
     pg_mapping = Mapping.from_dict({"schema": pg_schema, **_tables(MAPPING)})
     with Warehouse.open(world) as wh:
-        plain = preview_list(wh, plan_list(wh, ListRequest("T", campaign_id="c1", global_holdout=0.0),
-                                           rules=ref.make_ruleset(cases.TARGET, cases.RULES,
-                                                                  window=cases.WINDOW),
-                                           now=NOW))
+        plain = preview_list(
+            wh,
+            plan_list(
+                wh,
+                ListRequest("T", campaign_id="c1", global_holdout=0.0),
+                rules=ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW),
+                now=NOW,
+            ),
+        )
     with Warehouse.open(pg_url, pg_mapping) as wh:
-        assert wh.text_ids and wh.typed_mapping.table("customers").casts == {
-            "customer_id": "TEXT"}
+        assert wh.text_ids and wh.typed_mapping.table("customers").casts == {"customer_id": "TEXT"}
         assert wh.typed_mapping.table("orders").casts["ordered_at"] == "TIMESTAMP"
-        mapped = preview_list(wh, plan_list(wh, ListRequest(str(ARTICLE["T"]), campaign_id="c1",
-                                                        global_holdout=0.0),
-                                            rules=foreign_rules(), now=NOW))
+        mapped = preview_list(
+            wh,
+            plan_list(
+                wh,
+                ListRequest(str(ARTICLE["T"]), campaign_id="c1", global_holdout=0.0),
+                rules=foreign_rules(),
+                now=NOW,
+            ),
+        )
         report = check_warehouse(wh, today=NOW.date())
     assert report.ok, report.problems
     assert [(s.key, s.removed) for s in mapped.waterfall] == [
-        (s.key, s.removed) for s in plain.waterfall]
+        (s.key, s.removed) for s in plain.waterfall
+    ]
     assert set(mapped.listed["customer_id"].to_list()) == {
-        ids[code(c)] for c in plain.listed["customer_id"].to_list()}
+        ids[code(c)] for c in plain.listed["customer_id"].to_list()
+    }
 
 
 def _tables(text: str) -> dict:

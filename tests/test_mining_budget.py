@@ -41,8 +41,16 @@ def test_a_dense_history_stays_within_the_budget() -> None:
     baskets = dense(2_000, 300, 1 / 3, seed=1)
     notes: list[str] = []
     budget = 200_000
-    rules = target_rules(baskets, "TARGET", min_count=5, max_antecedent=3, sort_by="leverage",
-                         budget=budget, keep_top=100, notes=notes)
+    rules = target_rules(
+        baskets,
+        "TARGET",
+        min_count=5,
+        max_antecedent=3,
+        sort_by="leverage",
+        budget=budget,
+        keep_top=100,
+        notes=notes,
+    )
     # the exhaustive search would count every pair and triple of 300 items: millions of nodes
     assert estimate_nodes(_cond_counts(baskets), _n_y(baskets), 5, 3) > 10 * budget
     assert rules.height > 0 and int(rules["n_tested"][0]) <= budget
@@ -54,20 +62,31 @@ def test_narrowing_keeps_the_exact_best_rules_by_leverage() -> None:
     """A budget small enough to force the raised floor: the best rules by leverage are those of
     the exhaustive search (which counts everything), rule for rule."""
     baskets = long_tail(2_000, 400, seed=4)
-    full = target_rules(baskets, "TARGET", min_count=3, max_antecedent=3, sort_by="leverage",
-                        budget=None)
+    full = target_rules(
+        baskets, "TARGET", min_count=3, max_antecedent=3, sort_by="leverage", budget=None
+    )
     notes: list[str] = []
     keep = 5
-    bounded = target_rules(baskets, "TARGET", min_count=3, max_antecedent=3, sort_by="leverage",
-                           budget=10_000, keep_top=keep, notes=notes)
+    bounded = target_rules(
+        baskets,
+        "TARGET",
+        min_count=3,
+        max_antecedent=3,
+        sort_by="leverage",
+        budget=10_000,
+        keep_top=keep,
+        notes=notes,
+    )
     # only the sound raise of the floor was needed (no shallower search, no heuristic floor)
     assert notes and "best by leverage" in notes[0] and "at most" not in notes[0]
     assert int(bounded["n_tested"][0]) < int(full["n_tested"][0])
 
     def best(frame: pl.DataFrame) -> list[tuple]:
         return sorted(
-            frame.sort(["leverage", "rule_id"], descending=[True, False]).head(keep)
-            .select("rule_id", "n_antecedent", "n_both").rows()
+            frame.sort(["leverage", "rule_id"], descending=[True, False])
+            .head(keep)
+            .select("rule_id", "n_antecedent", "n_both")
+            .rows()
         )
 
     # unproductive rules are filtered out of both; compare the measures of the kept best ones
@@ -87,10 +106,18 @@ def test_a_catalogue_of_90k_items_counts_only_what_can_pass() -> None:
     labels = [f"S{i:05d}" for i in range(n_items)] + ["TARGET"]
     baskets = Baskets.from_arrays(rows, cols, labels=labels, n_baskets=n_customers)
     notes: list[str] = []
-    rules = target_rules(baskets, "TARGET", min_count=5, max_antecedent=3, sort_by="leverage",
-                         notes=notes)
-    plan = plan_search(baskets, baskets.item_index("TARGET"), _cond_counts(baskets),
-                       _others(baskets), 5, 3, sort_by="leverage")
+    rules = target_rules(
+        baskets, "TARGET", min_count=5, max_antecedent=3, sort_by="leverage", notes=notes
+    )
+    plan = plan_search(
+        baskets,
+        baskets.item_index("TARGET"),
+        _cond_counts(baskets),
+        _others(baskets),
+        5,
+        3,
+        sort_by="leverage",
+    )
     assert plan.estimated_nodes <= 4_000_000
     assert int(rules["n_tested"][0]) <= 4_000_000 if rules.height else True
     assert baskets.n_items == n_items + 1

@@ -74,8 +74,9 @@ def onehot():
 
 @pytest.fixture(scope="module")
 def mlx_itemsets(onehot):
-    return fp.fpgrowth(onehot, min_support=MIN_COUNT / N_BASKETS, use_colnames=True,
-                       max_len=MAX_LEN)
+    return fp.fpgrowth(
+        onehot, min_support=MIN_COUNT / N_BASKETS, use_colnames=True, max_len=MAX_LEN
+    )
 
 
 def test_data_is_not_trivial(ours) -> None:
@@ -84,8 +85,10 @@ def test_data_is_not_trivial(ours) -> None:
 
 
 def test_same_itemsets_as_mlxtend_fpgrowth(ours, mlx_itemsets) -> None:
-    theirs = {frozenset(s): round(sup * N_BASKETS)
-              for s, sup in zip(mlx_itemsets["itemsets"], mlx_itemsets["support"], strict=True)}
+    theirs = {
+        frozenset(s): round(sup * N_BASKETS)
+        for s, sup in zip(mlx_itemsets["itemsets"], mlx_itemsets["support"], strict=True)
+    }
     assert ours == theirs
 
 
@@ -99,7 +102,9 @@ def test_same_itemsets_as_pyfim_fpgrowth(ours) -> None:
 
 def test_same_itemsets_as_efficient_apriori(ours) -> None:
     itemsets, _ = efficient_apriori.apriori(
-        [tuple(t) for t in TRANSACTIONS], min_support=MIN_COUNT / N_BASKETS, min_confidence=1.0,
+        [tuple(t) for t in TRANSACTIONS],
+        min_support=MIN_COUNT / N_BASKETS,
+        min_confidence=1.0,
         max_length=MAX_LEN,
     )
     theirs = {frozenset(s): c for level in itemsets.values() for s, c in level.items()}
@@ -116,7 +121,9 @@ def test_pyfim_quirk_fim1_itemset_in_every_basket() -> None:
     assert live == theirs  # the installed pyfim still behaves as recorded
     df = frequent_itemsets(Baskets.from_transactions(tracts), 1)
     assert {frozenset(r["items"]): r["count"] for r in df.iter_rows(named=True)} == {
-        **theirs, **missing}
+        **theirs,
+        **missing,
+    }
 
 
 def _quirks() -> list[dict]:
@@ -131,16 +138,18 @@ def _targets() -> list[str]:
 
 @pytest.fixture(scope="module")
 def mlx_rules(mlx_itemsets):
-    return fp.association_rules(mlx_itemsets, num_itemsets=N_BASKETS, metric="confidence",
-                                min_threshold=0.0)
+    return fp.association_rules(
+        mlx_itemsets, num_itemsets=N_BASKETS, metric="confidence", min_threshold=0.0
+    )
 
 
 @pytest.mark.parametrize("target", _targets())
 def test_rule_measures_as_mlxtend(mlx_rules, target: str) -> None:
     one = mlx_rules[mlx_rules["consequents"].apply(lambda s: s == frozenset([target]))]
     theirs = {frozenset(row["antecedents"]): row for row in one.to_dict("records")}
-    df = target_rules(BASKETS, target, min_count=MIN_COUNT, max_antecedent=MAX_LEN - 1,
-                      keep_unproductive=True)
+    df = target_rules(
+        BASKETS, target, min_count=MIN_COUNT, max_antecedent=MAX_LEN - 1, keep_unproductive=True
+    )
     mine = {frozenset(r["antecedent"]): r for r in df.iter_rows(named=True)}
     assert mine
     assert set(mine) == set(theirs)
@@ -148,8 +157,9 @@ def test_rule_measures_as_mlxtend(mlx_rules, target: str) -> None:
         t = theirs[key]
         assert math.isclose(r["support"], t["support"], rel_tol=1e-12)
         assert math.isclose(r["coverage"], t["antecedent support"], rel_tol=1e-12)
-        assert math.isclose(r["n_consequent"] / r["n_baskets"], t["consequent support"],
-                            rel_tol=1e-12)
+        assert math.isclose(
+            r["n_consequent"] / r["n_baskets"], t["consequent support"], rel_tol=1e-12
+        )
         assert math.isclose(r["confidence"], t["confidence"], rel_tol=1e-12)
         assert math.isclose(r["lift"], t["lift"], rel_tol=1e-12)
         assert math.isclose(r["leverage"], t["leverage"], rel_tol=1e-9, abs_tol=1e-15)
@@ -162,8 +172,9 @@ def test_rule_measures_as_mlxtend(mlx_rules, target: str) -> None:
 
 @pytest.mark.parametrize("target", _targets())
 def test_p_values_as_scipy_fisher_exact(target: str) -> None:
-    df = target_rules(BASKETS, target, min_count=MIN_COUNT, max_antecedent=3,
-                      keep_unproductive=True)
+    df = target_rules(
+        BASKETS, target, min_count=MIN_COUNT, max_antecedent=3, keep_unproductive=True
+    )
     n = BASKETS.n_baskets
     for r in df.iter_rows(named=True):
         a, x, y = r["n_both"], r["n_antecedent"], r["n_consequent"]
@@ -174,28 +185,58 @@ def test_p_values_as_scipy_fisher_exact(target: str) -> None:
 
 def test_top_rules_match_mlxtend_for_every_consequent(mlx_rules) -> None:
     single = mlx_rules[mlx_rules["consequents"].apply(len) == 1]
-    theirs = {(frozenset(a), next(iter(c))): (s, conf, lift) for a, c, s, conf, lift in zip(
-        single["antecedents"], single["consequents"], single["support"], single["confidence"],
-        single["lift"], strict=True)}
+    theirs = {
+        (frozenset(a), next(iter(c))): (s, conf, lift)
+        for a, c, s, conf, lift in zip(
+            single["antecedents"],
+            single["consequents"],
+            single["support"],
+            single["confidence"],
+            single["lift"],
+            strict=True,
+        )
+    }
     df = top_rules(BASKETS, top=None, min_count=MIN_COUNT, max_size=MAX_LEN, keep_unproductive=True)
-    mine = {(frozenset(r["antecedent"]), r["consequent"]):
-            (r["support"], r["confidence"], r["lift"]) for r in df.iter_rows(named=True)}
+    mine = {
+        (frozenset(r["antecedent"]), r["consequent"]): (r["support"], r["confidence"], r["lift"])
+        for r in df.iter_rows(named=True)
+    }
     assert set(mine) == set(theirs)
     for key, vals in mine.items():
-        assert all(math.isclose(u, v, rel_tol=1e-12)
-                   for u, v in zip(vals, theirs[key], strict=True))
+        assert all(
+            math.isclose(u, v, rel_tol=1e-12) for u, v in zip(vals, theirs[key], strict=True)
+        )
 
 
 def test_holm_and_bonferroni_as_statsmodels() -> None:
     multitest = pytest.importorskip("statsmodels.stats.multitest")
-    df = top_rules(BASKETS, top=None, min_count=MIN_COUNT, max_size=3, keep_unproductive=True,
-                   correction="holm")
+    df = top_rules(
+        BASKETS,
+        top=None,
+        min_count=MIN_COUNT,
+        max_size=3,
+        keep_unproductive=True,
+        correction="holm",
+    )
     p = df["p_value"].to_numpy()
-    assert np.allclose(df["p_adjusted"].to_numpy(),
-                       multitest.multipletests(p, method="holm")[1], rtol=1e-12, atol=0)
+    assert np.allclose(
+        df["p_adjusted"].to_numpy(),
+        multitest.multipletests(p, method="holm")[1],
+        rtol=1e-12,
+        atol=0,
+    )
     assert (df["n_tested"] == len(p)).all()  # the family is every candidate rule
-    bonf = top_rules(BASKETS, top=None, min_count=MIN_COUNT, max_size=3, keep_unproductive=True,
-                     correction="bonferroni")
-    assert np.allclose(bonf["p_adjusted"].to_numpy(),
-                       multitest.multipletests(bonf["p_value"].to_numpy(), method="bonferroni")[1],
-                       rtol=1e-12, atol=0)
+    bonf = top_rules(
+        BASKETS,
+        top=None,
+        min_count=MIN_COUNT,
+        max_size=3,
+        keep_unproductive=True,
+        correction="bonferroni",
+    )
+    assert np.allclose(
+        bonf["p_adjusted"].to_numpy(),
+        multitest.multipletests(bonf["p_value"].to_numpy(), method="bonferroni")[1],
+        rtol=1e-12,
+        atol=0,
+    )

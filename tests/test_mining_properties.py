@@ -36,8 +36,11 @@ SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[Healt
 baskets_st = st.lists(st.lists(st.sampled_from(ITEMS), max_size=6), min_size=1, max_size=50)
 # engine knobs: cost of cutting out a basket line (0: always cut, 1e9: never), pair block
 # (words), bit-pack buffer (bytes)
-knobs_st = st.tuples(st.sampled_from([0.0, 5.0, 1e9]), st.sampled_from([1, 64, 1 << 18]),
-                     st.sampled_from([64, 1 << 26]))
+knobs_st = st.tuples(
+    st.sampled_from([0.0, 5.0, 1e9]),
+    st.sampled_from([1, 64, 1 << 18]),
+    st.sampled_from([64, 1 << 26]),
+)
 
 
 @contextmanager
@@ -69,8 +72,9 @@ def test_itemset_counts_match_brute_force(transactions, min_count, max_size, kno
     # extra empty baskets make the bitmaps wide and sparse (the sparse-row paths)
     n = len(transactions) + empty
     with engine(knobs):
-        df = frequent_itemsets(Baskets.from_transactions(transactions, n_baskets=n), min_count,
-                               max_size)
+        df = frequent_itemsets(
+            Baskets.from_transactions(transactions, n_baskets=n), min_count, max_size
+        )
     got = {frozenset(r["items"]): r["count"] for r in df.iter_rows(named=True)}
     want = {k: v for k, v in brute_counts(transactions, max_size).items() if v >= min_count}
     assert got == want
@@ -79,19 +83,30 @@ def test_itemset_counts_match_brute_force(transactions, min_count, max_size, kno
 
 
 @SETTINGS
-@given(baskets_st, st.integers(1, 5), st.integers(1, 4), knobs_st, st.sampled_from([0, 2000]),
-       st.data())
-def test_target_rules_counts_and_bounds(transactions, min_count, max_ante, knobs, empty,
-                                        data) -> None:
+@given(
+    baskets_st,
+    st.integers(1, 5),
+    st.integers(1, 4),
+    knobs_st,
+    st.sampled_from([0, 2000]),
+    st.data(),
+)
+def test_target_rules_counts_and_bounds(
+    transactions, min_count, max_ante, knobs, empty, data
+) -> None:
     b = Baskets.from_transactions(transactions, n_baskets=len(transactions) + empty)
     if b.n_items == 0:
         return
     target = data.draw(st.sampled_from(list(b.labels)))
     with engine(knobs):
-        df = target_rules(b, target, min_count=min_count, max_antecedent=max_ante,
-                          keep_unproductive=True)
-    want = {k - {target} for k, v in brute_counts(transactions).items()
-            if target in k and 1 <= len(k) - 1 <= max_ante and v >= min_count}
+        df = target_rules(
+            b, target, min_count=min_count, max_antecedent=max_ante, keep_unproductive=True
+        )
+    want = {
+        k - {target}
+        for k, v in brute_counts(transactions).items()
+        if target in k and 1 <= len(k) - 1 <= max_ante and v >= min_count
+    }
     assert {frozenset(a) for a in df["antecedent"]} == want
     for r in df.iter_rows(named=True):
         x = r["antecedent"]
@@ -111,8 +126,13 @@ def test_target_rules_counts_and_bounds(transactions, min_count, max_ante, knobs
 @given(baskets_st, st.integers(1, 4), knobs_st)
 def test_lift_is_symmetric_for_single_items(transactions, min_count, knobs) -> None:
     with engine(knobs):
-        df = top_rules(Baskets.from_transactions(transactions), top=None, min_count=min_count,
-                       max_size=2, keep_unproductive=True)
+        df = top_rules(
+            Baskets.from_transactions(transactions),
+            top=None,
+            min_count=min_count,
+            max_size=2,
+            keep_unproductive=True,
+        )
     lift = {(r["antecedent"][0], r["consequent"]): r["lift"] for r in df.iter_rows(named=True)}
     for (a, c), v in lift.items():
         assert v == pytest.approx(lift[(c, a)], rel=1e-12)
@@ -141,8 +161,13 @@ def test_productive_means_beating_every_subset(transactions, min_count, data) ->
 
 
 @SETTINGS
-@given(st.lists(st.tuples(st.integers(0, 60), st.integers(0, 60), st.integers(0, 60),
-                          st.integers(0, 60)), min_size=1, max_size=20))
+@given(
+    st.lists(
+        st.tuples(st.integers(0, 60), st.integers(0, 60), st.integers(0, 60), st.integers(0, 60)),
+        min_size=1,
+        max_size=20,
+    )
+)
 def test_rule_measures_formulas(tables) -> None:
     a, b_, c, d = (np.array(v) for v in zip(*tables, strict=True))
     n, n_x, n_y, n_xy = a + b_ + c + d, a + b_, a + c, a
@@ -183,7 +208,8 @@ def test_weighted_baskets_equal_repeated_rows(transactions, extra, weights) -> N
     weighted = Baskets.from_transactions(transactions, counts=weights)
     repeated = Baskets.from_transactions(
         [t for t, w in zip(transactions, weights, strict=True) for _ in range(w)],
-        n_baskets=sum(weights))
+        n_baskets=sum(weights),
+    )
     assert weighted.n_baskets == repeated.n_baskets == sum(weights)
     if weighted.n_baskets == 0 or weighted.n_items == 0:
         return

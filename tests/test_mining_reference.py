@@ -48,8 +48,10 @@ SOURCES = {
     # Source: Han, Kamber & Pei 3e, Section 6.3, Examples 6.7-6.9 (games and videos)
     "han_kamber_pei_3e_games_videos": "Han, Kamber & Pei 3e, Examples 6.7-6.9",
     # Source: Han, Kamber & Pei 3e, Table 6.9, data sets D1..D6
-    **{f"han_kamber_pei_3e_table6_9_D{k}": f"Han, Kamber & Pei 3e, Table 6.9 D{k}"
-       for k in range(1, 7)},
+    **{
+        f"han_kamber_pei_3e_table6_9_D{k}": f"Han, Kamber & Pei 3e, Table 6.9 D{k}"
+        for k in range(1, 7)
+    },
     # Source: Brin, Motwani & Silverstein, SIGMOD 1997 (tea and coffee)
     "brin_motwani_silverstein_1997_tea_coffee": "Brin, Motwani & Silverstein 1997",
     # Source: Tan, Steinbach & Kumar 2005, Section 6.7.1, Table 6.8 (beverage preferences)
@@ -59,13 +61,18 @@ SOURCES = {
     # Source: R package LDtests, Fisher1sided documented example
     "ldtests_fisher1sided_doc_example": "LDtests Fisher1sided example",
     # Source: Tan, Kumar & Srivastava, SIGKDD 2002, contingency tables E1..E10
-    **{f"tan_kumar_srivastava_2002_E{k}": f"Tan, Kumar & Srivastava 2002, E{k}"
-       for k in range(1, 11)},
+    **{
+        f"tan_kumar_srivastava_2002_E{k}": f"Tan, Kumar & Srivastava 2002, E{k}"
+        for k in range(1, 11)
+    },
 }
 
 MEASURES = ("support", "coverage", "confidence", "lift", "leverage", "conviction")
-COUNTS = {"support_count": "n_both", "coverage_count": "n_antecedent",
-          "consequent_count": "n_consequent"}
+COUNTS = {
+    "support_count": "n_both",
+    "coverage_count": "n_antecedent",
+    "consequent_count": "n_consequent",
+}
 BIG = 64  # "no limit" for antecedent / itemset sizes in these small examples
 
 
@@ -139,8 +146,9 @@ def _rule_table(ex: dict) -> dict[tuple[frozenset, str], dict]:
     min_count = ex.get("rule_min_support_count", 1)
     found = {}
     for y in sorted({r["consequent"][0] for r in ex["expected_rules"]}):
-        df = target_rules(b, y, min_count=min_count, max_antecedent=BIG, keep_unproductive=True,
-                          correction="none")
+        df = target_rules(
+            b, y, min_count=min_count, max_antecedent=BIG, keep_unproductive=True, correction="none"
+        )
         for row in df.iter_rows(named=True):
             found[(frozenset(row["antecedent"]), row["consequent"])] = row
     return found
@@ -181,8 +189,10 @@ def test_itemset_counts(ex_id: str, provenance: str) -> None:
     counted with Baskets.count and absent from the frequent itemsets)."""
     ex = EXAMPLES[ex_id]
     b = _baskets(ex)
-    ours = {frozenset(r["items"]): r for r in
-            frequent_itemsets(b, ex["min_support_count"]).iter_rows(named=True)}
+    ours = {
+        frozenset(r["items"]): r
+        for r in frequent_itemsets(b, ex["min_support_count"]).iter_rows(named=True)
+    }
     for item in ex["expected_itemsets"]:
         if item["provenance"] != provenance:
             continue
@@ -218,8 +228,9 @@ def test_rule_set_complete(ex_id: str) -> None:
         assert got == want, note
     else:  # a contingency example lists only X -> Y, not Y -> X
         assert want <= got, note
-    again = rules_from_itemsets(frequent_itemsets(b, min_count), b.n_baskets,
-                                keep_unproductive=True)
+    again = rules_from_itemsets(
+        frequent_itemsets(b, min_count), b.n_baskets, keep_unproductive=True
+    )
     assert again.sort("rule_id").equals(all_rules.sort("rule_id")), note
 
 
@@ -275,5 +286,8 @@ def test_contingency_examples_have_one_rule() -> None:
         assert b.n_baskets == t["N"], ex_id
         df = target_rules(b, ex["Y"], min_count=1, keep_unproductive=True, correction="none")
         row = df.filter(pl.col("antecedent") == pl.lit([ex["X"]])).row(0, named=True)
-        assert (row["n_both"], row["n_antecedent"] - row["n_both"],
-                row["n_consequent"] - row["n_both"]) == (t["n_XY"], t["n_X_notY"], t["n_notX_Y"])
+        assert (
+            row["n_both"],
+            row["n_antecedent"] - row["n_both"],
+            row["n_consequent"] - row["n_both"],
+        ) == (t["n_XY"], t["n_X_notY"], t["n_notX_Y"])

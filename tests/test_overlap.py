@@ -99,8 +99,11 @@ def test_counts_p_values_and_holm_match_references(shop: Path) -> None:
 def test_customer_baskets_and_categories(shop: Path) -> None:
     with Warehouse.open(shop, read_only=True) as wh:
         report = promotion_overlap(
-            wh, ["category:c-X", "category:c-Y", "category:c-Z"], basket="customer",
-            since="2025-01-01", until="2026-01-01",
+            wh,
+            ["category:c-X", "category:c-Y", "category:c-Z"],
+            basket="customer",
+            since="2025-01-01",
+            until="2026-01-01",
         )
     assert report.level == "category" and report.n_baskets == 200
     assert report.item_counts["c-X"] == 75 + 13  # customers 1-75, and 80, 90, ..., 200

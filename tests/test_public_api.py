@@ -23,16 +23,18 @@ def test_every_public_name_imports() -> None:
 
 
 def test_import_reachlist_and_the_cli_stay_light() -> None:
-    code = ("import sys, reachlist, reachlist.cli; "
-            "print(sorted(m for m in ('polars', 'numpy', 'scipy', 'duckdb', 'sqlalchemy') "
-            "if m in sys.modules))")
+    code = (
+        "import sys, reachlist, reachlist.cli; "
+        "print(sorted(m for m in ('polars', 'numpy', 'scipy', 'duckdb', 'sqlalchemy') "
+        "if m in sys.modules))"
+    )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
 
 
 def test_the_readme_example_runs(pristine: Path, tmp_path: Path) -> None:
     text = README.read_text()
-    section = text[text.index("## Use it from Python"):]
+    section = text[text.index("## Use it from Python") :]
     code = re.search(r"```python\n(.*?)```", section, re.S).group(1)  # type: ignore[union-attr]
     cwd = os.getcwd()
     (tmp_path / "garden.duckdb").write_bytes(pristine.read_bytes())

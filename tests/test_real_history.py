@@ -42,8 +42,11 @@ def slice_db(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Mapping, p
     folder = tmp_path_factory.mktemp("cj")
     db = folder / "cj.duckdb"
     con = duckdb.connect(str(db))
-    for name, frame in (("transactions", tx), ("products", data["products"]),
-                        ("demographics", data["demographics"])):
+    for name, frame in (
+        ("transactions", tx),
+        ("products", data["products"]),
+        ("demographics", data["demographics"]),
+    ):
         con.register("frame", frame)
         con.execute(f"CREATE TABLE {name} AS SELECT * FROM frame")
         con.unregister("frame")
@@ -51,15 +54,28 @@ def slice_db(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Mapping, p
         household_id, min(transaction_timestamp) AS basket_time, any_value(store_id) AS store_id
         FROM transactions GROUP BY basket_id""")
     con.execute("CREATE TABLE suppression_list (household_id BIGINT, reason VARCHAR, since DATE)")
-    assert con.execute("SELECT typeof(transaction_timestamp) FROM transactions LIMIT 1"
-                       ).fetchone()[0] == "TIMESTAMP_NS"
+    assert (
+        con.execute("SELECT typeof(transaction_timestamp) FROM transactions LIMIT 1").fetchone()[0]
+        == "TIMESTAMP_NS"
+    )
     con.close()
     mapping_file = folder / "cj.toml"
     mapping_file.write_text(MAPPING)
-    lines = pl.from_pandas(tx[["household_id", "basket_id", "product_id", "quantity",
-                               "sales_value", "transaction_timestamp"]])
+    lines = pl.from_pandas(
+        tx[
+            [
+                "household_id",
+                "basket_id",
+                "product_id",
+                "quantity",
+                "sales_value",
+                "transaction_timestamp",
+            ]
+        ]
+    )
     lines = lines.with_columns(
-        pl.col("transaction_timestamp").min().over("basket_id").alias("basket_time"))
+        pl.col("transaction_timestamp").min().over("basket_id").alias("basket_time")
+    )
     products = pl.from_pandas(data["products"][["product_id", "product_category"]])
     # lines of products missing from products are left out, as everywhere in reachlist
     return db, Mapping.from_toml(mapping_file), lines.join(products, on="product_id", how="inner")
@@ -77,23 +93,38 @@ def test_check_passes_with_conversions(slice_db) -> None:
 def test_category_rules_count_households_as_the_data_does(slice_db) -> None:
     db, mapping, lines = slice_db
     with Warehouse.open(db, mapping) as wh:
-        rs = mine_rules(wh, "category:YOGURT", level="category", max_antecedent=1,
-                        min_support=0.05, min_lift=0.0, keep_unproductive=True)
+        rs = mine_rules(
+            wh,
+            "category:YOGURT",
+            level="category",
+            max_antecedent=1,
+            min_support=0.05,
+            min_lift=0.0,
+            keep_unproductive=True,
+        )
     # independent count: a household holds a product when its net quantity is positive (exact
     # duplicate lines counted once, as the README says), and a category when it holds any
     # product of it, inside the rules' window (the data runs to 2018-01-01 04:01, so the default
     # 365-day window ends on 2018-01-02 and leaves out 2017-01-01)
     since, until = rs.window.since, rs.window.until
     lines = lines.filter((pl.col("basket_time") >= since) & (pl.col("basket_time") < until))
-    held = (lines.unique(["basket_id", "product_id", "quantity", "sales_value"])
-            .group_by("household_id", "product_id", "product_category")
-            .agg(pl.col("quantity").sum()).filter(pl.col("quantity") > 0)
-            .with_columns(pl.col("product_category").fill_null("UNKNOWN"))
-            .select("household_id", "product_category").unique())
+    held = (
+        lines.unique(["basket_id", "product_id", "quantity", "sales_value"])
+        .group_by("household_id", "product_id", "product_category")
+        .agg(pl.col("quantity").sum())
+        .filter(pl.col("quantity") > 0)
+        .with_columns(pl.col("product_category").fill_null("UNKNOWN"))
+        .select("household_id", "product_category")
+        .unique()
+    )
     yogurt = set(held.filter(pl.col("product_category") == "YOGURT")["household_id"])
-    both = (held.filter(pl.col("household_id").is_in(list(yogurt))
-                        & (pl.col("product_category") != "YOGURT"))
-            .group_by("product_category").len())
+    both = (
+        held.filter(
+            pl.col("household_id").is_in(list(yogurt)) & (pl.col("product_category") != "YOGURT")
+        )
+        .group_by("product_category")
+        .len()
+    )
     want = dict(both.iter_rows())
     got = {r["antecedent"][0]: r["n_both"] for r in rs.frame.iter_rows(named=True)}
     diff = {c: (n, want.get(c)) for c, n in got.items() if want.get(c) != n}

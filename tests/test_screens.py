@@ -23,8 +23,9 @@ def run(*args: str):
 
 def test_rules_and_sizes_fit_80_columns(pristine: Path) -> None:
     rules = run("--width", "80", "rules", MAT, "-w", str(pristine), "--top", "5")
-    sizes = run("--width", "80", "sizes", MAT, "-w", str(pristine), "--no-estimate",
-                "--campaign", "x")
+    sizes = run(
+        "--width", "80", "sizes", MAT, "-w", str(pristine), "--no-estimate", "--campaign", "x"
+    )
     for result in (rules, sizes):
         assert result.exit_code == 0, result.output
         assert max(len(line) for line in result.output.splitlines()) <= 80, result.output
@@ -38,16 +39,32 @@ def test_rules_and_sizes_fit_80_columns(pristine: Path) -> None:
 
 def test_ascii_mode_is_plain_ascii(pristine: Path) -> None:
     out = subprocess.run(
-        [sys.executable, "-m", "reachlist.cli", "--ascii", "--width", "80", "sizes", MAT,
-         "-w", str(pristine), "--no-estimate", "--campaign", "x"],
-        capture_output=True, check=True)
+        [
+            sys.executable,
+            "-m",
+            "reachlist.cli",
+            "--ascii",
+            "--width",
+            "80",
+            "sizes",
+            MAT,
+            "-w",
+            str(pristine),
+            "--no-estimate",
+            "--campaign",
+            "x",
+        ],
+        capture_output=True,
+        check=True,
+    )
     assert out.stdout.isascii() and out.stderr.isascii()
     assert b"Exclusions, in order" in out.stdout and b"\x1b[" not in out.stdout
 
 
 def test_json_everywhere_has_numbers_as_numbers(pristine: Path) -> None:
-    sizes = json.loads(run("sizes", MAT, "-w", str(pristine), "--no-estimate", "--campaign",
-                           "x", "--json").output)
+    sizes = json.loads(
+        run("sizes", MAT, "-w", str(pristine), "--no-estimate", "--campaign", "x", "--json").output
+    )
     assert sizes["schema_version"] == 1 and isinstance(sizes["treatment"], int)
     steps = {s["step"]: s for s in sizes["waterfall"]}
     assert steps["no_consent"]["removed"] == 1369  # as the README's demo shows
@@ -57,19 +74,33 @@ def test_json_everywhere_has_numbers_as_numbers(pristine: Path) -> None:
     assert all(isinstance(r["co_purchase_rate"], float) for r in sizes["rules"])
     check = json.loads(run("check", "-w", str(pristine), "--json").output)
     assert check["ok"] is True and check["counts"]["customers"] == 20000
-    overlap = json.loads(run("overlap", "SG04-101", "PC06-101", "-w", str(pristine),
-                             "--json").output)
+    overlap = json.loads(
+        run("overlap", "SG04-101", "PC06-101", "-w", str(pristine), "--json").output
+    )
     assert isinstance(overlap["sets"][0]["p_value"], float)
-    estimate = json.loads(run("estimate", MAT, "-w", str(pristine), "--cutoffs", "3",
-                              "--json").output)
+    estimate = json.loads(
+        run("estimate", MAT, "-w", str(pristine), "--cutoffs", "3", "--json").output
+    )
     assert isinstance(estimate["holdout"]["detectable_relative_uplift"], float)
     assert isinstance(estimate["expected_buyers"], float)
 
 
 def test_build_json_names_its_files(sample: Path, tmp_path: Path) -> None:
     out = tmp_path / "m.csv"
-    built = json.loads(run("build", MAT, "-w", str(sample), "--no-estimate", "--out", str(out),
-                           "--campaign", "j", "--json").output)
+    built = json.loads(
+        run(
+            "build",
+            MAT,
+            "-w",
+            str(sample),
+            "--no-estimate",
+            "--out",
+            str(out),
+            "--campaign",
+            "j",
+            "--json",
+        ).output
+    )
     assert built["files"]["list"] == str(out)
     assert built["files"]["also"] == [str(tmp_path / "m.holdout.csv"), str(out) + ".json"]
     assert built["baseline_buyers"] is None and built["estimate_note"]
@@ -88,6 +119,9 @@ def test_help_is_in_the_order_of_the_work_with_an_example_each() -> None:
     for name in names:
         cmd = main.get_command(ctx, name)
         assert cmd is not None and "Example: reachlist " in (cmd.help or ""), name
-        unhelped = [p.opts[0] for p in cmd.params
-                    if isinstance(p, click.Option) and not p.help and p.name != "help"]
+        unhelped = [
+            p.opts[0]
+            for p in cmd.params
+            if isinstance(p, click.Option) and not p.help and p.name != "help"
+        ]
         assert unhelped == [], (name, unhelped)

@@ -29,8 +29,17 @@ def cap_removed(output: str) -> str:
 def test_the_send_date_is_when_contacts_are_logged_and_names_the_campaign(
     sample: Path, tmp_path: Path
 ) -> None:
-    built = run("build", MAT, "-w", str(sample), "--no-estimate", "--out",
-                str(tmp_path / "a.csv"), "--send-date", "2026-12-20")
+    built = run(
+        "build",
+        MAT,
+        "-w",
+        str(sample),
+        "--no-estimate",
+        "--out",
+        str(tmp_path / "a.csv"),
+        "--send-date",
+        "2026-12-20",
+    )
     assert built.exit_code == 0, built.output
     listed = json.loads(run("campaigns", "-w", str(sample), "--json").output)["campaigns"]
     (campaign_id,) = [r["campaign_id"] for r in listed]
@@ -48,8 +57,17 @@ def test_the_send_date_is_when_contacts_are_logged_and_names_the_campaign(
 
 def test_the_cap_counts_back_from_the_as_of_day(sample: Path, tmp_path: Path) -> None:
     common = ("-w", str(sample), "--no-estimate", "--cap-days", "14", "--min-audience", "0")
-    first = run("build", MAT, *common, "--out", str(tmp_path / "a.csv"), "--campaign", "june",
-                "--send-date", "2026-06-01")
+    first = run(
+        "build",
+        MAT,
+        *common,
+        "--out",
+        str(tmp_path / "a.csv"),
+        "--campaign",
+        "june",
+        "--send-date",
+        "2026-06-01",
+    )
     assert first.exit_code == 0, first.output
     with Warehouse.open(sample, read_only=True) as wh:
         june = CampaignLog(wh).contacts("june").height
@@ -65,8 +83,17 @@ def test_the_cap_counts_back_from_the_as_of_day(sample: Path, tmp_path: Path) ->
 
 
 def test_sent_moves_a_campaign_and_results_follow(sample: Path, tmp_path: Path) -> None:
-    built = run("build", MAT, "-w", str(sample), "--no-estimate", "--out",
-                str(tmp_path / "a.csv"), "--campaign", "late")
+    built = run(
+        "build",
+        MAT,
+        "-w",
+        str(sample),
+        "--no-estimate",
+        "--out",
+        str(tmp_path / "a.csv"),
+        "--campaign",
+        "late",
+    )
     assert built.exit_code == 0, built.output
     moved = run("sent", "late", "-w", str(sample), "--on", "2026-08-01")
     assert moved.exit_code == 0, moved.output

@@ -36,11 +36,17 @@ def test_sizes_leads_with_expected_buyers_and_an_interval(sample: Path) -> None:
     assert result.exit_code == 0, result.output
     text = " ".join(result.output.split())  # prose wraps at the screen's width
     start = text.index("Baseline buyers within 30 days (expected without the offer):")
-    head = text[start:text.index(".", text.index("backtests", start))]
+    head = text[start : text.index(".", text.index("backtests", start))]
     assert "interval" in head and "backtests" in head
-    for expected in ("base rate outside the audience", "Breadth-matched rate",
-                     "Added value over breadth", "Holdout:", "smallest uplift",
-                     "Historical co-purchase rate", "b.lift"):
+    for expected in (
+        "base rate outside the audience",
+        "Breadth-matched rate",
+        "Added value over breadth",
+        "Holdout:",
+        "smallest uplift",
+        "Historical co-purchase rate",
+        "b.lift",
+    ):
         assert expected in text, expected
     # the estimate comes before the co-purchase rate, which is labelled as that
     assert text.index("Baseline buyers within") < text.index("Historical co-purchase rate")
@@ -57,8 +63,9 @@ def test_no_estimate_says_it_was_skipped(sample: Path) -> None:
 
 def test_build_logs_the_estimate(sample: Path, tmp_path: Path) -> None:
     out = tmp_path / "mats.csv"
-    result = run("build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "mats",
-                 "--horizon", "21")
+    result = run(
+        "build", MAT, "-w", str(sample), "--out", str(out), "--campaign", "mats", "--horizon", "21"
+    )
     assert result.exit_code == 0, result.output
     assert "Baseline buyers within 21 days" in result.output
     confidence_never_called_take_up(result.output)
@@ -70,8 +77,19 @@ def test_build_logs_the_estimate(sample: Path, tmp_path: Path) -> None:
     assert est["n_backtests"] >= 5 and est["horizon_days"] == 21 and est["method"]
     assert est["audience"] == record["counts"]["treatment"]
     assert record["parameters"]["horizon_days"] == 21
-    skipped = run("build", MAT, "-w", str(sample), "--out", str(tmp_path / "quick.csv"),
-                  "--campaign", "quick", "--no-estimate", "--cap-days", "0")  # mats' own
+    skipped = run(
+        "build",
+        MAT,
+        "-w",
+        str(sample),
+        "--out",
+        str(tmp_path / "quick.csv"),
+        "--campaign",
+        "quick",
+        "--no-estimate",
+        "--cap-days",
+        "0",
+    )  # mats' own
     # treatment would be capped and its holdout is held out while mats runs: the cap is off here
     assert skipped.exit_code == 0, skipped.output
     with Warehouse.open(sample, read_only=True) as wh:
@@ -82,11 +100,13 @@ def test_build_logs_the_estimate(sample: Path, tmp_path: Path) -> None:
 
 def test_clearance_is_sized_by_calibrated_buyers(pristine: Path) -> None:
     with Warehouse.open(pristine, read_only=True) as wh:
-        plan = plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5, estimate=True,
-                                         campaign_id="c"))
+        plan = plan_list(
+            wh, ListRequest(FLEECE, purpose="clear", stock=5, estimate=True, campaign_id="c")
+        )
         out = preview_list(wh, plan)
-        naive = preview_list(wh, plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5,
-                                                           campaign_id="c")))
+        naive = preview_list(
+            wh, plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5, campaign_id="c"))
+        )
     c = out.clearance
     assert c is not None and c.clears and c.basis.startswith("calibrated expected buyers")
     assert out.takeup is not None and out.takeup.audience == out.treatment.height

@@ -56,10 +56,21 @@ def _fail(exc: ReachlistError) -> None:
     sys.exit(exc.exit_code)
 
 
-READ_ONLY_COMMANDS = frozenset({
-    "check", "items", "rules", "sql", "sizes", "overlap", "estimate", "backtest", "results",
-    "campaigns", "brief",
-})
+READ_ONLY_COMMANDS = frozenset(
+    {
+        "check",
+        "items",
+        "rules",
+        "sql",
+        "sizes",
+        "overlap",
+        "estimate",
+        "backtest",
+        "results",
+        "campaigns",
+        "brief",
+    }
+)
 """Commands that never write to the warehouse: they open a DuckDB file read-only, so several can
 run at once and a read-only file works. ``build`` joins them when the log goes to --state."""
 
@@ -135,16 +146,18 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
         help="Give up on a warehouse server that does not answer within this time.",
     )
     @functools.wraps(fn)
-    def wrapper(*args: Any, warehouse: str, mapping: str | None, connect_timeout: int,
-                **kwargs: Any) -> Any:
+    def wrapper(
+        *args: Any, warehouse: str, mapping: str | None, connect_timeout: int, **kwargs: Any
+    ) -> Any:
         from reachlist.schema import Mapping
         from reachlist.warehouse import Warehouse
 
         m = Mapping.from_toml(mapping) if mapping else Mapping.identity()
         name = click.get_current_context().command.name
         read_only = name in READ_ONLY_COMMANDS or (name == "build" and bool(kwargs.get("state")))
-        with Warehouse.open(warehouse, m, read_only=read_only,
-                            connect_timeout=connect_timeout) as wh:
+        with Warehouse.open(
+            warehouse, m, read_only=read_only, connect_timeout=connect_timeout
+        ) as wh:
             return fn(*args, wh=wh, **kwargs)
 
     return wrapper
@@ -152,10 +165,16 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
 
 @click.group(cls=_Group)
 @click.version_option(package_name="reachlist")
-@click.option("--width", type=click.IntRange(40, 400), default=None, metavar="COLUMNS",
-              help="Lay screens out for this many columns [default: the terminal's, else 100].")
-@click.option("--ascii", "ascii_only", is_flag=True,
-              help="Plain ASCII, no colour: for logs and email.")
+@click.option(
+    "--width",
+    type=click.IntRange(40, 400),
+    default=None,
+    metavar="COLUMNS",
+    help="Lay screens out for this many columns [default: the terminal's, else 100].",
+)
+@click.option(
+    "--ascii", "ascii_only", is_flag=True, help="Plain ASCII, no colour: for logs and email."
+)
 @click.pass_context
 def main(ctx: click.Context, width: int | None, ascii_only: bool) -> None:
     """reachlist: from order history to targeted-offer customer lists."""
@@ -168,15 +187,19 @@ def main(ctx: click.Context, width: int | None, ascii_only: bool) -> None:
                 fd = os.dup(stream.fileno())
             except (OSError, ValueError, AttributeError):
                 continue  # not a real file (a test runner's buffer): colour off is all we can do
-            console.file = open(fd, "w", encoding="ascii", errors="replace",  # noqa: SIM115
-                                buffering=1)
+            console.file = open(
+                fd,
+                "w",
+                encoding="ascii",
+                errors="replace",  # noqa: SIM115
+                buffering=1,
+            )
     from reachlist.campaign_file import project_defaults_path, read_project_defaults
 
     path = project_defaults_path()
     if path is not None:  # reachlist.toml here, or REACHLIST_DEFAULTS: defaults for every command
         values = read_project_defaults(path)
         ctx.default_map = {name: dict(values) for name in ctx.command.list_commands(ctx)}
-
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -12,15 +12,30 @@ from reachlist.warehouse import Warehouse
 
 @main.command()
 @warehouse_options
-@click.option("--state", default=None, metavar="PATH",
-              help="Local DuckDB file holding the campaign log (the warehouse's log is read too).")
-@click.option("--limit", default=50, show_default=True, type=click.IntRange(1, 10_000),
-              help="Newest campaigns shown from each log.")
+@click.option(
+    "--state",
+    default=None,
+    metavar="PATH",
+    help="Local DuckDB file holding the campaign log (the warehouse's log is read too).",
+)
+@click.option(
+    "--limit",
+    default=50,
+    show_default=True,
+    type=click.IntRange(1, 10_000),
+    help="Newest campaigns shown from each log.",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
-@click.option("--file-of", "file_of", default=None, metavar="CAMPAIGN_ID",
-              help="Print the campaign file CAMPAIGN_ID was built from, to rebuild it.")
-def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool,
-              file_of: str | None) -> None:
+@click.option(
+    "--file-of",
+    "file_of",
+    default=None,
+    metavar="CAMPAIGN_ID",
+    help="Print the campaign file CAMPAIGN_ID was built from, to rebuild it.",
+)
+def campaigns(
+    wh: Warehouse, state: str | None, limit: int, as_json: bool, file_of: str | None
+) -> None:
     """Campaigns built so far: target, build day, contacted and held-out customers, and when
     their results can be read.
 
@@ -47,10 +62,16 @@ def campaigns(wh: Warehouse, state: str | None, limit: int, as_json: bool,
 @main.command()
 @click.argument("campaign_id")
 @warehouse_options
-@click.option("--on", "sent_on", required=True, metavar="YYYY-MM-DD",
-              help="The day the campaign's list is (or was) sent.")
-@click.option("--state", default=None, metavar="PATH",
-              help="Local DuckDB file holding the campaign log.")
+@click.option(
+    "--on",
+    "sent_on",
+    required=True,
+    metavar="YYYY-MM-DD",
+    help="The day the campaign's list is (or was) sent.",
+)
+@click.option(
+    "--state", default=None, metavar="PATH", help="Local DuckDB file holding the campaign log."
+)
 def sent(wh: Warehouse, campaign_id: str, sent_on: str, state: str | None) -> None:
     """Record the day CAMPAIGN_ID is sent, when it differs from the build day or --send-date:
     results count the take-up horizon from it, and later contact caps read it.
@@ -64,21 +85,35 @@ def sent(wh: Warehouse, campaign_id: str, sent_on: str, state: str | None) -> No
     with CampaignLog.open(wh, state) as log:
         moved = log.set_send_date(campaign_id, datetime(when.year, when.month, when.day))
         where = log.where
-    out.print(f"Campaign {campaign_id}: {moved:,} contacts now sent on {when:%Y-%m-%d} "
-              f"(log in {where}).", markup=False)
+    out.print(
+        f"Campaign {campaign_id}: {moved:,} contacts now sent on {when:%Y-%m-%d} (log in {where}).",
+        markup=False,
+    )
 
 
 @main.command()
 @click.argument("campaign_id")
 @warehouse_options
-@click.option("--out", "out_path", default=None, metavar="FILE.html",
-              help="Write the brief to this HTML file (one self-contained page).")
+@click.option(
+    "--out",
+    "out_path",
+    default=None,
+    metavar="FILE.html",
+    help="Write the brief to this HTML file (one self-contained page).",
+)
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
-@click.option("--state", default=None, metavar="PATH",
-              help="Local DuckDB file holding the campaign log.")
+@click.option(
+    "--state", default=None, metavar="PATH", help="Local DuckDB file holding the campaign log."
+)
 @click.option("--json", "as_json", is_flag=True, help="Print the brief's numbers as JSON.")
-def brief(wh: Warehouse, campaign_id: str, out_path: str | None, force: bool,
-          state: str | None, as_json: bool) -> None:
+def brief(
+    wh: Warehouse,
+    campaign_id: str,
+    out_path: str | None,
+    force: bool,
+    state: str | None,
+    as_json: bool,
+) -> None:
     """A one-page brief of a built campaign to forward: the waterfall, the rules in words,
     expected buyers with their interval, holdout power and the cautions.
 
@@ -91,8 +126,10 @@ def brief(wh: Warehouse, campaign_id: str, out_path: str | None, force: bool,
     from reachlist.errors import InputError
 
     if out_path is None and not as_json:
-        raise InputError("Expected --out FILE.html or --json, found neither.",
-                         hint="pass --out brief.html to write the page")
+        raise InputError(
+            "Expected --out FILE.html or --json, found neither.",
+            hint="pass --out brief.html to write the page",
+        )
     if out_path is not None:
         _check_html_destination(out_path, force)
     with CampaignLog.open(wh, state) as log:
@@ -117,14 +154,22 @@ def _check_html_destination(path: str, force: bool) -> None:
 
     p = Path(path)
     if p.suffix.lower() not in (".html", ".htm"):
-        raise InputError(f"Expected a brief file ending in .html, found {path!r}.",
-                         hint="name it like winter-mats.html")
+        raise InputError(
+            f"Expected a brief file ending in .html, found {path!r}.",
+            hint="name it like winter-mats.html",
+        )
     if p.is_dir():
-        raise StateError(f"Expected a file path for the brief, found a directory at {path!r}.",
-                         hint="give a file name such as winter-mats.html")
+        raise StateError(
+            f"Expected a file path for the brief, found a directory at {path!r}.",
+            hint="give a file name such as winter-mats.html",
+        )
     if not p.parent.is_dir():
-        raise StateError(f"Expected an existing directory for {path!r}, found none at "
-                         f"{str(p.parent)!r}.", hint="create the directory first")
+        raise StateError(
+            f"Expected an existing directory for {path!r}, found none at {str(p.parent)!r}.",
+            hint="create the directory first",
+        )
     if p.exists() and not force:
-        raise StateError(f"File {path!r} already exists; nothing was written.",
-                         hint="pass --force to overwrite it, or choose another --out")
+        raise StateError(
+            f"File {path!r} already exists; nothing was written.",
+            hint="pass --force to overwrite it, or choose another --out",
+        )

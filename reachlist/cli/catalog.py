@@ -11,15 +11,27 @@ from reachlist.warehouse import Warehouse
 @main.command()
 @click.argument("search")
 @warehouse_options
-@click.option("--since", default=None, help="Count buyers from this day (YYYY-MM-DD) "
-              "[default: 12 months before --until].")
-@click.option("--until", default=None, help="Count buyers before this day (exclusive) "
-              "[default: the day after the last order].")
-@click.option("--top", default=10, show_default=True, type=click.IntRange(1, 1000),
-              help="Rows shown of each kind (departments, categories, products).")
+@click.option(
+    "--since",
+    default=None,
+    help="Count buyers from this day (YYYY-MM-DD) [default: 12 months before --until].",
+)
+@click.option(
+    "--until",
+    default=None,
+    help="Count buyers before this day (exclusive) [default: the day after the last order].",
+)
+@click.option(
+    "--top",
+    default=10,
+    show_default=True,
+    type=click.IntRange(1, 1000),
+    help="Rows shown of each kind (departments, categories, products).",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
-def items(wh: Warehouse, search: str, since: str | None, until: str | None, top: int,
-          as_json: bool) -> None:
+def items(
+    wh: Warehouse, search: str, since: str | None, until: str | None, top: int, as_json: bool
+) -> None:
     """Products, categories and departments whose code or name contains SEARCH, with how many
     customers bought each: the targets and stand-ins the other commands take.
 

@@ -10,10 +10,20 @@ from reachlist.warehouse import Warehouse
 
 @main.command()
 @click.option("--out", "out_path", required=True, help="DuckDB file to write.")
-@click.option("--customers", default=20_000, show_default=True, type=click.IntRange(500, 10_000_000),
-              help="Customers to generate (500 to 10,000,000).")
-@click.option("--seed", default=7, show_default=True, type=click.IntRange(0, 2**32 - 1),
-              help="Random seed: the same seed and size always give the same warehouse.")
+@click.option(
+    "--customers",
+    default=20_000,
+    show_default=True,
+    type=click.IntRange(500, 10_000_000),
+    help="Customers to generate (500 to 10,000,000).",
+)
+@click.option(
+    "--seed",
+    default=7,
+    show_default=True,
+    type=click.IntRange(0, 2**32 - 1),
+    help="Random seed: the same seed and size always give the same warehouse.",
+)
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
     """Write the fictional garden-and-home retailer's warehouse (deterministic).

@@ -20,8 +20,13 @@ def _step(title: str, args: list[str]) -> None:
 
 
 @main.command()
-@click.option("--dir", "directory", default="reachlist-demo", show_default=True,
-              help="Folder for the sample warehouse and the list.")
+@click.option(
+    "--dir",
+    "directory",
+    default="reachlist-demo",
+    show_default=True,
+    help="Folder for the sample warehouse and the list.",
+)
 def demo(directory: str) -> None:
     """Build the sample warehouse (if absent) and run the main job on it: rules toward a target,
     a preview of the list, then the list itself with its campaign log entry.
@@ -42,6 +47,16 @@ def demo(directory: str) -> None:
     campaign = ["--campaign", "demo-heated-mat"]
     _step("1. Rules toward the heated seedling mat", ["rules", DEMO_TARGET, *w, "--top", "5"])
     _step("2. Preview the list", ["sizes", DEMO_TARGET, *w, *campaign])
-    _step("3. Build it (the demo replaces its own earlier list and campaign)",
-          ["build", DEMO_TARGET, *w, "--out", str(folder / "heated-mat.csv"), "--force",
-           "--replace", *campaign])
+    _step(
+        "3. Build it (the demo replaces its own earlier list and campaign)",
+        [
+            "build",
+            DEMO_TARGET,
+            *w,
+            "--out",
+            str(folder / "heated-mat.csv"),
+            "--force",
+            "--replace",
+            *campaign,
+        ],
+    )

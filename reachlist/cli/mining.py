@@ -48,11 +48,19 @@ def mining_options(fn):  # type: ignore[no-untyped-def]
                 help="Minimum share of baskets holding X+y.",
             ),
             click.option(
-                "--min-confidence", default=0.0, show_default=True, type=click.FloatRange(0, 1),
+                "--min-confidence",
+                default=0.0,
+                show_default=True,
+                type=click.FloatRange(0, 1),
                 help="Keep rules whose confidence (co-purchase rate) is at least this.",
             ),
-            click.option("--min-lift", default=1.0, show_default=True, type=click.FloatRange(0),
-                         help="Keep rules whose lift is at least this."),
+            click.option(
+                "--min-lift",
+                default=1.0,
+                show_default=True,
+                type=click.FloatRange(0),
+                help="Keep rules whose lift is at least this.",
+            ),
             click.option(
                 "--max-antecedent",
                 default=3,
@@ -165,9 +173,17 @@ def rules(
         click.echo(
             rules_json(
                 frame,
-                {"schema_version": 2, "target": target,
-                 "window": {"since": window.since.isoformat(), "until": window.until.isoformat()},
-                 "n_baskets": n, "correction": correction, "narrowed": note or None},
+                {
+                    "schema_version": 2,
+                    "target": target,
+                    "window": {
+                        "since": window.since.isoformat(),
+                        "until": window.until.isoformat(),
+                    },
+                    "n_baskets": n,
+                    "correction": correction,
+                    "narrowed": note or None,
+                },
             )
         )
         return

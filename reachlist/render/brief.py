@@ -46,7 +46,7 @@ def _svg(fig: Any) -> str:
     buf = io.StringIO()
     fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None})
     text = buf.getvalue()
-    return text[text.index("<svg"):]
+    return text[text.index("<svg") :]
 
 
 def waterfall_chart(data: dict[str, Any]) -> str:
@@ -56,9 +56,11 @@ def waterfall_chart(data: dict[str, Any]) -> str:
     matplotlib.rcParams["svg.hashsalt"] = "reachlist"  # the same page for the same campaign
     from matplotlib.figure import Figure
 
-    steps = [("reached by the rules", data["reached"])] + [
-        (s["step"], s["left"]) for s in data["waterfall"] if s["in_use"]
-    ] + [("to contact (after the holdout)", data["treatment"])]
+    steps = (
+        [("reached by the rules", data["reached"])]
+        + [(s["step"], s["left"]) for s in data["waterfall"] if s["in_use"]]
+        + [("to contact (after the holdout)", data["treatment"])]
+    )
     fig = Figure(figsize=(7.5, 0.42 * len(steps) + 0.8))
     ax = fig.add_subplot()
     labels = [s for s, _ in steps][::-1]
@@ -96,13 +98,17 @@ def brief_html(data: dict[str, Any]) -> str:
     e = html.escape
     exp = data["expected_buyers"]
     if exp is not None:
-        expected = (f'<span data-field="expected">{_n(exp["expected"])}</span> '
-                    f'(<span data-field="expected_low">{_n(exp["low"])}</span>-'
-                    f'<span data-field="expected_high">{_n(exp["high"])}</span>)')
+        expected = (
+            f'<span data-field="expected">{_n(exp["expected"])}</span> '
+            f'(<span data-field="expected_low">{_n(exp["low"])}</span>-'
+            f'<span data-field="expected_high">{_n(exp["high"])}</span>)'
+        )
         level = exp["level"]
         shown = f"{level:.0%}" if isinstance(level, float) else str(level)
-        expected_note = (f"{e(shown)} interval from {exp['n_backtests']} backtests; "
-                         f"buyers within {exp['horizon_days']} days without the offer")
+        expected_note = (
+            f"{e(shown)} interval from {exp['n_backtests']} backtests; "
+            f"buyers within {exp['horizon_days']} days without the offer"
+        )
     else:
         expected = '<span data-field="expected">not estimated</span>'
         expected_note = e(str(data.get("estimate_skipped") or "no estimate in the log"))
@@ -129,8 +135,10 @@ def brief_html(data: dict[str, Any]) -> str:
     if power is None:
         power_html = "<p>The holdout's power could not be worked out (no baseline rate).</p>"
     elif power["detectable_relative_uplift"] is None:
-        power_html = ("<p>With this holdout no uplift can be detected with "
-                      f"{power['power']:.0%} power: hold out more customers or widen the list.</p>")
+        power_html = (
+            "<p>With this holdout no uplift can be detected with "
+            f"{power['power']:.0%} power: hold out more customers or widen the list.</p>"
+        )
     else:
         power_html = (
             f"<p>With {_n(data['holdout'])} held out of {_n(data['listed'])} and a baseline "
@@ -144,18 +152,21 @@ def brief_html(data: dict[str, Any]) -> str:
     cautions = "".join(f"<p class='caution'>{e(c)}</p>" for c in data["cautions"])
     payload = json.dumps(data, indent=1, sort_keys=True, default=str).replace("</", "<\\/")
     sent = data.get("send_date") or "the build day"
-    window = " to ".join(w[:10] for w in data["window"][:2]) + " (end excluded)" \
-        if data["window"] else "-"
+    window = (
+        " to ".join(w[:10] for w in data["window"][:2]) + " (end excluded)"
+        if data["window"]
+        else "-"
+    )
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
-<title>Campaign brief: {e(data['campaign_id'])}</title>
+<title>Campaign brief: {e(data["campaign_id"])}</title>
 <style>{CSS}</style></head>
 <body>
-<h1>Campaign brief: <span data-field="campaign_id">{e(data['campaign_id'])}</span></h1>
-<p class="sub">Offer: <b>{e(data['offer_name'])}</b> ({e(data['target'])}), purpose
-{e(data['purpose'])}; built {e(data['built_at'][:16].replace('T', ' '))}, sent {e(str(sent))};
-rules from {e(window)} at {e(data['level'])} level.</p>
+<h1>Campaign brief: <span data-field="campaign_id">{e(data["campaign_id"])}</span></h1>
+<p class="sub">Offer: <b>{e(data["offer_name"])}</b> ({e(data["target"])}), purpose
+{e(data["purpose"])}; built {e(data["built_at"][:16].replace("T", " "))}, sent {e(str(sent))};
+rules from {e(window)} at {e(data["level"])} level.</p>
 {overrides}
 <dl class="key">{key_html}</dl>
 <p class="sub">Expected buyers: {expected_note}.</p>
@@ -165,7 +176,7 @@ rules from {e(window)} at {e(data['level'])} level.</p>
 <tbody>{rows}</tbody></table>
 <h2>The rules, in words</h2>
 <p>Each customer is listed under one rule: the items they bought that, in past orders, went with
-{e(data['offer_name'])}.</p>
+{e(data["offer_name"])}.</p>
 <div class="chart">{rules_chart(data)}</div>
 <table><thead><tr><th>#</th><th>customers who</th><th class="n">co-purchase</th>
 <th class="n">lift</th><th class="n">to contact</th><th class="n">held out</th></tr></thead>

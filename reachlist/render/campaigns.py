@@ -31,8 +31,14 @@ def render_campaigns(console: Console, listing: CampaignListing) -> None:
         if several_logs:
             campaign += f"\n[dim]{escape(row['log'])}[/dim]"
         target = escape(row["target"]) + f"\n[dim]{escape(row['purpose'])}[/dim]"
-        table.add_row(campaign, target, f"{row['sent']:%Y-%m-%d}", fmt_count(row["treatment"]),
-                      fmt_count(row["holdout"]), results)
+        table.add_row(
+            campaign,
+            target,
+            f"{row['sent']:%Y-%m-%d}",
+            fmt_count(row["treatment"]),
+            fmt_count(row["holdout"]),
+            results,
+        )
     console.print(table)
     shown = frame.height
     if listing.narrowed:

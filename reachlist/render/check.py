@@ -54,8 +54,11 @@ def render_check(report: CheckReport, console: Console) -> None:
             "warning(s) (!: handled by every command, and reported)."
         )
     if report.casts:
-        console.print("Read with a conversion (lossless, no action needed): "
-                      + escape("; ".join(report.casts)) + ".")
+        console.print(
+            "Read with a conversion (lossless, no action needed): "
+            + escape("; ".join(report.casts))
+            + "."
+        )
     if errors:
         return
     console.print("[green]Contract: every table and column found, with usable types.[/]")
@@ -92,5 +95,6 @@ def check_json(report: CheckReport) -> str:
         "ok": report.ok,
         **{k: v for k, v in dataclasses.asdict(report).items()},
     }
-    return json.dumps(payload, indent=2, default=lambda v: v.isoformat()
-                      if hasattr(v, "isoformat") else str(v))
+    return json.dumps(
+        payload, indent=2, default=lambda v: v.isoformat() if hasattr(v, "isoformat") else str(v)
+    )

@@ -30,8 +30,12 @@ def render_items(console: Console, found: ItemSearch) -> None:
             name = row["name"] or ""
         else:
             name = f"{row['kind']}, {row['skus']:,} SKU{'s' if row['skus'] != 1 else ''}"
-        table.add_row(escape(row["target"]), escape(name), fmt_count(row["buyers"]),
-                      fmt_count(int(round(row["units"]))))
+        table.add_row(
+            escape(row["target"]),
+            escape(name),
+            fmt_count(row["buyers"]),
+            fmt_count(int(round(row["units"]))),
+        )
     console.print(table)
     for note in found.notes:
         console.print(escape(note))
@@ -45,8 +49,10 @@ def items_json(found: ItemSearch) -> str:
     payload: dict[str, Any] = {
         "schema_version": SCHEMA_VERSION,
         "search": found.text,
-        "window": {"since": found.window.since.isoformat(),
-                   "until": found.window.until.isoformat()},
+        "window": {
+            "since": found.window.since.isoformat(),
+            "until": found.window.until.isoformat(),
+        },
         "matched": found.matched,
         "items": found.items.to_dicts(),
         "notes": found.notes,

@@ -76,8 +76,11 @@ def rules_table(outcome: ListOutcome, width: int | None = None) -> Table:
         low, high = rr.interval
         cells = [
             str(r.rank) + ("" if r.significant or not narrow else " [yellow]ns[/]"),
-            *([escape(r.rule_id) + ("" if r.significant else " [yellow]ns[/]")]
-              if not narrow else []),
+            *(
+                [escape(r.rule_id) + ("" if r.significant else " [yellow]ns[/]")]
+                if not narrow
+                else []
+            ),
             escape(" + ".join(r.antecedent)),
             f"{100 * r.score:.1f} ({100 * low:.1f}-{100 * high:.1f})",
             f"{r.lift:.2f}",
@@ -166,10 +169,14 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
             )
     else:
         why = outcome.estimate_note or "no estimate"
-        tail = ("; run without --no-estimate for baseline buyers with an interval from past "
-                "backtests" if why == SKIPPED else "")
-        console.print(f"[yellow]Baseline buyers: not estimated[/] ({escape(why)}){tail}.",
-                      soft_wrap=False)
+        tail = (
+            "; run without --no-estimate for baseline buyers with an interval from past backtests"
+            if why == SKIPPED
+            else ""
+        )
+        console.print(
+            f"[yellow]Baseline buyers: not estimated[/] ({escape(why)}){tail}.", soft_wrap=False
+        )
     if outcome.holdout_plan is not None:
         render_holdout_planning(outcome.holdout_plan, console)
     rate = outcome.co_purchase_rate()
@@ -265,15 +272,18 @@ def render_overlap(report: OverlapReport, console: Console, *, show_all: bool = 
         f"{len(report.overlapping)} of {len(report.sets)} pairs and triples sell together more "
         f"often than chance (one-sided Fisher exact test on each split of a set, "
         f"{report.correction}-corrected over all {len(report.sets)} sets, adjusted p < "
-        f"{report.alpha}, lift > 1)" + (f"; {hidden} others hidden (--all shows them)." if hidden
-                                         else "."),
+        f"{report.alpha}, lift > 1)"
+        + (f"; {hidden} others hidden (--all shows them)." if hidden else "."),
         soft_wrap=False,
     )
     if report.overlapping:
         console.print(f"[yellow]Advice:[/] {escape(ADVICE)}", soft_wrap=False)
     else:
-        console.print("No set stands out: discounting these items together costs no margin on "
-                      "purchases that were already happening together.", soft_wrap=False)
+        console.print(
+            "No set stands out: discounting these items together costs no margin on "
+            "purchases that were already happening together.",
+            soft_wrap=False,
+        )
 
 
 OUTCOME_SCHEMA = 1
@@ -289,14 +299,23 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
     reach = {r.rule.rule_id: r for r in outcome.per_rule or []}
     for r in plan.rules:
         row: dict[str, object] = {
-            "rank": r.rank, "rule_id": r.rule_id, "antecedent": list(r.antecedent),
-            "co_purchase_rate": r.confidence, "lift": r.lift, "breadth_lift": r.breadth_lift,
+            "rank": r.rank,
+            "rule_id": r.rule_id,
+            "antecedent": list(r.antecedent),
+            "co_purchase_rate": r.confidence,
+            "lift": r.lift,
+            "breadth_lift": r.breadth_lift,
             "significant": r.significant,
         }
         if r.rule_id in reach:
             rr = reach[r.rule_id]
-            row.update(reached=rr.reached, kept=rr.kept, above=rr.above, adds=rr.adds,
-                       co_purchase_interval=list(rr.interval))
+            row.update(
+                reached=rr.reached,
+                kept=rr.kept,
+                above=rr.above,
+                adds=rr.adds,
+                co_purchase_interval=list(rr.interval),
+            )
         rules.append(row)
     payload: dict[str, object] = {
         "schema_version": OUTCOME_SCHEMA,
@@ -306,14 +325,22 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
         "purpose": plan.request.purpose,
         "as_of": plan.now.isoformat(),
         "send_date": None if plan.send_at is None else plan.send_at.date().isoformat(),
-        "window": {"since": plan.spec.lookback.since.isoformat(),
-                   "until": plan.spec.lookback.until.isoformat()},
+        "window": {
+            "since": plan.spec.lookback.since.isoformat(),
+            "until": plan.spec.lookback.until.isoformat(),
+        },
         "level": plan.ruleset.level,
         "rules": rules,
         "reached": outcome.reached,
         "waterfall": [
-            {"step": s.key, "label": s.label, "in_use": s.in_use, "removed": s.removed,
-             "left": s.remaining, "note": s.note or None}
+            {
+                "step": s.key,
+                "label": s.label,
+                "in_use": s.in_use,
+                "removed": s.removed,
+                "left": s.remaining,
+                "note": s.note or None,
+            }
             for s in outcome.waterfall
         ],
         "listed": outcome.listed.height,
@@ -321,15 +348,13 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
         "holdout": outcome.holdout.height,
         "baseline_buyers": None if outcome.takeup is None else outcome.takeup.as_dict(),
         "estimate_note": outcome.estimate_note,
-        "holdout_power": None if outcome.holdout_plan is None else
-        outcome.holdout_plan.as_dict(),
+        "holdout_power": None if outcome.holdout_plan is None else outcome.holdout_plan.as_dict(),
         "clearance": None if outcome.clearance is None else dataclasses.asdict(outcome.clearance),
         "notes": list(plan.notes),
         "overrides": list(plan.overrides),
     }
     if built is not None:
-        payload["files"] = {"list": str(built.path),
-                            "also": [str(p) for p in built.also_written]}
+        payload["files"] = {"list": str(built.path), "also": [str(p) for p in built.also_written]}
         payload["log"] = built.log_where
         payload["notes"] = [*plan.notes, *built.notes]
     return json.dumps(payload, indent=2, default=str)

@@ -47,9 +47,20 @@ def rules_table(
         and bool(frame["breadth_lift"].is_not_null().any())
     )
     # b.lift (added value over breadth) takes conviction's place at 100 columns.
-    measures = ("n(X)", "n(X+y)", "conf", "lift", "p adj", "sig") if show_consequent else (
-        "n(X)", "n(X+y)", "supp", "conf", "lift", "b.lift" if breadth else "conv", "p adj",
-        "sig")
+    measures = (
+        ("n(X)", "n(X+y)", "conf", "lift", "p adj", "sig")
+        if show_consequent
+        else (
+            "n(X)",
+            "n(X+y)",
+            "supp",
+            "conf",
+            "lift",
+            "b.lift" if breadth else "conv",
+            "p adj",
+            "sig",
+        )
+    )
     dropped = {"n(X)", "supp", "p adj"} if narrow else set()
     for name in measures:
         if name not in dropped:
@@ -71,8 +82,7 @@ def rules_table(
             "[bold green]*[/]" if r["significant"] else "[yellow]ns[/]",
         ]
         if narrow:
-            names = ["id", "antecedent", *(["-> consequent"] if show_consequent else []),
-                     *measures]
+            names = ["id", "antecedent", *(["-> consequent"] if show_consequent else []), *measures]
             cells = [c for c, n in zip(cells, names, strict=True) if n not in dropped]
         t.add_row(*cells)
     return t

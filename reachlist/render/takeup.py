@@ -76,8 +76,11 @@ def render_estimate(r: TakeUpReport, console: Console) -> None:
     for line in estimate_lines(r):
         console.print(line, soft_wrap=False)
     if r.already_hold:
-        console.print(f"[dim]{r.already_hold:,} given customers already hold the target and "
-                      "are not counted.[/]", soft_wrap=False)
+        console.print(
+            f"[dim]{r.already_hold:,} given customers already hold the target and "
+            "are not counted.[/]",
+            soft_wrap=False,
+        )
 
 
 def render_holdout_planning(p: HoldoutPlanning, console: Console) -> None:
@@ -87,20 +90,37 @@ def render_holdout_planning(p: HoldoutPlanning, console: Console) -> None:
 
 def backtest_table(bt: Backtest) -> Table:
     level = bt.combined.estimate.expected.level
-    t = Table(title=f"Backtest for {escape(str(bt.target))}: cutoff {bt.cutoff:%Y-%m-%d}, "
-              f"{bt.horizon_days}-day horizon", title_justify="left")
-    for col in ("audience", "n", "pred.", f"{level:.0%} int.", "obs.", "naive", "breadth",
-                "base", "xbreadth"):
+    t = Table(
+        title=f"Backtest for {escape(str(bt.target))}: cutoff {bt.cutoff:%Y-%m-%d}, "
+        f"{bt.horizon_days}-day horizon",
+        title_justify="left",
+    )
+    for col in (
+        "audience",
+        "n",
+        "pred.",
+        f"{level:.0%} int.",
+        "obs.",
+        "naive",
+        "breadth",
+        "base",
+        "xbreadth",
+    ):
         t.add_column(col, justify="left" if col == "audience" else "right", no_wrap=True)
     for r in bt.rows:
         e = r.estimate.expected
         av = r.estimate.added_value
         name = r.label if r.rule is None else " + ".join(r.rule.antecedent)
         t.add_row(
-            escape(name), f"{r.customers:,}", f"{r.predicted:,.1f}",
-            f"{e.low:,.1f}-{e.high:,.1f}", f"{r.observed:,}" + ("" if r.covered else " !"),
-            f"{r.naive:,.1f}", _pct(r.estimate.breadth_matched_rate),
-            _pct(r.estimate.base_rate), "-" if av is None else f"x{av.estimate:.2f}",
+            escape(name),
+            f"{r.customers:,}",
+            f"{r.predicted:,.1f}",
+            f"{e.low:,.1f}-{e.high:,.1f}",
+            f"{r.observed:,}" + ("" if r.covered else " !"),
+            f"{r.naive:,.1f}",
+            _pct(r.estimate.breadth_matched_rate),
+            _pct(r.estimate.base_rate),
+            "-" if av is None else f"x{av.estimate:.2f}",
         )
     return t
 
@@ -110,8 +130,14 @@ def gains_rich_table(gains: pl.DataFrame) -> Table:
     for col in ("decile", "customers", "buyers", "rate", "lift", "cum. share of buyers"):
         t.add_column(col, justify="right")
     for row in gains.iter_rows(named=True):
-        t.add_row(str(row["group"]), f"{row['customers']:,}", f"{row['buyers']:,.0f}",
-                  _pct(row["rate"]), f"{row['lift']:.2f}", _pct(row["cum_share_buyers"], 0))
+        t.add_row(
+            str(row["group"]),
+            f"{row['customers']:,}",
+            f"{row['buyers']:,.0f}",
+            _pct(row["rate"]),
+            f"{row['lift']:.2f}",
+            _pct(row["cum_share_buyers"], 0),
+        )
     return t
 
 
@@ -125,7 +151,8 @@ def render_backtest(bt: Backtest, console: Console, *, chart: bool = True) -> No
         "breadth: breadth-matched rate; base: rate outside the rule's audience; xbreadth: "
         "added value over breadth; ! = outside the interval. Rules mined in "
         f"{bt.window}; nothing after the cutoff was read except to observe buyers.",
-        soft_wrap=False, style="dim",
+        soft_wrap=False,
+        style="dim",
     )
     if bt.gains.height:
         console.print(gains_rich_table(bt.gains))
@@ -134,21 +161,33 @@ def render_backtest(bt: Backtest, console: Console, *, chart: bool = True) -> No
 
 
 def _group_row(t: Table, g: GroupTakeUp) -> None:
-    t.add_row(g.group, f"{g.customers:,}", f"{g.buyers:,}", _pct(g.rate.estimate),
-              f"{_pct(g.rate.low)}-{_pct(g.rate.high)}", f"{g.units:,.0f}")
+    t.add_row(
+        g.group,
+        f"{g.customers:,}",
+        f"{g.buyers:,}",
+        _pct(g.rate.estimate),
+        f"{_pct(g.rate.low)}-{_pct(g.rate.high)}",
+        f"{g.units:,.0f}",
+    )
 
 
 def render_results(r: CampaignResults, console: Console) -> None:
-    t = Table(title=f"Campaign {escape(r.campaign_id)}: {escape(str(r.target))}, sent "
-              f"{r.sent:%Y-%m-%d}, {r.horizon_days}-day horizon", title_justify="left")
+    t = Table(
+        title=f"Campaign {escape(r.campaign_id)}: {escape(str(r.target))}, sent "
+        f"{r.sent:%Y-%m-%d}, {r.horizon_days}-day horizon",
+        title_justify="left",
+    )
     for col in ("group", "customers", "buyers", "take-up", "95% CI", "units"):
         t.add_column(col, justify="left" if col == "group" else "right")
     _group_row(t, r.treatment)
     _group_row(t, r.holdout)
     console.print(t)
     if not r.complete:
-        console.print("[yellow]The horizon has not ended for every contact: later orders may "
-                      "still add buyers.[/]", soft_wrap=False)
+        console.print(
+            "[yellow]The horizon has not ended for every contact: later orders may "
+            "still add buyers.[/]",
+            soft_wrap=False,
+        )
     if r.difference is not None and r.ratio is not None:
         d, q = r.difference, r.ratio
         console.print(
@@ -209,22 +248,28 @@ def gains_svg(points: pl.DataFrame, title: str = "Gains chart") -> str:
     def xy(px: float, py: float) -> str:
         return f"{m + px * pw:.1f},{h - m - py * ph:.1f}"
 
-    curve = " ".join(xy(a, b) for a, b in zip(points["share_customers"], points["share_buyers"],
-                                                strict=True))
+    curve = " ".join(
+        xy(a, b) for a, b in zip(points["share_customers"], points["share_buyers"], strict=True)
+    )
     ticks: list[str] = []
     for k in range(0, 101, 25):
         f = k / 100
-        ticks.append(f'<text x="{m + f * pw:.1f}" y="{h - m + 18}" text-anchor="middle">{k}%</text>')
-        ticks.append(f'<text x="{m - 8}" y="{h - m - f * ph + 4:.1f}" text-anchor="end">{k}%</text>')
-        ticks.append(f'<line x1="{m}" y1="{h - m - f * ph:.1f}" x2="{w - m}" '
-                     f'y2="{h - m - f * ph:.1f}" stroke="#ddd"/>')
+        ticks.append(
+            f'<text x="{m + f * pw:.1f}" y="{h - m + 18}" text-anchor="middle">{k}%</text>'
+        )
+        ticks.append(
+            f'<text x="{m - 8}" y="{h - m - f * ph + 4:.1f}" text-anchor="end">{k}%</text>'
+        )
+        ticks.append(
+            f'<line x1="{m}" y1="{h - m - f * ph:.1f}" x2="{w - m}" '
+            f'y2="{h - m - f * ph:.1f}" stroke="#ddd"/>'
+        )
     head = (
         f'<svg xmlns="http://www.w3.org/2000/svg" width="{w}" height="{h}" '
         f'viewBox="0 0 {w} {h}" font-family="sans-serif" font-size="12">'
     )
     title_el = (
-        f'<text x="{w / 2}" y="24" text-anchor="middle" font-size="14">'
-        f"{html_escape(title)}</text>"
+        f'<text x="{w / 2}" y="24" text-anchor="middle" font-size="14">{html_escape(title)}</text>'
     )
     axes = [
         f'<line x1="{m}" y1="{h - m}" x2="{w - m}" y2="{h - m}" stroke="black"/>',
@@ -249,8 +294,18 @@ def gains_svg(points: pl.DataFrame, title: str = "Gains chart") -> str:
             "random list</text>"
         ),
     ]
-    parts = [head, '<rect width="100%" height="100%" fill="white"/>', title_el, *ticks, *axes,
-             random_line, model_line, *labels, "</svg>", ""]
+    parts = [
+        head,
+        '<rect width="100%" height="100%" fill="white"/>',
+        title_el,
+        *ticks,
+        *axes,
+        random_line,
+        model_line,
+        *labels,
+        "</svg>",
+        "",
+    ]
     return "\n".join(parts)
 
 
