@@ -155,7 +155,7 @@ def choose_rules(
     )
 
 
-def below_breadth(frame: pl.DataFrame) -> pl.Expr | pl.Series:
+def below_breadth(frame: pl.DataFrame) -> pl.Series:
     """Rules whose breadth-matched lift interval lies wholly below 1: their antecedent's holders
     buy the target less often than customers who shop as broadly. Not chosen by default."""
     if "breadth_lift_high" not in frame.columns:

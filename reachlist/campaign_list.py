@@ -26,7 +26,7 @@ from reachlist.query import Query
 MAX_LIMIT = 10_000
 """The most campaigns one listing reads from each log (a bound, not a page size)."""
 
-COLUMNS = {
+COLUMNS: dict[str, Any] = {
     "log": pl.String,
     "campaign_id": pl.String,
     "target": pl.String,

@@ -76,7 +76,7 @@ MEASURES = (
 )
 """Columns a rule table can be sorted by (descending; p-values ascending)."""
 
-RULE_COLUMNS = {
+RULE_COLUMNS: dict[str, Any] = {
     "rule_id": pl.String,
     "antecedent": pl.List(pl.String),
     "consequent": pl.String,
@@ -99,7 +99,7 @@ RULE_COLUMNS = {
 }
 """Schema of every rule table this module returns."""
 
-ITEMSET_COLUMNS = {
+ITEMSET_COLUMNS: dict[str, Any] = {
     "items": pl.List(pl.String),
     "size": pl.Int64,
     "count": pl.Int64,
@@ -655,7 +655,7 @@ def _search(
         # successors that would stay frequent if they were independent of the item
         cut_cost = counts[k] * (mean_len + 4) * _LINE_COST + _CUT_OVERHEAD
         guess = np.count_nonzero(counts[k + 1 :] * counts[k] >= min_count * n_rows)
-        work = succ.size  # rows ANDed here, and (all guessed to survive) on the levels below
+        work: float = succ.size  # rows ANDed here, and (all guessed to survive) on the levels below
         if max_size >= 3:
             work += guess * guess / 2 * (1.0 + (guess / 3 if max_size >= 4 else 0.0))
         if cut_cost + work * counts[k] / 64 < work * n_words:
@@ -917,6 +917,7 @@ def _resolve_min_count(n: int, min_count: int | None, min_support: float | None)
         if int(min_count) < 1:
             raise InputError(f"min_count must be at least 1, got {min_count}.")
         return int(min_count)
+    assert min_support is not None  # exactly one of the two is given (checked above)
     if not 0.0 < float(min_support) <= 1.0:
         raise InputError(f"min_support must be in (0, 1], got {min_support}.")
     # exact decimal arithmetic: min_support=0.1 with N=30 means 3 baskets, not 4
@@ -1359,15 +1360,17 @@ def _rules_from_matrix(
     width = ids.shape[1]
     ante = ante[:, :width]  # the padding column is at the end; keep the itemset width
     size = np.concatenate(rsize)
-    cons = np.concatenate(cons)
-    n_xy = np.concatenate(n_xy)
+    cons_ids = np.concatenate(cons)
+    n_both = np.concatenate(n_xy)
     hit = _lookup(ids, ante, base)
     if np.any(hit < 0):
         raise InputError(
             "itemset counts are not closed under subsets (an antecedent's count is missing).",
             hint="give the count of every subset of every itemset",
         )
-    return _assemble(ante, size, cons, n, counts[hit], item_count[cons], n_xy, labels, **options)
+    return _assemble(
+        ante, size, cons_ids, n, counts[hit], item_count[cons_ids], n_both, labels, **options
+    )
 
 
 def rules_from_itemsets(

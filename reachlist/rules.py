@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
+from datetime import date, datetime
 
 import numpy as np
 import polars as pl
@@ -114,8 +115,8 @@ def mine_rules(
     *,
     level: str = "sku",
     basket: str = "customer",
-    since: str | None = None,
-    until: str | None = None,
+    since: str | date | datetime | None = None,
+    until: str | date | datetime | None = None,
     min_support: float = DEFAULT_MIN_SUPPORT,
     min_confidence: float = 0.0,
     min_lift: float = 1.0,
@@ -387,8 +388,8 @@ def strongest_rules(
     *,
     level: str = "sku",
     basket: str = "customer",
-    since: str | None = None,
-    until: str | None = None,
+    since: str | date | datetime | None = None,
+    until: str | date | datetime | None = None,
     measure: str = "leverage",
     top: int = 20,
     min_support: float = 0.01,

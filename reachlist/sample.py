@@ -30,6 +30,7 @@ import copy
 import math
 import os
 import time
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import date, datetime, timedelta
 from pathlib import Path
@@ -901,7 +902,7 @@ class _Chunk:
     l_cents: np.ndarray
     # ground truth per rule: (customer index, hold time or nan, first target time or nan,
     # source 0/1/2, first target sku or -1, target purchases, full target returns)
-    planted: list[tuple[np.ndarray, ...]]
+    planted: Sequence[tuple[np.ndarray, ...]]
     quirks: dict[str, int]
 
 

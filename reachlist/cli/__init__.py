@@ -199,7 +199,9 @@ def main(ctx: click.Context, width: int | None, ascii_only: bool) -> None:
     path = project_defaults_path()
     if path is not None:  # reachlist.toml here, or REACHLIST_DEFAULTS: defaults for every command
         values = read_project_defaults(path)
-        ctx.default_map = {name: dict(values) for name in ctx.command.list_commands(ctx)}
+        group = ctx.command
+        assert isinstance(group, click.Group)
+        ctx.default_map = {name: dict(values) for name in group.list_commands(ctx)}
 
 
 if __name__ == "__main__":  # pragma: no cover
