@@ -125,3 +125,26 @@ def test_help_is_in_the_order_of_the_work_with_an_example_each() -> None:
             if isinstance(p, click.Option) and not p.help and p.name != "help"
         ]
         assert unhelped == [], (name, unhelped)
+
+
+def test_backtest_fits_80_columns_without_cutting_numbers(pristine: Path) -> None:
+    result = run(
+        "--width",
+        "80",
+        "backtest",
+        MAT,
+        "--cutoff",
+        "2026-06-01",
+        "-w",
+        str(pristine),
+        "--cutoffs",
+        "3",
+        "--top",
+        "3",
+    )
+    assert result.exit_code == 0, result.output
+    lines = result.output.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    table = lines[: next(i for i, ln in enumerate(lines) if ln.startswith("pred.:"))]
+    assert not any("\u2026" in ln for ln in table)  # no number cut with an ellipsis
+    assert any(ln.startswith("combined") for ln in table)

@@ -88,14 +88,19 @@ def render_holdout_planning(p: HoldoutPlanning, console: Console) -> None:
         console.print(f"[bold]Holdout:[/] {escape(line)}", soft_wrap=False)
 
 
-def backtest_table(bt: Backtest) -> Table:
+def backtest_table(bt: Backtest, width: int | None = None) -> Table:
+    """Below 100 columns the table is narrower: whole numbers, no box edges, and the naive and
+    base columns left to --json, so no number is cut."""
+    narrow = width is not None and width < 100
     level = bt.combined.estimate.expected.level
     t = Table(
         title=f"Backtest for {escape(str(bt.target))}: cutoff {bt.cutoff:%Y-%m-%d}, "
         f"{bt.horizon_days}-day horizon",
         title_justify="left",
+        show_edge=not narrow,
+        pad_edge=not narrow,
     )
-    for col in (
+    columns = [
         "audience",
         "n",
         "pred.",
@@ -105,23 +110,31 @@ def backtest_table(bt: Backtest) -> Table:
         "breadth",
         "base",
         "xbreadth",
-    ):
-        t.add_column(col, justify="left" if col == "audience" else "right", no_wrap=True)
+    ]
+    if narrow:
+        columns = [c for c in columns if c not in ("naive", "base")]
+    for col in columns:
+        if col == "audience":
+            t.add_column(col, overflow="fold", ratio=1, min_width=10)
+        else:
+            t.add_column(col, justify="right", no_wrap=True)
+    digits = 0 if narrow else 1
     for r in bt.rows:
         e = r.estimate.expected
         av = r.estimate.added_value
         name = r.label if r.rule is None else " + ".join(r.rule.antecedent)
-        t.add_row(
-            escape(name),
-            f"{r.customers:,}",
-            f"{r.predicted:,.1f}",
-            f"{e.low:,.1f}-{e.high:,.1f}",
-            f"{r.observed:,}" + ("" if r.covered else " !"),
-            f"{r.naive:,.1f}",
-            _pct(r.estimate.breadth_matched_rate),
-            _pct(r.estimate.base_rate),
-            "-" if av is None else f"x{av.estimate:.2f}",
-        )
+        cells = {
+            "audience": escape(name),
+            "n": f"{r.customers:,}",
+            "pred.": f"{r.predicted:,.{digits}f}",
+            f"{level:.0%} int.": f"{e.low:,.{digits}f}-{e.high:,.{digits}f}",
+            "obs.": f"{r.observed:,}" + ("" if r.covered else " !"),
+            "naive": f"{r.naive:,.1f}",
+            "breadth": _pct(r.estimate.breadth_matched_rate),
+            "base": _pct(r.estimate.base_rate),
+            "xbreadth": "-" if av is None else f"x{av.estimate:.2f}",
+        }
+        t.add_row(*(cells[c] for c in columns))
     return t
 
 
@@ -142,7 +155,7 @@ def gains_rich_table(gains: pl.DataFrame) -> Table:
 
 
 def render_backtest(bt: Backtest, console: Console, *, chart: bool = True) -> None:
-    console.print(backtest_table(bt))
+    console.print(backtest_table(bt, width=console.width))
     c = bt.combined
     console.print(
         f"pred.: calibrated breadth-matched estimate from {c.estimate.expected.n_backtests} "
