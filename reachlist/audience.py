@@ -23,7 +23,7 @@ import polars as pl
 
 from reachlist.errors import EmptyResultError, InputError
 from reachlist.query import Query, template_text
-from reachlist.targets import LEVEL_COLUMN, Level, Target, Window
+from reachlist.targets import LEVEL_COLUMN, Level, Target, Window, day_of
 
 if TYPE_CHECKING:
     from reachlist.rules import RuleSet
@@ -295,9 +295,9 @@ def _params(spec: AudienceSpec) -> dict[str, Any]:
     params: dict[str, Any] = {
         "antecedent_items": spec.antecedent_items,
         "target": spec.target.name,
-        "since": spec.lookback.since,
-        "until": spec.lookback.until,
-        "target_since": spec.target_since,
+        "since": day_of(spec.lookback.since),
+        "until": day_of(spec.lookback.until),
+        "target_since": day_of(spec.target_since),
     }
     for r in spec.rules:
         params[f"rule_{r.rank}_items"] = list(r.antecedent)
@@ -332,7 +332,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         ctes += _ACTIVE_CTE
         joins += "\nLEFT JOIN active_customers AS a ON a.customer_id = b.customer_id"
         inactive = "a.customer_id IS NULL"
-        params["active_since"] = spec.lookback.until - timedelta(days=f.active_days)
+        params["active_since"] = day_of(spec.lookback.until - timedelta(days=f.active_days))
     if per_rule:
         # which rules reach whom needs neither customer facts nor filters
         ctes, final = "", _REACH_SELECT

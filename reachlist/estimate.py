@@ -63,6 +63,7 @@ from reachlist.targets import (
     Target,
     Window,
     _as_datetime,
+    day_of,
     first_order_time,
     last_order_day,
 )
@@ -99,9 +100,9 @@ def forward_query(target: Target, cutoff: datetime, outcome_until: datetime) -> 
         "forward_takeup",
         {
             "target": target.name,
-            "cutoff": cutoff,
-            "outcome_until": outcome_until,
-            "breadth_since": cutoff - timedelta(days=BREADTH_DAYS),
+            "cutoff": day_of(cutoff),
+            "outcome_until": day_of(outcome_until),
+            "breadth_since": day_of(cutoff - timedelta(days=BREADTH_DAYS)),
         },
         target_level=LEVEL_COLUMN[target.level],
     )

@@ -141,10 +141,35 @@ def column_sql(tmap: TableMap, logical: str) -> str:
 _LEADING_WITH = re.compile(r"^(\s*(?:--[^\n]*\n\s*)*)WITH\s", re.IGNORECASE)
 
 
-def render(query: Query, dialect: Dialect, mapping: Mapping) -> Rendered:
-    """The exact SQL text and parameters one warehouse will run."""
+HOLDINGS = "holdings"  # the logical table of sql/holdings.sql: customer x SKU x day
+
+
+def holdings_cte(dialect: Dialect, table: str | None) -> str:
+    """How a query reads ``holdings``: the table built by ``reachlist holdings`` when there is
+    a fresh one (``table``, already qualified), else the same rows derived from the order lines
+    inside the query."""
+    hint = f" {dialect.cte_hint}" if dialect.cte_hint else ""
+    if table is not None:
+        body = f"SELECT customer_id, sku, order_day, quantity, bought FROM {table}"
+    else:
+        body = _strip_comments(template_text(HOLDINGS)).strip()
+    return f"{HOLDINGS} AS{hint} ({body})"
+
+
+def _reads_holdings(sql: str) -> bool:
+    return re.search(rf"\b{HOLDINGS}\b", _strip_comments(sql)) is not None
+
+
+def render(
+    query: Query, dialect: Dialect, mapping: Mapping, holdings: str | None = None
+) -> Rendered:
+    """The exact SQL text and parameters one warehouse will run. ``holdings`` names the built
+    holdings table when a fresh one is attached (see :mod:`reachlist.holdings`)."""
     sql, params = _expand_lists(query.sql.strip() + "\n", query.params)
-    views = views_sql(mapping, referenced_tables(sql), dialect)
+    extra: list[str] = []
+    if _reads_holdings(sql):
+        extra.append(holdings_cte(dialect, holdings))
+    views = views_sql(mapping, referenced_tables(sql + "\n".join(extra)), dialect) + extra
     if views:
         prelude = ",\n     ".join(views)
         m = _LEADING_WITH.match(sql)

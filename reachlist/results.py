@@ -43,9 +43,11 @@ from reachlist.warehouse import Warehouse
 __all__ = ["CampaignResults", "GroupTakeUp", "buyers_query", "campaign_results"]
 
 
-def buyers_query(target: Target, since: datetime, until: datetime) -> Query:
-    """Customers who bought ``target`` in ``[since, until)`` and their net units."""
-    return item_buyers_query(target, since, until)
+def buyers_query(target: Target, sent: datetime, horizon: timedelta) -> Query:
+    """Customers who bought ``target`` within the horizon after a send and their net units.
+    The horizon counts whole days from the day of the send (the holdings' grain)."""
+    day = datetime(sent.year, sent.month, sent.day)
+    return item_buyers_query(target, day, day + horizon)
 
 
 @dataclass(frozen=True)
@@ -186,7 +188,7 @@ def campaign_results(
     horizon = timedelta(days=horizon_days)
     bought = []
     for (sent,) in contacts.select("contacted_at").unique().iter_rows():
-        buyers = wh.fetch(buyers_query(target, sent, sent + horizon))
+        buyers = wh.fetch(buyers_query(target, sent, horizon))
         bought.append(
             buyers.select(
                 pl.col("customer_id").cast(contacts.schema["customer_id"], strict=False),

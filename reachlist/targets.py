@@ -23,7 +23,6 @@ BasketKind = Literal["customer", "order"]
 LEVELS: tuple[Level, ...] = ("sku", "category", "department")
 BASKET_KINDS: tuple[BasketKind, ...] = ("customer", "order")
 # SQL fragments chosen from fixed lists, never from user text.
-BASKET_COLUMN = {"customer": "o.customer_id", "order": "o.order_id"}
 LEVEL_COLUMN = {"sku": "sku", "category": "category", "department": "department"}
 
 
@@ -133,6 +132,18 @@ def _as_datetime(value: date | datetime | str, what: str) -> datetime:
         ) from None
 
 
+def _as_day(value: date | datetime | str, what: str) -> datetime:
+    """A window bound given by the user: a whole day (windows count whole days)."""
+    moment = _as_datetime(value, what)
+    if moment.time() != datetime.min.time():
+        raise InputError(
+            f"Expected {what} as a date like 2026-01-31, found {value!s} (a time of day): "
+            "windows count whole days.",
+            hint=f"write {what} as YYYY-MM-DD",
+        )
+    return moment
+
+
 def _order_time(wh: Warehouse, aggregate: str) -> datetime:
     """The first (min) or last (max) order time; one clear error when there are no orders."""
     value = wh.scalar(Query(f"SELECT {aggregate}(ordered_at) AS t FROM orders", label="order time"))
@@ -238,10 +249,10 @@ def mining_window(
     """``until`` defaults to the day after the last order not later than ``today`` (UTC today);
     ``since`` to ``days`` before it. ``history`` (from ``order_history``) saves reading it again."""
     if until is not None:
-        end = _as_datetime(until, "--until")
+        end = _as_day(until, "--until")
     else:
         end = _window_end(history if history is not None else order_history(wh, today))
-    start = _as_datetime(since, "--since") if since is not None else end - timedelta(days=days)
+    start = _as_day(since, "--since") if since is not None else end - timedelta(days=days)
     if start >= end:
         raise InputError(
             f"Expected --since before --until, found {start:%Y-%m-%d} >= {end:%Y-%m-%d}.",
@@ -260,25 +271,39 @@ def held_items_query(
     """Basket -> item pairs in the window (see sql/held_items.sql for the rules applied).
 
     ``only`` keeps the pairs of one item (for example the target) and is bound as a value."""
-    params: dict[str, object] = {"since": window.since, "until": window.until}
+    params: dict[str, object]
+    if basket == "customer":  # from the holdings, whose grain is the day
+        params = {"since": day_of(window.since), "until": day_of(window.until)}
+    else:
+        params = {"since": window.since, "until": window.until}
     only_item = ""
     if only is not None:
         params["only_item"] = only
         only_item = f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
     return Query.from_template(
-        "held_items",
+        "held_items" if basket == "customer" else "held_order_items",
         params,
-        basket=BASKET_COLUMN[basket],
         level=LEVEL_COLUMN[level],
         only_item=only_item,
     )
 
 
+def day_of(moment: datetime) -> date:
+    """The day a window bound falls on. Windows are whole days (the holdings' grain): a bound
+    with a time of day is refused where the user gives it (``mining_window``)."""
+    if moment.time() != datetime.min.time():
+        raise InputError(
+            f"Expected a window bound at the start of a day, found {moment:%Y-%m-%d %H:%M}.",
+            hint="give --since and --until as dates like 2026-01-31",
+        )
+    return moment.date()
+
+
 def item_buyers_query(item: Target, since: datetime, until: datetime) -> Query:
-    """Customers who bought ``item`` in ``[since, until)`` and their net units
+    """Customers who bought ``item`` in ``[since, until)`` (whole days) and their net units
     (sql/item_buyers.sql)."""
     return Query.from_template(
         "item_buyers",
-        {"item": item.name, "since": since, "until": until},
+        {"item": item.name, "since": day_of(since), "until": day_of(until)},
         level=LEVEL_COLUMN[item.level],
     )

@@ -56,6 +56,9 @@ class Warehouse:
         self._in_transaction = False
         self._typed: Mapping | None = None  # the mapping with the casts physical types need
         self._text_ids = False
+        # the qualified name of a fresh holdings table when one is attached (reachlist.holdings);
+        # None: queries derive the same rows from the order lines
+        self.holdings_table: str | None = None
 
     # -- opening ---------------------------------------------------------------------------------
     @classmethod
@@ -145,7 +148,7 @@ class Warehouse:
 
     # -- running ---------------------------------------------------------------------------------
     def render(self, query: Query) -> Rendered:
-        return render(query, self.dialect, self.typed_mapping)
+        return render(query, self.dialect, self.typed_mapping, self.holdings_table)
 
     @property
     def typed_mapping(self) -> Mapping:

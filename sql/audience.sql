@@ -2,34 +2,25 @@
 -- inside the lookback window, one row per customer, with the reaching rule of the highest score
 -- (its id and its score) and one column per exclusion.
 --
--- "Holds an item" follows held_items.sql: the customer's net quantity of a SKU inside the window
--- is positive (returns cancel purchases), exact duplicate lines count once, SKUs missing from
--- products are ignored, and a category or department is held when any SKU in it is held.
---
--- Orders without a customer id are ignored (no customer can hold what they contain).
+-- "Holds an item" follows held_items.sql: the customer's net quantity of a SKU over the window's
+-- days is positive (returns cancel purchases), SKUs missing from products are ignored, and a
+-- category or department is held when any SKU in it is held. The holdings (holdings.sql) count
+-- exact duplicate lines once and ignore orders without a customer id.
 --
 -- reachlist removes flagged customers in this fixed order and counts each step:
 --   has_target, returned_target, no_consent, suppressed, contacted recently, not_adult,
 --   outside_region, outside_channel, inactive
 -- The contact-frequency cap (it reads the campaign log, which may live in another database) and
 -- the holdout (a hash of campaign id and customer id) are applied by reachlist after this query.
-WITH clean_lines AS (
-    -- only the lines of SKUs the chosen rules or the target mention; exact duplicates count once
-    SELECT DISTINCT order_id, sku, quantity, net_amount
-    FROM order_lines
-    WHERE sku IN (SELECT sku FROM products
-                  WHERE {level} IN (:antecedent_items) OR {target_level} = :target)
-),
-antecedent_skus AS (
-    -- SKUs each customer holds inside the lookback window
-    SELECT o.customer_id, l.sku
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at >= :since
-      AND o.ordered_at < :until
-      AND o.customer_id IS NOT NULL
-    GROUP BY o.customer_id, l.sku
-    HAVING sum(l.quantity) > 0
+WITH antecedent_skus AS (
+    -- SKUs of the chosen rules' items each customer holds inside the lookback window
+    SELECT customer_id, sku
+    FROM holdings
+    WHERE order_day >= :since
+      AND order_day < :until
+      AND sku IN (SELECT sku FROM products WHERE {level} IN (:antecedent_items))
+    GROUP BY customer_id, sku
+    HAVING sum(quantity) > 0
 ),
 held AS (
     -- antecedent items (at the rules' item level) each customer holds
@@ -40,17 +31,15 @@ held AS (
 ),
 target_skus AS (
     -- each customer's net quantity of each target SKU between the target-window start (year 1:
-    -- ever) and the cutoff, and whether any of those lines was a purchase
-    SELECT o.customer_id, l.sku,
-           sum(l.quantity) AS net_quantity,
-           max(CASE WHEN l.quantity > 0 THEN 1 ELSE 0 END) AS bought
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at >= :target_since
-      AND o.ordered_at < :until
-      AND o.customer_id IS NOT NULL
-      AND l.sku IN (SELECT sku FROM products WHERE {target_level} = :target)
-    GROUP BY o.customer_id, l.sku
+    -- ever) and the cutoff, and whether any of those days held a purchase
+    SELECT customer_id, sku,
+           sum(quantity) AS net_quantity,
+           max(bought)   AS bought
+    FROM holdings
+    WHERE order_day >= :target_since
+      AND order_day < :until
+      AND sku IN (SELECT sku FROM products WHERE {target_level} = :target)
+    GROUP BY customer_id, sku
 ),
 has_target AS (
     -- customers who hold a target SKU (net quantity positive)

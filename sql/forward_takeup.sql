@@ -6,40 +6,15 @@
 --   lacks the target: holds no SKU of the target at any time before :cutoff
 --   bought: holds a SKU of the target in [:cutoff, :outcome_until); units = net units there
 --
--- "Holds" follows held_items.sql: net quantity per customer and SKU in the window is positive
--- (returns cancel purchases), exact duplicate lines count once, SKUs missing from products are
--- ignored. Nothing at or after :outcome_until is read; with :outcome_until = :cutoff the query
+-- "Holds" follows held_items.sql: net quantity per customer and SKU over the window's days is
+-- positive (returns cancel purchases); the holdings count exact duplicate lines once; SKUs missing
+-- from products are ignored. Every bound is a whole day. Nothing at or after :outcome_until is read; with :outcome_until = :cutoff the query
 -- reads nothing after the cutoff and every customer has bought = 0.
-WITH window_orders AS (
-    -- only orders that can matter: the breadth window up to the end of the outcome horizon
-    SELECT order_id, customer_id, ordered_at
-    FROM orders
-    WHERE ordered_at >= :breadth_since AND ordered_at < :outcome_until
-      AND customer_id IS NOT NULL  -- an order without a customer is ignored everywhere
-),
-target_orders AS (
-    -- plus every earlier order, for the target's own SKUs only (to know who held it before)
-    SELECT order_id, customer_id, ordered_at
-    FROM orders
-    WHERE ordered_at < :outcome_until AND customer_id IS NOT NULL
-),
-lines AS (
-    -- exact duplicate lines count once
-    SELECT DISTINCT o.customer_id, o.ordered_at, l.order_id, l.sku, l.quantity, l.net_amount
-    FROM order_lines AS l
-    JOIN window_orders AS o ON o.order_id = l.order_id
-),
-target_lines AS (
-    SELECT DISTINCT o.customer_id, o.ordered_at, l.order_id, l.sku, l.quantity, l.net_amount
-    FROM order_lines AS l
-    JOIN target_orders AS o ON o.order_id = l.order_id
-    WHERE l.sku IN (SELECT sku FROM products WHERE {target_level} = :target)
-),
-held_before AS (
+WITH held_before AS (
     -- SKUs each customer holds in the breadth window
     SELECT customer_id, sku
-    FROM lines
-    WHERE ordered_at >= :breadth_since AND ordered_at < :cutoff
+    FROM holdings
+    WHERE order_day >= :breadth_since AND order_day < :cutoff
     GROUP BY customer_id, sku
     HAVING sum(quantity) > 0
 ),
@@ -49,23 +24,23 @@ breadth AS (
     JOIN products AS p ON p.sku = h.sku
     GROUP BY h.customer_id
 ),
+target_net AS (
+    -- each customer's net quantity of each target SKU before the cutoff and in the horizon
+    SELECT customer_id, sku,
+           sum(CASE WHEN order_day < :cutoff THEN quantity ELSE 0 END)  AS before_cutoff,
+           sum(CASE WHEN order_day >= :cutoff THEN quantity ELSE 0 END) AS in_horizon
+    FROM holdings
+    WHERE order_day < :outcome_until
+      AND sku IN (SELECT sku FROM products WHERE {target_level} = :target)
+    GROUP BY customer_id, sku
+),
 had_target AS (
-    SELECT DISTINCT customer_id
-    FROM (
-        SELECT customer_id, sku FROM target_lines
-        WHERE ordered_at < :cutoff
-        GROUP BY customer_id, sku
-        HAVING sum(quantity) > 0
-    ) AS held_target
+    SELECT DISTINCT customer_id FROM target_net WHERE before_cutoff > 0
 ),
 bought AS (
-    SELECT customer_id, sum(units) AS units
-    FROM (
-        SELECT customer_id, sku, sum(quantity) AS units FROM target_lines
-        WHERE ordered_at >= :cutoff AND ordered_at < :outcome_until
-        GROUP BY customer_id, sku
-        HAVING sum(quantity) > 0
-    ) AS new_target
+    SELECT customer_id, sum(in_horizon) AS units
+    FROM target_net
+    WHERE in_horizon > 0
     GROUP BY customer_id
 ),
 population AS (

@@ -1,28 +1,15 @@
--- Which baskets hold which items inside a time window.
--- A basket is a customer (all their orders in the window) or a single order.
--- A basket holds a SKU when its net quantity of that SKU in the window is positive:
--- returns (negative quantity) cancel purchases, zero-quantity lines count for nothing,
--- exact duplicate lines count once, and SKUs missing from products are left out.
--- At category or department level, a basket holds the group when it holds any SKU in it.
-WITH window_orders AS (
-    SELECT o.order_id, o.customer_id
-    FROM orders AS o
-    WHERE o.ordered_at >= :since
-      AND o.ordered_at < :until
-      AND o.customer_id IS NOT NULL  -- an order without a customer is ignored everywhere
-),
-window_lines AS (
-    -- de-duplicate only the lines of orders inside the window
-    SELECT DISTINCT l.order_id, l.sku, l.quantity, l.net_amount
-    FROM order_lines AS l
-    WHERE l.order_id IN (SELECT order_id FROM window_orders)
-),
-held_skus AS (
-    SELECT {basket} AS basket, l.sku
-    FROM window_lines AS l
-    JOIN window_orders AS o ON o.order_id = l.order_id
-    GROUP BY {basket}, l.sku
-    HAVING sum(l.quantity) > 0
+-- Which customers hold which items inside a time window [:since, :until) of whole days.
+-- A customer holds a SKU when their net quantity of it over the window's days is positive:
+-- returns cancel purchases, and the holdings (holdings.sql) already count exact duplicate lines
+-- once and ignore orders without a customer. SKUs missing from products are left out.
+-- At category or department level, a customer holds the group when they hold any SKU in it.
+WITH held_skus AS (
+    SELECT customer_id AS basket, sku
+    FROM holdings
+    WHERE order_day >= :since
+      AND order_day < :until
+    GROUP BY customer_id, sku
+    HAVING sum(quantity) > 0
 )
 SELECT DISTINCT h.basket, p.{level} AS item
 FROM held_skus AS h

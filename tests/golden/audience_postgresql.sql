@@ -2,11 +2,10 @@
 -- inside the lookback window, one row per customer, with the reaching rule of the highest score
 -- (its id and its score) and one column per exclusion.
 --
--- "Holds an item" follows held_items.sql: the customer's net quantity of a SKU inside the window
--- is positive (returns cancel purchases), exact duplicate lines count once, SKUs missing from
--- products are ignored, and a category or department is held when any SKU in it is held.
---
--- Orders without a customer id are ignored (no customer can hold what they contain).
+-- "Holds an item" follows held_items.sql: the customer's net quantity of a SKU over the window's
+-- days is positive (returns cancel purchases), SKUs missing from products are ignored, and a
+-- category or department is held when any SKU in it is held. The holdings (holdings.sql) count
+-- exact duplicate lines once and ignore orders without a customer id.
 --
 -- reachlist removes flagged customers in this fixed order and counts each step:
 --   has_target, returned_target, no_consent, suppressed, contacted recently, not_adult,
@@ -18,23 +17,25 @@ WITH customers AS NOT MATERIALIZED (SELECT "customer_id" AS customer_id, "email"
      orders AS NOT MATERIALIZED (SELECT "order_id" AS order_id, "customer_id" AS customer_id, "ordered_at" AS ordered_at, "channel" AS channel FROM "retail"."orders"),
      order_lines AS NOT MATERIALIZED (SELECT "order_id" AS order_id, "sku" AS sku, "quantity" AS quantity, "net_amount" AS net_amount FROM "retail"."order_lines"),
      suppressions AS NOT MATERIALIZED (SELECT "customer_id" AS customer_id, "reason" AS reason, "suppressed_at" AS suppressed_at FROM "retail"."suppressions"),
-clean_lines AS (
-    -- only the lines of SKUs the chosen rules or the target mention; exact duplicates count once
-    SELECT DISTINCT order_id, sku, quantity, net_amount
-    FROM order_lines
-    WHERE sku IN (SELECT sku FROM products
-                  WHERE sku IN (:antecedent_items_0, :antecedent_items_1, :antecedent_items_2, :antecedent_items_3) OR sku = :target)
-),
+     holdings AS NOT MATERIALIZED (SELECT o.customer_id,
+       l.sku,
+       CAST(o.ordered_at AS DATE)                        AS order_day,
+       sum(l.quantity)                                   AS quantity,
+       max(CASE WHEN l.quantity > 0 THEN 1 ELSE 0 END)   AS bought
+FROM (SELECT DISTINCT order_id, sku, quantity, net_amount FROM order_lines) AS l
+JOIN orders AS o ON o.order_id = l.order_id
+WHERE o.customer_id IS NOT NULL
+  AND l.quantity <> 0
+GROUP BY o.customer_id, l.sku, CAST(o.ordered_at AS DATE)),
 antecedent_skus AS (
-    -- SKUs each customer holds inside the lookback window
-    SELECT o.customer_id, l.sku
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at >= :since
-      AND o.ordered_at < :until
-      AND o.customer_id IS NOT NULL
-    GROUP BY o.customer_id, l.sku
-    HAVING sum(l.quantity) > 0
+    -- SKUs of the chosen rules' items each customer holds inside the lookback window
+    SELECT customer_id, sku
+    FROM holdings
+    WHERE order_day >= :since
+      AND order_day < :until
+      AND sku IN (SELECT sku FROM products WHERE sku IN (:antecedent_items_0, :antecedent_items_1, :antecedent_items_2, :antecedent_items_3))
+    GROUP BY customer_id, sku
+    HAVING sum(quantity) > 0
 ),
 held AS (
     -- antecedent items (at the rules' item level) each customer holds
@@ -45,17 +46,15 @@ held AS (
 ),
 target_skus AS (
     -- each customer's net quantity of each target SKU between the target-window start (year 1:
-    -- ever) and the cutoff, and whether any of those lines was a purchase
-    SELECT o.customer_id, l.sku,
-           sum(l.quantity) AS net_quantity,
-           max(CASE WHEN l.quantity > 0 THEN 1 ELSE 0 END) AS bought
-    FROM clean_lines AS l
-    JOIN orders AS o ON o.order_id = l.order_id
-    WHERE o.ordered_at >= :target_since
-      AND o.ordered_at < :until
-      AND o.customer_id IS NOT NULL
-      AND l.sku IN (SELECT sku FROM products WHERE sku = :target)
-    GROUP BY o.customer_id, l.sku
+    -- ever) and the cutoff, and whether any of those days held a purchase
+    SELECT customer_id, sku,
+           sum(quantity) AS net_quantity,
+           max(bought)   AS bought
+    FROM holdings
+    WHERE order_day >= :target_since
+      AND order_day < :until
+      AND sku IN (SELECT sku FROM products WHERE sku = :target)
+    GROUP BY customer_id, sku
 ),
 has_target AS (
     -- customers who hold a target SKU (net quantity positive)
@@ -167,9 +166,9 @@ ORDER BY b.score DESC, b.customer_id
 --   :antecedent_items_2 = 'C'
 --   :antecedent_items_3 = '''; DROP TABLE orders; --'
 --   :target = 'T'
---   :since = TIMESTAMP '2025-01-01 00:00:00'
---   :until = TIMESTAMP '2026-01-01 00:00:00'
---   :target_since = TIMESTAMP '2025-10-03 00:00:00'
+--   :since = DATE '2025-01-01'
+--   :until = DATE '2026-01-01'
+--   :target_since = DATE '2025-10-03'
 --   :rule_1_items_0 = 'A'
 --   :rule_1_items_1 = 'B'
 --   :rule_1_size = 2
@@ -186,4 +185,4 @@ ORDER BY b.score DESC, b.customer_id
 --   :adult_born_by = DATE '2008-06-01'
 --   :regions_0 = 'north'
 --   :channels_0 = 'web'
---   :active_since = TIMESTAMP '2025-12-02 00:00:00'
+--   :active_since = DATE '2025-12-02'
