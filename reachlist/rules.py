@@ -260,6 +260,9 @@ def basket_breadth(
     return np.bincount(np.unique(keys) // width, minlength=n).astype(np.int64)
 
 
+MASK_CACHE = 256  # presence masks kept at once while matching rules on breadth (1 MB each per 1M)
+
+
 def breadth_tables(
     baskets: mining.Baskets,
     breadth: np.ndarray,
@@ -275,16 +278,24 @@ def breadth_tables(
     has_y[baskets.baskets_holding(baskets.item_index(target))] = True
     total = np.bincount(decile, minlength=k)
     total_y = np.bincount(decile[has_y], minlength=k)
+    code = decile * 2 + has_y  # one small code per basket: its decile and whether it holds y
+    masks: dict[int, np.ndarray] = {}  # item -> which baskets hold it (one byte per basket)
     out = []
     for items in antecedents:
-        holders = None
-        for item in dict.fromkeys(items):
-            rows = baskets.baskets_holding(baskets.item_index(item))
-            holders = rows if holders is None else np.intersect1d(holders, rows, assume_unique=True)
-        assert holders is not None
-        d, y = decile[holders], has_y[holders]
-        a = np.bincount(d[y], minlength=k)
-        n1 = np.bincount(d, minlength=k)
+        # holders: the baskets of the rarest item, kept where every other item is held too
+        # (a gather through a presence mask: no sorting, no set intersection per rule)
+        idx = sorted({baskets.item_index(i) for i in items}, key=lambda j: baskets.item_counts[j])
+        holders = baskets.baskets_holding(idx[0])
+        for item in idx[1:]:
+            if item not in masks:
+                if len(masks) >= MASK_CACHE:
+                    masks.pop(next(iter(masks)))
+                m = np.zeros(n, dtype=bool)
+                m[baskets.baskets_holding(item)] = True
+                masks[item] = m
+            holders = holders[masks[item][holders]]
+        counts = np.bincount(code[holders], minlength=2 * k).reshape(k, 2)
+        a, n1 = counts[:, 1], counts.sum(axis=1)
         c = total_y - a
         out.append(
             np.stack(

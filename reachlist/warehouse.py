@@ -25,6 +25,7 @@ from reachlist.query import (
     Query,
     Rendered,
     dialect_named,
+    literal,
     quote_ident,
     quote_qualified,
     render,
@@ -307,6 +308,58 @@ class Warehouse:
             ) from None
         finally:
             self._conn.unregister("src")
+
+    def create_from_arrow(self, table: str, data: Any, select_sql: str) -> None:
+        """``CREATE TABLE table AS <select_sql>`` where ``select_sql`` reads the Arrow table or
+        record-batch reader ``data`` as ``src`` (DuckDB only: how reachlist writes the holdings
+        file beside a warehouse). The table takes the types the data has."""
+        if not self.is_duckdb:
+            raise WarehouseError(
+                f"Expected a DuckDB file to write {table} into, found {self.display_name}.",
+                hint="report this",
+            )
+        self._conn.register("src", data)
+        try:
+            self._conn.execute(f"CREATE TABLE {quote_ident(table)} AS {select_sql}")
+        except Exception as exc:
+            raise WarehouseError(
+                f"Could not write {table} into {self.display_name}: {_first_line(exc)}.",
+                hint="check the free space and that the folder is writable",
+            ) from None
+        finally:
+            self._conn.unregister("src")
+
+    def stream_arrow(self, query: Query, batch_rows: int = 500_000) -> Any:
+        """The rows of a query as a pyarrow RecordBatchReader: read in batches of ``batch_rows``,
+        never all at once (DuckDB only)."""
+        if not self.is_duckdb:
+            raise WarehouseError(
+                f"Expected a DuckDB warehouse to stream {query.label or 'a query'} from, found "
+                f"{self.display_name}.",
+                hint="report this",
+            )
+        r = self.render(query)
+        try:
+            return self._conn.sql(r.sql, params=r.params or None).to_arrow_reader(batch_rows)
+        except Exception as exc:
+            raise self._translate(exc, query) from None
+
+    def attach_read_only(self, path: str | os.PathLike[str], alias: str) -> bool:
+        """Attach another DuckDB file read-only under ``alias`` (False: it cannot be opened;
+        DuckDB only). Attaching works on a warehouse opened read-only too."""
+        if not self.is_duckdb:
+            return False
+        self.detach(alias)
+        try:
+            self._conn.execute(f"ATTACH {literal(str(path))} AS {quote_ident(alias)} (READ_ONLY)")
+        except Exception:
+            return False
+        return True
+
+    def detach(self, alias: str) -> None:
+        if self.is_duckdb:
+            with contextlib.suppress(Exception):
+                self._conn.execute(f"DETACH DATABASE IF EXISTS {quote_ident(alias)}")
 
     def _rollback(self) -> None:
         if not self.is_duckdb:

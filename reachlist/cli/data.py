@@ -1,10 +1,10 @@
-"""Commands about the warehouse itself: sample, check, copy."""
+"""Commands about the warehouse itself: sample, check, holdings, copy."""
 
 from __future__ import annotations
 
 import click
 
-from reachlist.cli import main, out, warehouse_options
+from reachlist.cli import err, main, out, warehouse_options
 from reachlist.warehouse import Warehouse
 
 
@@ -35,6 +35,30 @@ def sample(out_path: str, customers: int, seed: int, force: bool) -> None:
 
     summary = build_sample(out_path, customers=customers, seed=seed, overwrite=force)
     out.print(sample_summary(summary))
+    from reachlist.holdings import build
+    from reachlist.render.sample import holdings_line
+    from reachlist.warehouse import Warehouse
+
+    with Warehouse.open(out_path) as wh:
+        out.print(holdings_line(build(wh)))
+
+
+@main.command()
+@warehouse_options
+def holdings(wh: Warehouse) -> None:
+    """Read the order history once into the holdings file beside a DuckDB warehouse (one row
+    per customer, SKU and day). Every command that reads the history then uses it, and
+    rebuilds it when the history has changed.
+
+    Example: reachlist holdings -w garden.duckdb
+    """
+    from reachlist.cli.progress import delayed_status
+    from reachlist.holdings import build
+    from reachlist.render.sample import holdings_line
+
+    with delayed_status(err, "Holdings") as step:
+        built = build(wh, progress=step)
+    out.print(holdings_line(built))
 
 
 @main.command()

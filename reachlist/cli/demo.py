@@ -33,8 +33,10 @@ def demo(directory: str) -> None:
 
     Example: reachlist demo --dir reachlist-demo
     """
-    from reachlist.render.sample import sample_summary
+    from reachlist.holdings import build as build_holdings
+    from reachlist.render.sample import holdings_line, sample_summary
     from reachlist.sample import build_sample
+    from reachlist.warehouse import Warehouse
 
     folder = Path(directory)
     folder.mkdir(parents=True, exist_ok=True)
@@ -42,7 +44,10 @@ def demo(directory: str) -> None:
     if not path.exists():
         with delayed_status(out, "Building the sample warehouse"):
             summary = build_sample(path)
+            with Warehouse.open(path) as wh:
+                built = build_holdings(wh)
         out.print(sample_summary(summary))
+        out.print(holdings_line(built))
     w = ["-w", str(path)]
     campaign = ["--campaign", "demo-heated-mat"]
     _step("1. Rules toward the heated seedling mat", ["rules", DEMO_TARGET, *w, "--top", "5"])

@@ -12,3 +12,10 @@ def sample_summary(s: Any) -> str:
         f"{s.first_order_at:%Y-%m-%d} .. {s.last_order_at:%Y-%m-%d}; seed {s.seed}; "
         f"{s.file_bytes / 2**20:,.1f} MiB in {s.build_seconds:.1f} s."
     )
+
+
+def holdings_line(b: Any) -> str:
+    return (
+        f"Holdings: {b.rows:,} rows (customer x SKU x day) from {b.order_lines:,} order lines "
+        f"in {b.seconds:.1f} s, kept in {b.path}; commands that read the history use them."
+    )

@@ -1,0 +1,233 @@
+"""The holdings table: the order history read once.
+
+Every question reachlist asks of the order lines (which items a customer holds in a window, who
+started buying the target after a cutoff, who bought after a send) is a sum over one row per
+customer, SKU and day (``sql/holdings.sql``). Without a built table each query derives those rows
+from the order lines itself; ``build`` writes them once into a DuckDB file beside the warehouse
+(``garden.duckdb`` -> ``garden.holdings.duckdb``), sorted by day, with the watermark of the
+history they came from. ``prepare`` attaches that file when its watermark still matches the
+warehouse and rebuilds it when the history has changed, so the answers never differ from the
+derived ones (the tests compare the two).
+
+Only DuckDB file warehouses keep a holdings file; a server warehouse derives the rows inside
+each query (its own engine does the work there).
+
+>>> built = build(wh)                     # doctest: +SKIP
+>>> prepare(wh).state                     # doctest: +SKIP
+'fresh'
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import os
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from datetime import datetime
+from pathlib import Path
+from typing import Literal
+
+from reachlist.errors import InputError
+from reachlist.query import HOLDINGS, Query
+from reachlist.warehouse import Warehouse
+
+__all__ = ["ALIAS", "Built", "Prepared", "Watermark", "build", "holdings_path", "prepare"]
+
+ALIAS = "reachlist_holdings"  # the attached file's name inside the warehouse connection
+FORMAT = 1  # bumped when the table's layout or meaning changes: older files are rebuilt
+BATCH_ROWS = 500_000  # rows moved from the warehouse to the file at a time
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class Watermark:
+    """What the holdings were built from: a change in any field means a rebuild."""
+
+    order_lines: int
+    quantity_sum: float
+    orders: int
+    last_order: str  # ISO text ("" for no orders), so files compare exactly
+    source: str  # digest of the SQL that derives the rows (the mapping and its casts included)
+    format: int = FORMAT
+
+    def differences(self, other: Watermark) -> list[str]:
+        out = []
+        for name, label in (
+            ("order_lines", "order lines"),
+            ("quantity_sum", "total quantity"),
+            ("orders", "orders"),
+            ("last_order", "last order"),
+        ):
+            a, b = getattr(self, name), getattr(other, name)
+            if a != b:
+                out.append(f"{label} {_fmt(a)} -> {_fmt(b)}")
+        if self.source != other.source:
+            out.append("the mapping or column types changed")
+        if self.format != other.format:
+            out.append("a newer reachlist reads holdings differently")
+        return out
+
+
+def _fmt(value: object) -> str:
+    if isinstance(value, int):
+        return f"{value:,}"
+    if isinstance(value, float):
+        return f"{value:,.6g}"
+    return str(value or "none")
+
+
+@dataclass(frozen=True)
+class Built:
+    path: Path
+    rows: int
+    order_lines: int
+    seconds: float
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """What ``prepare`` found and did; ``note`` is one line for the user (empty: nothing to say)."""
+
+    state: Literal["fresh", "rebuilt", "stale", "absent", "unsupported"]
+    path: Path | None = None
+    note: str = ""
+
+
+def holdings_path(wh: Warehouse) -> Path | None:
+    """Where a warehouse's holdings file lives (None: this warehouse keeps none)."""
+    if not wh.is_duckdb or wh.target == ":memory:":
+        return None
+    p = Path(wh.target)
+    stem = p.name[: -len(p.suffix)] if p.suffix else p.name
+    return p.with_name(f"{stem}.holdings.duckdb")
+
+
+def current_mark(wh: Warehouse) -> Watermark:
+    row = wh.fetch(Query.from_template("history_mark")).row(0, named=True)
+    last = row["last_order"]
+    derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
+    if wh.holdings_table is not None:  # digest the derivation, not the attached table
+        saved, wh.holdings_table = wh.holdings_table, None
+        try:
+            derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
+        finally:
+            wh.holdings_table = saved
+    return Watermark(
+        order_lines=int(row["order_lines"] or 0),
+        quantity_sum=float(row["quantity_sum"] or 0),
+        orders=int(row["orders"] or 0),
+        last_order="" if last is None else str(last),
+        source=hashlib.sha256(derived.sql.encode()).hexdigest()[:16],
+    )
+
+
+def _attached_mark(wh: Warehouse, path: Path) -> Watermark | None:
+    """Attach a holdings file and read the watermark it was built from (None, detached: no
+    file, or not one reachlist can read)."""
+    if not path.exists() or not wh.attach_read_only(path, ALIAS):
+        return None
+    try:
+        row = wh.fetch(Query(f"SELECT * FROM {ALIAS}.main.history_mark", label="holdings mark"))
+        return Watermark(**row.row(0, named=True))
+    except Exception:  # an older layout or a foreign file: treat as absent
+        wh.detach(ALIAS)
+        return None
+
+
+def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
+    """Read the order lines once into the holdings file beside the warehouse (replacing any
+    older one atomically) and attach it."""
+    path = holdings_path(wh)
+    if path is None:
+        raise InputError(
+            f"Expected a DuckDB file warehouse to keep holdings beside, found {wh.display_name}.",
+            hint="a server warehouse derives the holdings inside each query; nothing to build",
+        )
+    say = progress or (lambda _text: None)
+    started = time.perf_counter()
+    wh.holdings_table = None
+    wh.detach(ALIAS)
+    say("step 1 of 3: reading the order history's watermark")
+    mark = current_mark(wh)
+    tmp = path.with_name(f"{path.name}.part-{os.getpid()}")
+    tmp.unlink(missing_ok=True)
+    try:
+        say(f"step 2 of 3: netting {mark.order_lines:,} order lines by customer, SKU and day")
+        reader = wh.stream_arrow(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"), BATCH_ROWS)
+        with Warehouse.open(tmp, create=True) as side:
+            side.create_from_arrow(
+                "holdings", reader, "SELECT * FROM src ORDER BY order_day, customer_id, sku"
+            )
+            say("step 3 of 3: writing the watermark")
+            side.run_statement(
+                "CREATE TABLE history_mark (order_lines BIGINT, quantity_sum DOUBLE, "
+                "orders BIGINT, last_order VARCHAR, source VARCHAR, format INTEGER)"
+            )
+            side.executemany(
+                "INSERT INTO history_mark VALUES (:order_lines, :quantity_sum, :orders, "
+                ":last_order, :source, :format)",
+                [mark.__dict__],
+            )
+            rows = int(side.fetch_raw("SELECT count(*) AS n FROM holdings")["n"][0])
+        os.replace(tmp, path)
+    finally:
+        with contextlib.suppress(OSError):
+            tmp.unlink(missing_ok=True)
+            Path(f"{tmp}.wal").unlink(missing_ok=True)
+    _attach(wh, path)
+    return Built(path, rows, mark.order_lines, time.perf_counter() - started)
+
+
+def _attach(wh: Warehouse, path: Path) -> None:
+    if wh.attach_read_only(path, ALIAS):
+        wh.holdings_table = f"{ALIAS}.main.holdings"
+
+
+def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = None) -> Prepared:
+    """Use the holdings file when it matches the history; when the history changed, rebuild it
+    (``refresh``) or say that the order lines are read instead. No file: nothing changes (the
+    queries derive the rows; ``reachlist holdings`` builds the file)."""
+    path = holdings_path(wh)
+    if path is None:
+        return Prepared("unsupported")
+    stored = _attached_mark(wh, path)
+    if stored is None:
+        return Prepared("absent", path)
+    now = current_mark(wh)
+    if stored == now:
+        wh.holdings_table = f"{ALIAS}.main.holdings"
+        return Prepared("fresh", path)
+    wh.detach(ALIAS)
+    changed = "; ".join(stored.differences(now))
+    if refresh:
+        try:
+            built = build(wh, progress=progress)
+        except Exception as exc:  # a read-only folder, a second writer: fall back, say so
+            return Prepared(
+                "stale",
+                path,
+                f"Holdings out of date ({changed}) and not rebuilt ({exc}); reading the order "
+                "lines instead (slower). `reachlist holdings` rebuilds them.",
+            )
+        return Prepared(
+            "rebuilt",
+            path,
+            f"Holdings rebuilt ({changed}): {built.rows:,} rows in {built.seconds:.1f} s.",
+        )
+    return Prepared(
+        "stale",
+        path,
+        f"Holdings out of date ({changed}); reading the order lines instead (slower). "
+        "`reachlist holdings` rebuilds them.",
+    )
+
+
+def built_at(path: Path) -> datetime | None:
+    """When a holdings file was written (None: there is none)."""
+    try:
+        return datetime.fromtimestamp(path.stat().st_mtime)
+    except OSError:
+        return None

