@@ -108,6 +108,65 @@ def forward_query(target: Target, cutoff: datetime, outcome_until: datetime) -> 
     )
 
 
+MOST_CUTOFFS = 60  # cutoffs one history query follows (one bit each in a 64-bit integer)
+
+
+def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: int) -> Query:
+    """Breadth and forward take-up at cutoffs ``as_of - k * horizon`` for k = 0 .. ``last``, in
+    one query (sql/takeup_history.sql); reads nothing at or after ``as_of``."""
+    if not 0 <= last <= MOST_CUTOFFS:
+        raise InputError(
+            f"Expected at most {MOST_CUTOFFS} cutoffs, found {last}.", hint="pass --cutoffs 13"
+        )
+    ks = range(last + 1)
+    numbers = "(VALUES " + ", ".join(f"({k})" for k in ks) + ")"
+    return Query.from_template(
+        "takeup_history",
+        {
+            "target": target.name,
+            "as_of": day_of(as_of),
+            "horizon": horizon,
+            "breadth_days": BREADTH_DAYS,
+            "last": last,
+        },
+        target_level=LEVEL_COLUMN[target.level],
+        cutoff_numbers=numbers,
+        breadth_columns=",\n".join(
+            f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
+        ),
+        target_columns=",\n".join(
+            f"           max(CASE WHEN k = {k} THEN {col} END) AS {col}_{k}"
+            for k in ks
+            for col in ("had", "bought", "units")
+        ),
+        final_columns=",\n".join(
+            f"       coalesce({src}.{col}_{k}, 0) AS {col}_{k}"
+            for k in ks
+            for src, col in (("b", "breadth"), ("t", "had"), ("t", "bought"), ("t", "units"))
+        ),
+    )
+
+
+def takeup_history(
+    wh: Warehouse, target: Target, as_of: datetime, horizon: int, last: int
+) -> list[pl.DataFrame]:
+    """For k = 0 .. ``last``: the customers lacking ``target`` at cutoff ``as_of - k * horizon``
+    with their breadth, whether they bought within the horizon and the units (the rows
+    ``forward_query`` gives for that cutoff, from one pass)."""
+    wide = ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
+    out = []
+    for k in range(last + 1):
+        out.append(
+            wide.filter((pl.col("first_age") > k * horizon) & (pl.col(f"had_{k}") == 0)).select(
+                "customer_id",
+                pl.col(f"breadth_{k}").alias("breadth"),
+                pl.col(f"bought_{k}").alias("bought"),
+                pl.col(f"units_{k}").alias("units"),
+            )
+        )
+    return out
+
+
 @dataclass(frozen=True)
 class _Cutoff:
     """Customers lacking the target at one cutoff: breadth, decile, outcome, audience groups."""
@@ -211,15 +270,16 @@ def _cutoffs(first: datetime, as_of: datetime, horizon: int, most: int) -> list[
 
 
 def _snapshot(
-    wh: Warehouse,
     target: Target,
     at: datetime,
-    outcome_until: datetime,
+    people: pl.DataFrame,
     groups: pl.DataFrame | None,
     ranks: Sequence[int],
     edges: np.ndarray | None = None,
 ) -> _Cutoff:
-    people = ids_.normalise_frame(wh.fetch(forward_query(target, at, outcome_until))).with_columns(
+    """One cutoff's customers lacking the target (from ``takeup_history``), with their breadth
+    deciles and the audience groups they belong to."""
+    people = people.with_columns(
         pl.col("breadth").cast(pl.Int64),
         pl.col("bought").cast(pl.Int64),
         pl.col("units").cast(pl.Float64),
@@ -288,6 +348,8 @@ class _History:
     # the breadth-matched method itself, one audience per breadth decile, and no rule effect is
     # measured.
     fixed_ids: bool = False
+    # customers lacking the target at as_of itself, with their breadth (no outcome is read)
+    now_people: pl.DataFrame | None = None
 
     def _audiences(self, now: _Cutoff) -> list[tuple[int, pl.DataFrame]]:
         if self.fixed_ids:
@@ -352,13 +414,12 @@ def _history(
             hint="choose a later --as-of or a shorter --horizon",
         )
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
+    frames = takeup_history(wh, target, as_of, horizon, len(ats))
     cutoffs = [
-        _snapshot(
-            wh, target, at, at + timedelta(days=horizon), _groups_at(wh, spec, ids, at), ranks
-        )
-        for at in ats
+        _snapshot(target, at, frames[k], _groups_at(wh, spec, ids, at), ranks)
+        for k, at in enumerate(ats, start=1)
     ]
-    return _History(cutoffs, ranks, fixed_ids=spec is None)
+    return _History(cutoffs, ranks, fixed_ids=spec is None, now_people=frames[0])
 
 
 def _calibrated(history: _History) -> tuple[Calibration, RuleWeight, pl.DataFrame]:
@@ -506,6 +567,7 @@ def calibrate_audience(
     ids = None if customers is None else _as_ids(customers)
     history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
     cal, weight, bt = _calibrated(history)
+    assert history.now_people is not None
     groups = (
         _groups_at(wh, spec, None, when)
         if spec is not None
@@ -523,7 +585,9 @@ def calibrate_audience(
             ]
         )
         ranks = history.ranks
-        now = _snapshot(wh, target, when, when, groups, ranks, edges=history.cutoffs[0].edges)
+        now = _snapshot(
+            target, when, history.now_people, groups, ranks, edges=history.cutoffs[0].edges
+        )
         now = _Cutoff(
             now.at,
             now.people.with_columns(pl.col("customer_id").is_in(ids.implode()).alias("g0")),
@@ -532,7 +596,12 @@ def calibrate_audience(
     else:
         # Breadth at as_of, read with an empty outcome window: nothing at or after as_of.
         now = _snapshot(
-            wh, target, when, when, groups, history.ranks, edges=history.cutoffs[0].edges
+            target,
+            when,
+            history.now_people,
+            groups,
+            history.ranks,
+            edges=history.cutoffs[0].edges,
         )
     return Calibrated(target, when, horizon_days, level, history, cal, weight, bt, now)
 

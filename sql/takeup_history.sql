@@ -1,0 +1,107 @@
+-- reachlist take-up history: shopping breadth and forward take-up at every cutoff of an estimate,
+-- in one query (one pass over the holdings). Cutoff k is :as_of minus k horizons
+-- (k = 0 .. :last); k = 0 is as_of itself, whose horizon lies in the future: nothing at or after
+-- :as_of is read, so nobody has bought at k = 0. One row per customer with an order before as_of:
+--
+--   first_age:  days from their first order's day to as_of (at cutoff k they are a customer
+--               when first_age > k * :horizon)
+--   breadth_k:  distinct categories held in [cutoff_k - :breadth_days, cutoff_k)
+--   had_k:      1 when they hold a target SKU over all days before cutoff_k
+--   bought_k:   1 when they hold a target SKU over [cutoff_k, cutoff_k + :horizon);
+--   units_k:    the net units of those SKUs there
+--
+-- The same definitions as forward_takeup.sql, which asks them one cutoff at a time (the tests
+-- compare the two). "Holds" is a positive net quantity per SKU over the days of a window. For a
+-- customer and SKU without a return, that is "bought it on a day inside the window", and the
+-- cutoffs whose window holds a day are a run k_lo .. k_hi worked out from the day's age; the few
+-- customer-SKU pairs with a return are summed window by window.
+WITH past AS (
+    SELECT customer_id, sku, quantity, :as_of - order_day AS age  -- days before as_of, >= 1
+    FROM holdings
+    WHERE order_day < :as_of
+),
+returned_pairs AS (
+    SELECT DISTINCT customer_id, sku FROM past WHERE quantity < 0
+),
+plain_days AS (
+    -- days of pairs without a return, with the run of cutoffs whose breadth window holds them
+    SELECT p.customer_id, p.sku,
+           CASE WHEN p.age <= :breadth_days THEN 0
+                ELSE CAST(FLOOR((p.age - :breadth_days + :horizon - 1) * 1.0 / :horizon) AS INTEGER)
+           END                                                                 AS k_lo,
+           LEAST(:last, CAST(FLOOR((p.age - 1) * 1.0 / :horizon) AS INTEGER))  AS k_hi
+    FROM past AS p
+    LEFT JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
+    WHERE r.customer_id IS NULL AND p.quantity > 0
+),
+returned_windows AS (
+    -- pairs with a return: the net quantity in each cutoff's breadth window
+    SELECT p.customer_id, p.sku, ks.k
+    FROM past AS p
+    JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
+    CROSS JOIN {cutoff_numbers} AS ks (k)
+    WHERE p.age > ks.k * :horizon AND p.age <= ks.k * :horizon + :breadth_days
+    GROUP BY p.customer_id, p.sku, ks.k
+    HAVING sum(p.quantity) > 0
+),
+held_bits AS (
+    -- bit k set: the customer holds the SKU in cutoff k's breadth window
+    SELECT customer_id, sku,
+           (CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo) AS bits
+    FROM plain_days
+    WHERE k_lo <= k_hi
+    UNION ALL
+    SELECT customer_id, sku, CAST(1 AS BIGINT) << k AS bits
+    FROM returned_windows
+),
+category_bits AS (
+    SELECT h.customer_id, pr.category, bit_or(h.bits) AS bits
+    FROM held_bits AS h
+    JOIN products AS pr ON pr.sku = h.sku
+    WHERE pr.category IS NOT NULL
+    GROUP BY h.customer_id, pr.category
+),
+breadth AS (
+    SELECT customer_id,
+{breadth_columns}
+    FROM category_bits
+    GROUP BY customer_id
+),
+target_net AS (
+    -- each customer's net quantity of each target SKU before each cutoff and in its horizon
+    SELECT t.customer_id, t.sku, ks.k,
+           sum(CASE WHEN t.age > ks.k * :horizon THEN t.quantity ELSE 0 END) AS before_cutoff,
+           sum(CASE WHEN t.age <= ks.k * :horizon AND t.age > (ks.k - 1) * :horizon
+                    THEN t.quantity ELSE 0 END)                           AS in_horizon
+    FROM past AS t
+    CROSS JOIN {cutoff_numbers} AS ks (k)
+    WHERE t.sku IN (SELECT sku FROM products WHERE {target_level} = :target)
+    GROUP BY t.customer_id, t.sku, ks.k
+),
+target_by_cutoff AS (
+    SELECT customer_id, k,
+           max(CASE WHEN before_cutoff > 0 THEN 1 ELSE 0 END)          AS had,
+           max(CASE WHEN in_horizon > 0 THEN 1 ELSE 0 END)             AS bought,
+           sum(CASE WHEN in_horizon > 0 THEN in_horizon ELSE 0 END)    AS units
+    FROM target_net
+    GROUP BY customer_id, k
+),
+target AS (
+    SELECT customer_id,
+{target_columns}
+    FROM target_by_cutoff
+    GROUP BY customer_id
+),
+population AS (
+    SELECT customer_id, max(:as_of - CAST(ordered_at AS DATE)) AS first_age
+    FROM orders
+    WHERE ordered_at < :as_of AND customer_id IS NOT NULL
+    GROUP BY customer_id
+)
+SELECT pop.customer_id,
+       pop.first_age,
+{final_columns}
+FROM population AS pop
+LEFT JOIN breadth AS b ON b.customer_id = pop.customer_id
+LEFT JOIN target AS t ON t.customer_id = pop.customer_id
+ORDER BY pop.customer_id
