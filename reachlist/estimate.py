@@ -139,10 +139,16 @@ def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: in
             for k in ks
             for col in ("had", "bought", "units")
         ),
+        # small types: a million customers at 14 cutoffs is 56 million values
         final_columns=",\n".join(
-            f"       coalesce({src}.{col}_{k}, 0) AS {col}_{k}"
+            f"       CAST(coalesce({src}.{col}_{k}, 0) AS {to}) AS {col}_{k}"
             for k in ks
-            for src, col in (("b", "breadth"), ("t", "had"), ("t", "bought"), ("t", "units"))
+            for src, col, to in (
+                ("b", "breadth", "INTEGER"),
+                ("t", "had", "SMALLINT"),
+                ("t", "bought", "SMALLINT"),
+                ("t", "units", "DOUBLE PRECISION"),
+            )
         ),
     )
 
@@ -638,19 +644,6 @@ def estimate_takeup(
     )
     given = ids.n_unique() if ids is not None else None
     return c.report(COMBINED, given=given)
-
-
-def decile_rate_table(cut: _Cutoff) -> pl.DataFrame:
-    """Forward take-up per breadth decile at one cutoff (for display and tests)."""
-    n, b = cut.counts()
-    return pl.DataFrame(
-        {
-            "decile": np.arange(len(n)),
-            "customers": n.astype(int),
-            "buyers": b.astype(int),
-            "rate": decile_rates(n, b),
-        }
-    )
 
 
 # -- holdout planning ---------------------------------------------------------------------------

@@ -158,9 +158,7 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
         say(f"step 2 of 3: netting {mark.order_lines:,} order lines by customer, SKU and day")
         reader = wh.stream_arrow(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"), BATCH_ROWS)
         with Warehouse.open(tmp, create=True) as side:
-            side.create_from_arrow(
-                "holdings", reader, "SELECT * FROM src ORDER BY order_day, customer_id, sku"
-            )
+            side.create_from_arrow("holdings", reader, "SELECT * FROM src ORDER BY order_day")
             say("step 3 of 3: writing the watermark")
             side.run_statement(
                 "CREATE TABLE history_mark (order_lines BIGINT, quantity_sum DOUBLE, "

@@ -100,7 +100,6 @@ __all__ = [
     "build_list",
     "plan_list",
     "preview_list",
-    "settle_plan",
 ]
 
 PURPOSES = ("introduce", "clear")
@@ -964,7 +963,7 @@ def _size_to_stock(
 def preview_list(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> ListOutcome:
     """The analyst's preview: the outcome plus each rule's reach and overlap with rules above.
 
-    Rules whose audience is below ``request.min_audience`` are dropped first (``settle_plan``)."""
+    Rules whose audience is below ``request.min_audience`` are dropped first."""
     plan, frame, waterfall, pairs = _settle(wh, plan, log)
     outcome = _finish(wh, plan, frame, waterfall, log)
     first_rank = pairs.group_by("customer_id").agg(pl.col("rule_rank").min().alias("first_rank"))
@@ -1041,14 +1040,6 @@ def _settle(
     )
     frame, waterfall = _excluded(wh, plan, log)
     return plan, frame, waterfall, _reach_pairs(wh, plan)
-
-
-def settle_plan(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> Plan:
-    """The plan without the rules whose audience after exclusions is below
-    ``request.min_audience`` (with a note saying which); unchanged when there is no minimum."""
-    if plan.request.min_audience <= 0:
-        return plan
-    return _settle(wh, plan, log)[0]
 
 
 def delivered_paths(out: str | Path) -> list[Path]:

@@ -340,11 +340,6 @@ class Baskets:
         arrays = (self.indptr, self.indices, self.item_counts, self._tids, self._tid_ptr)
         return sum(a.nbytes for a in arrays) + len(self._rows) * self.n_words * 8
 
-    @property
-    def bits(self) -> np.ndarray:
-        """Bitmap rows of every item (n_items, n_words); builds all of them."""
-        return self.bitmaps(np.arange(self.n_items))
-
 
 def _n_checked(seen: int, n_baskets: int | None) -> int:
     if n_baskets is None:

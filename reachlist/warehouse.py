@@ -95,6 +95,8 @@ class Warehouse:
             )
         try:
             conn = duckdb.connect(path, read_only=read_only)
+            for name, value in _duckdb_budget().items():  # SET, not config: other connections
+                conn.execute(f"SET {name} = {literal(value)}")  # to the file may exist
         except duckdb.Error as exc:
             raise WarehouseError(
                 f"Cannot open {path!r} as a DuckDB database: {_first_line(exc)}.",
@@ -442,6 +444,20 @@ class Warehouse:
             f"Query{what} failed on {self.dialect.name}: {text}.",
             hint="run `reachlist check`; if it passes, report this with `reachlist sql` output",
         )
+
+
+DUCKDB_MEMORY = "1536MB"  # DuckDB's working memory; beyond it, its joins and sorts spill to disk
+
+
+def _duckdb_budget() -> dict[str, str]:
+    """The memory DuckDB may use (``REACHLIST_DUCKDB_MEMORY``, default ``DUCKDB_MEMORY``) and
+    where it spills beyond that (a private temporary folder, so a read-only warehouse works)."""
+    import tempfile
+
+    return {
+        "memory_limit": os.environ.get("REACHLIST_DUCKDB_MEMORY", DUCKDB_MEMORY),
+        "temp_directory": str(Path(tempfile.gettempdir()) / f"reachlist-spill-{os.getuid()}"),
+    }
 
 
 def _raw(query: Query, dialect: Dialect) -> tuple[str, dict[str, Any]]:
