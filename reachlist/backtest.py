@@ -148,7 +148,7 @@ def backtest(
         tgt,
         level=level,
         since=window.since,
-        until=window.until,  # type: ignore[arg-type]
+        until=window.until,
         **(mining or {}),
     )
     chosen = choose_rules(rules, top=top, rank_by=rank_by)

@@ -441,7 +441,7 @@ def plan_list(
         raise InputError(
             f"Expected purchase history for {target}, found no customer who bought it before "
             f"{window.until:%Y-%m-%d}, so no rule can point at it.",
-            hint=_stand_in_hint(wh, target, window.until),  # type: ignore[arg-type]
+            hint=_stand_in_hint(wh, target, window.until),
         )
     if rules is None:
         from reachlist.rules import mine_rules
@@ -449,8 +449,8 @@ def plan_list(
         rules = mine_rules(
             wh,
             rules_target,
-            since=window.since,  # type: ignore[arg-type]
-            until=window.until,  # type: ignore[arg-type]
+            since=window.since,
+            until=window.until,
             progress=progress,
             **request.mining,
         )
@@ -636,7 +636,7 @@ def _stand_in_hint(wh: Warehouse, target: Target, until: datetime) -> str:
         name = groups[level][0]
         if name is None:
             continue
-        group = Target(level, str(name))  # type: ignore[arg-type]
+        group = Target(level, str(name))
         buyers = item_buyers(wh, group, until)[0]
         if buyers:
             return (
@@ -670,7 +670,7 @@ def sensitive_items(
     for rule in rules:
         wanted.setdefault(level, set()).update(rule.antecedent)
     for lvl, items in wanted.items():
-        col = LEVEL_COLUMN[lvl]  # type: ignore[index]
+        col = LEVEL_COLUMN[lvl]
         df = wh.fetch(
             Query(
                 f"SELECT DISTINCT {col} AS item FROM products\n"

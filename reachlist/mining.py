@@ -452,7 +452,7 @@ def _popcounts(m: np.ndarray) -> np.ndarray:
     """Number of set bits in each row of a (r, w) word matrix."""
     if m.shape[-1] == 0:
         return np.zeros(m.shape[:-1], dtype=np.int64)
-    return np.bitwise_count(m).sum(axis=-1, dtype=np.int64)
+    return np.asarray(np.bitwise_count(m).sum(axis=-1, dtype=np.int64))
 
 
 def _bit_positions(row: np.ndarray) -> np.ndarray:
@@ -460,7 +460,9 @@ def _bit_positions(row: np.ndarray) -> np.ndarray:
     return np.flatnonzero(np.unpackbits(row.view(np.uint8), bitorder="little"))
 
 
-def _project(baskets: Baskets, rows: np.ndarray, keep_items: np.ndarray):
+def _project(
+    baskets: Baskets, rows: np.ndarray, keep_items: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Bitmaps of the items ``keep_items`` restricted to the baskets ``rows``.
 
     Returns (bits (len(keep_items), ceil(len(rows)/64)), counts per kept item). Cost is
@@ -732,7 +734,7 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
 
 
 def _count_under(
-    bits: np.ndarray, slot: np.ndarray, groups: list, where: list[int], out: list
+    bits: np.ndarray, slot: np.ndarray, groups: list[Any], where: list[int], out: list[Any]
 ) -> None:
     """Counts of prefix + (e,) for the groups (prefix, ext), put at ``out[where[k]]``."""
     prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
@@ -804,9 +806,9 @@ def adjust_p_values(p: Any, correction: str = "holm") -> np.ndarray:
     p = np.asarray(p, dtype=np.float64)
     m = p.size
     if correction == "none" or m == 0:
-        return p.copy()
+        return np.asarray(p.copy())
     if correction == "bonferroni":
-        return np.minimum(1.0, p * m)
+        return np.asarray(np.minimum(1.0, p * m))
     order = np.argsort(p, kind="stable")  # Holm: step down from the smallest p
     stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
     out = np.empty(m)
@@ -880,7 +882,7 @@ def _productive(
                 better = num * best_den[rows] > best_num[rows] * den
                 best_num[rows] = np.where(better, num, best_num[rows])
                 best_den[rows] = np.where(better, den, best_den[rows])
-    return n_xy * best_den > best_num * n_x
+    return np.asarray(n_xy * best_den > best_num * n_x)
 
 
 # --------------------------------------------------------------------------------------------

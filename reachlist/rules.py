@@ -256,7 +256,7 @@ def basket_breadth(
         # hashing millions of keys, and small: 1M baskets x 35 categories is 35 MB.
         seen = np.zeros(n * width, dtype=bool)
         seen[keys] = True
-        return seen.reshape(n, width).sum(axis=1, dtype=np.int64)
+        return np.asarray(seen.reshape(n, width).sum(axis=1, dtype=np.int64))
     return np.bincount(np.unique(keys) // width, minlength=n).astype(np.int64)
 
 

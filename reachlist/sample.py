@@ -870,7 +870,7 @@ def _day_cdf() -> np.ndarray:
     w = 1.0 + 0.55 * np.cos(2 * np.pi * (doy - 125) / 365.25)  # spring peak, autumn trough
     w = w * np.where((d + PERIOD_START.weekday()) % 7 >= 5, 1.25, 1.0)  # busier weekends
     c = np.cumsum(w)
-    return c / c[-1]
+    return np.asarray(c / c[-1])
 
 
 @dataclass
@@ -923,7 +923,14 @@ def _rule_masks(cat: _Catalog) -> tuple[np.ndarray, np.ndarray]:
     return ante, target
 
 
-def _hold_time(r: dict[str, Any], cat: _Catalog, l_cust, l_t, l_sku, n: int) -> np.ndarray:
+def _hold_time(
+    r: dict[str, Any],
+    cat: _Catalog,
+    l_cust: np.ndarray,
+    l_t: np.ndarray,
+    l_sku: np.ndarray,
+    n: int,
+) -> np.ndarray:
     """First time each customer holds every element of the rule's antecedent (inf: never)."""
     hold = np.full(n, -np.inf)
     for a in r["antecedent"]:
@@ -944,7 +951,16 @@ def _shop_time(t: np.ndarray, online: np.ndarray) -> np.ndarray:
     return np.floor(np.where(online, t, day * 86_400 + 8 * 3600 + sod * 0.5))
 
 
-def _draw_lines(rng, cat, gen_cats, gen_p, fav, nfav, l_cust, l_day):
+def _draw_lines(
+    rng: np.random.Generator,
+    cat: _Catalog,
+    gen_cats: np.ndarray,
+    gen_p: np.ndarray,
+    fav: np.ndarray,
+    nfav: np.ndarray,
+    l_cust: np.ndarray,
+    l_day: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Draw (sku, quantity, cents) for lines of the given customers on the given days."""
     L = len(l_cust)
     pick = (rng.random(L) * nfav[l_cust]).astype(np.int64)
@@ -1485,7 +1501,7 @@ def _write(tmp: Path, tables: dict[str, pa.Table]) -> None:
 
 
 def build_sample(
-    path: str | os.PathLike,
+    path: str | os.PathLike[str],
     customers: int = 20_000,
     seed: int = 7,
     *,

@@ -59,7 +59,7 @@ def check_level(level: str) -> Level:
             f"Expected an item level of {', '.join(LEVELS)}, found {level!r}.",
             hint="pass --level sku, --level category or --level department",
         )
-    return level  # type: ignore[return-value]
+    return level
 
 
 def check_basket(kind: str) -> BasketKind:
@@ -68,7 +68,7 @@ def check_basket(kind: str) -> BasketKind:
             f"Expected a basket of customer or order, found {kind!r}.",
             hint="pass --basket customer (audiences) or --basket order (one checkout)",
         )
-    return kind  # type: ignore[return-value]
+    return kind
 
 
 def item_names(wh: Warehouse, level: Level) -> list[str]:

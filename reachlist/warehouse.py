@@ -198,7 +198,8 @@ class Warehouse:
     def _fetch_rendered(self, r: Rendered, query: Query) -> pl.DataFrame:
         try:
             if self.is_duckdb:
-                return self._conn.sql(r.sql, params=r.params or None).pl()
+                frame: pl.DataFrame = self._conn.sql(r.sql, params=r.params or None).pl()
+                return frame
             import sqlalchemy as sa
 
             result = self._conn.execute(sa.text(r.sql), r.params)

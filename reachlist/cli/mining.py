@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from typing import Any
+
 import click
 
 from reachlist.cli import main, out, warehouse_options
@@ -12,7 +15,7 @@ from reachlist.rules import BREADTH_LIFT, DEFAULT_MIN_SUPPORT, mine_rules, stron
 from reachlist.warehouse import Warehouse
 
 
-def mining_options(fn):  # type: ignore[no-untyped-def]
+def mining_options(fn: Callable[..., Any]) -> Callable[..., Any]:
     """Options shared by every command that mines rules (rules, sql, sizes, build, ...)."""
     for option in reversed(
         [
