@@ -394,6 +394,9 @@ def _why_empty(
     )
 
 
+EXPLORE_MAX_ANTECEDENT = 2  # antecedent items when rules toward every consequent are searched
+
+
 def strongest_rules(
     wh: Warehouse,
     *,
@@ -406,13 +409,23 @@ def strongest_rules(
     min_support: float = 0.01,
     min_confidence: float = 0.0,
     min_lift: float = 1.0,
-    max_antecedent: int = 2,
+    max_antecedent: int = EXPLORE_MAX_ANTECEDENT,
     keep_unproductive: bool = False,
     correction: str = "holm",
     progress: Progress | None = None,
-) -> tuple[pl.DataFrame, Window, int]:
-    """Exploratory mode: the ``top`` strongest rules toward any consequent, by ``measure``."""
+) -> tuple[pl.DataFrame, Window, int, str]:
+    """Exploratory mode: the ``top`` strongest rules toward any consequent, by ``measure``, the
+    window, the number of baskets and a note (empty unless a request was narrowed: antecedents
+    are capped at ``EXPLORE_MAX_ANTECEDENT`` items here, since every consequent is searched)."""
     say = progress or (lambda _msg: None)
+    note = ""
+    if max_antecedent > EXPLORE_MAX_ANTECEDENT:
+        note = (
+            f"Without a target antecedents are capped at {EXPLORE_MAX_ANTECEDENT} items "
+            f"(asked for {max_antecedent}): every consequent is searched, so each further "
+            "item multiplies the work. Name a target for deeper rules."
+        )
+        max_antecedent = EXPLORE_MAX_ANTECEDENT
     lvl, kind = check_level(level), check_basket(basket)
     if measure not in mining.MEASURES:
         raise InputError(
@@ -444,4 +457,4 @@ def strongest_rules(
             f"and --min-lift {min_lift} in {window}.",
             hint="lower --min-support first",
         )
-    return frame, window, baskets.n_baskets
+    return frame, window, baskets.n_baskets, note

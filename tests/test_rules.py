@@ -202,6 +202,23 @@ def test_strongest_rules_across_consequents(garden: Path) -> None:
     )
     assert result.exit_code == 0, result.output
     assert "Strongest rules by leverage" in result.output
+    assert "capped" not in result.output  # the option's default is not a request to narrow
+
+
+def test_a_deeper_search_without_a_target_is_narrowed_visibly(garden: Path) -> None:
+    from reachlist.rules import EXPLORE_MAX_ANTECEDENT, strongest_rules
+
+    with Warehouse.open(garden, read_only=True) as wh:
+        frame, _, _, note = strongest_rules(wh, level="category", max_antecedent=3, top=None)
+        _, _, _, quiet = strongest_rules(wh, level="category", top=5)
+    assert "capped at 2 items (asked for 3)" in note and quiet == ""
+    assert EXPLORE_MAX_ANTECEDENT == 2
+    assert frame["antecedent"].list.len().max() <= EXPLORE_MAX_ANTECEDENT
+    result = CliRunner().invoke(
+        main, ["rules", "-w", str(garden), "--level", "category", "--max-antecedent", "3"]
+    )
+    assert result.exit_code == 0, result.output
+    assert "capped at 2 items" in " ".join(result.output.split())
 
 
 @pytest.mark.postgres

@@ -11,7 +11,13 @@ from reachlist.cli import main, out, warehouse_options
 from reachlist.cli.progress import delayed_status
 from reachlist.errors import InputError
 from reachlist.mining import CORRECTIONS, MEASURES
-from reachlist.rules import BREADTH_LIFT, DEFAULT_MIN_SUPPORT, mine_rules, strongest_rules
+from reachlist.rules import (
+    BREADTH_LIFT,
+    DEFAULT_MIN_SUPPORT,
+    EXPLORE_MAX_ANTECEDENT,
+    mine_rules,
+    strongest_rules,
+)
 from reachlist.warehouse import Warehouse
 
 
@@ -152,11 +158,19 @@ def rules(
     with delayed_status(out, "Mining rules") as progress:
         if target is None:
             exploratory = {k: v for k, v in mining.items() if k != "max_antecedent"}
-            frame, window, n = strongest_rules(
+            # the option's default is for rules toward a target; asked for explicitly, a deeper
+            # search is narrowed by the library, which says so
+            asked = click.get_current_context().get_parameter_source("max_antecedent")
+            depth = (
+                int(mining["max_antecedent"])  # type: ignore[call-overload]
+                if asked is not click.core.ParameterSource.DEFAULT
+                else EXPLORE_MAX_ANTECEDENT
+            )
+            frame, window, n, note = strongest_rules(
                 wh,
                 measure=measure,
                 top=None if (as_json or csv_path) else top,  # type: ignore[arg-type]
-                max_antecedent=min(int(mining["max_antecedent"]), 2),  # type: ignore[call-overload]
+                max_antecedent=depth,
                 progress=progress,
                 **exploratory,  # type: ignore[arg-type]
             )
