@@ -395,6 +395,37 @@ def _why_empty(
 
 
 EXPLORE_MAX_ANTECEDENT = 2  # antecedent items when rules toward every consequent are searched
+EXPLORE_BUDGET = 200_000  # itemsets one search toward every consequent may count (estimated)
+
+
+def _pair_counts(baskets: mining.Baskets, min_count: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """Item counts (ascending) of the items frequent at ``min_count`` and the baskets holding
+    each pair of them (upper triangle), when that is cheap to count (None otherwise)."""
+    counts = baskets.item_counts
+    freq = np.argsort(counts, kind="stable")
+    freq = freq[counts[freq] >= min_count]
+    k = int(freq.size)
+    if k < 3 or k > PAIR_ITEMS or k * k * baskets.n_words > PAIR_WORK:
+        return None
+    bits = baskets.bitmaps(freq)
+    together = np.zeros((k, k), dtype=np.int64)
+    for a in range(k - 1):
+        together[a, a + 1 :] = np.bitwise_count(bits[a] & bits[a + 1 :]).sum(axis=1)
+    return counts[freq], together
+
+
+def _nodes_from_pairs(item_counts: np.ndarray, together: np.ndarray, min_count: int) -> int:
+    """Itemsets of up to 3 items a search counts at ``min_count``: the frequent items, every pair
+    of them, and every frequent pair extended by each item after it."""
+    keep = np.flatnonzero(item_counts >= min_count)
+    k = int(keep.size)
+    sub = together[np.ix_(keep, keep)]
+    a, b = np.nonzero(np.triu(sub >= min_count, 1))
+    return int(k + k * (k - 1) // 2 + (k - 1 - b).sum())
+
+
+PAIR_ITEMS = 3_000  # frequent items up to which pairs are counted to bound the search
+PAIR_WORK = 2_000_000_000  # ... and item pairs x bitmap words
 
 
 def strongest_rules(
@@ -439,12 +470,36 @@ def strongest_rules(
         raise EmptyResultError(
             f"No {kind} basket holds any item in {window}.", hint="widen the window"
         )
-    say(f"Mining frequent itemsets in {baskets.n_baskets:,} baskets")
+    n = baskets.n_baskets
+    min_count = max(1, math.ceil(min_support * n - 1e-9))
+    depth = max_antecedent + 1
+    asked = mining.estimate_nodes(baskets.item_counts, n, min_count, depth)
+    # rules toward every consequent: no target bounds the search, so the floor rises until the
+    # itemsets fit the budget (the strongest rules by support survive it): first as if items
+    # were independent, then, where the pairs can be counted cheaply, from the real pair counts
+    # (dense data such as categories held over a year is far from independent)
+    while asked > EXPLORE_BUDGET and min_count < n:
+        min_count = min(n, math.ceil(min_count * 1.25))
+        if mining.estimate_nodes(baskets.item_counts, n, min_count, depth) <= EXPLORE_BUDGET:
+            break
+    pairs = _pair_counts(baskets, min_count) if depth >= 3 else None
+    if pairs is not None:
+        asked = max(asked, _nodes_from_pairs(*pairs, min_count))
+        while _nodes_from_pairs(*pairs, min_count) > EXPLORE_BUDGET and min_count < n:
+            min_count = min(n, math.ceil(min_count * 1.25))
+    if min_count > max(1, math.ceil(min_support * n - 1e-9)):
+        narrowed = (
+            f"The search narrowed to stay within {EXPLORE_BUDGET:,} counted itemsets (about "
+            f"{asked:,} estimated): min support raised from {min_support:.2%} to "
+            f"{min_count / n:.2%} ({min_count:,} baskets)."
+        )
+        note = f"{note} {narrowed}".strip()
+    say(f"Mining frequent itemsets in {n:,} baskets")
     frame = mining.top_rules(
         baskets,
         measure,
         top,
-        min_support=min_support,
+        min_count=min_count,
         min_confidence=min_confidence,
         min_lift=min_lift,
         max_size=max_antecedent + 1,
