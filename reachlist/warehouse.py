@@ -296,38 +296,28 @@ class Warehouse:
     def insert_arrow(self, table: str, data: Any, select_sql: str) -> None:
         """``INSERT INTO table <select_sql>`` where ``select_sql`` reads the Arrow table ``data``
         as ``src`` (DuckDB only: how the sample warehouse is written)."""
-        if not self.is_duckdb:
-            raise WarehouseError(
-                f"Expected a DuckDB file to load Arrow data into, found {self.display_name}.",
-                hint="write the sample to a DuckDB file, then `reachlist copy` it elsewhere",
-            )
-        self._conn.register("src", data)
-        try:
-            self._conn.execute(f"INSERT INTO {quote_ident(table)} {select_sql}")
-        except Exception as exc:
-            raise WarehouseError(
-                f"Could not load {table} into {self.display_name}: {_first_line(exc)}.",
-                hint="check the free space and that the file is writable",
-            ) from None
-        finally:
-            self._conn.unregister("src")
+        self._from_arrow(f"INSERT INTO {quote_ident(table)} {select_sql}", table, data)
 
     def create_from_arrow(self, table: str, data: Any, select_sql: str) -> None:
         """``CREATE TABLE table AS <select_sql>`` where ``select_sql`` reads the Arrow table or
         record-batch reader ``data`` as ``src`` (DuckDB only: how reachlist writes the holdings
         file beside a warehouse). The table takes the types the data has."""
+        self._from_arrow(f"CREATE TABLE {quote_ident(table)} AS {select_sql}", table, data)
+
+    def _from_arrow(self, statement: str, table: str, data: Any) -> None:
         if not self.is_duckdb:
             raise WarehouseError(
-                f"Expected a DuckDB file to write {table} into, found {self.display_name}.",
-                hint="report this",
+                f"Expected a DuckDB file to write {table} into from Arrow data, found "
+                f"{self.display_name}.",
+                hint="write to a DuckDB file, then `reachlist copy` it elsewhere",
             )
         self._conn.register("src", data)
         try:
-            self._conn.execute(f"CREATE TABLE {quote_ident(table)} AS {select_sql}")
+            self._conn.execute(statement)
         except Exception as exc:
             raise WarehouseError(
                 f"Could not write {table} into {self.display_name}: {_first_line(exc)}.",
-                hint="check the free space and that the folder is writable",
+                hint="check the free space and that the file and its folder are writable",
             ) from None
         finally:
             self._conn.unregister("src")
