@@ -436,7 +436,7 @@ def strongest_rules(
     since: str | date | datetime | None = None,
     until: str | date | datetime | None = None,
     measure: str = "leverage",
-    top: int = 20,
+    top: int | None = 20,
     min_support: float = 0.01,
     min_confidence: float = 0.0,
     min_lift: float = 1.0,

@@ -203,6 +203,11 @@ def test_strongest_rules_across_consequents(garden: Path) -> None:
     assert result.exit_code == 0, result.output
     assert "Strongest rules by leverage" in result.output
     assert "capped" not in result.output  # the option's default is not a request to narrow
+    shown = " ".join(result.output.split())
+    import re
+
+    found = re.search(r"5 of ([\d,]+) rules shown", shown)
+    assert found and int(found.group(1).replace(",", "")) > 5  # of all found, not of the five
 
 
 def test_a_deeper_search_without_a_target_is_narrowed_visibly(garden: Path) -> None:

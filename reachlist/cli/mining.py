@@ -169,7 +169,7 @@ def rules(
             frame, window, n, note = strongest_rules(
                 wh,
                 measure=measure,
-                top=None if (as_json or csv_path) else top,  # type: ignore[arg-type]
+                top=None,  # all of them: the screen shows --top of how many there are
                 max_antecedent=depth,
                 progress=progress,
                 **exploratory,  # type: ignore[arg-type]
