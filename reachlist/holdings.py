@@ -25,7 +25,6 @@ import os
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Literal
 
@@ -108,13 +107,11 @@ def holdings_path(wh: Warehouse) -> Path | None:
 def current_mark(wh: Warehouse) -> Watermark:
     row = wh.fetch(Query.from_template("history_mark")).row(0, named=True)
     last = row["last_order"]
-    derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
-    if wh.holdings_table is not None:  # digest the derivation, not the attached table
-        saved, wh.holdings_table = wh.holdings_table, None
-        try:
-            derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
-        finally:
-            wh.holdings_table = saved
+    saved, wh.holdings_table = wh.holdings_table, None  # digest the derivation, not the file
+    try:
+        derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
+    finally:
+        wh.holdings_table = saved
     return Watermark(
         order_lines=int(row["order_lines"] or 0),
         quantity_sum=float(row["quantity_sum"] or 0),
@@ -221,11 +218,3 @@ def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = 
         f"Holdings out of date ({changed}); reading the order lines instead (slower). "
         "`reachlist holdings` rebuilds them.",
     )
-
-
-def built_at(path: Path) -> datetime | None:
-    """When a holdings file was written (None: there is none)."""
-    try:
-        return datetime.fromtimestamp(path.stat().st_mtime)
-    except OSError:
-        return None

@@ -428,6 +428,31 @@ PAIR_ITEMS = 3_000  # frequent items up to which pairs are counted to bound the 
 PAIR_WORK = 2_000_000_000  # ... and item pairs x bitmap words
 
 
+def _explore_floor(baskets: mining.Baskets, min_count: int, depth: int) -> tuple[int, int]:
+    """The support floor (in baskets) at which a search toward every consequent fits
+    ``EXPLORE_BUDGET`` itemsets, and the itemsets estimated at ``min_count``. No target bounds
+    this search, so the floor rises (the strongest rules by support survive it): first as if
+    items were independent, then, where pairs are cheap to count, from the real pair counts
+    (dense data such as categories held over a year is far from independent)."""
+    n = baskets.n_baskets
+
+    def guess(floor: int) -> int:
+        return mining.estimate_nodes(baskets.item_counts, n, floor, depth)
+
+    def higher(floor: int) -> int:
+        return min(n, math.ceil(floor * 1.25))
+
+    asked, floor = guess(min_count), min_count
+    while guess(floor) > EXPLORE_BUDGET and floor < n:
+        floor = higher(floor)
+    pairs = _pair_counts(baskets, floor) if depth >= 3 else None
+    if pairs is not None:
+        asked = max(asked, _nodes_from_pairs(*pairs, floor))
+        while _nodes_from_pairs(*pairs, floor) > EXPLORE_BUDGET and floor < n:
+            floor = higher(floor)
+    return floor, asked
+
+
 def strongest_rules(
     wh: Warehouse,
     *,
@@ -471,23 +496,9 @@ def strongest_rules(
             f"No {kind} basket holds any item in {window}.", hint="widen the window"
         )
     n = baskets.n_baskets
-    min_count = max(1, math.ceil(min_support * n - 1e-9))
-    depth = max_antecedent + 1
-    asked = mining.estimate_nodes(baskets.item_counts, n, min_count, depth)
-    # rules toward every consequent: no target bounds the search, so the floor rises until the
-    # itemsets fit the budget (the strongest rules by support survive it): first as if items
-    # were independent, then, where the pairs can be counted cheaply, from the real pair counts
-    # (dense data such as categories held over a year is far from independent)
-    while asked > EXPLORE_BUDGET and min_count < n:
-        min_count = min(n, math.ceil(min_count * 1.25))
-        if mining.estimate_nodes(baskets.item_counts, n, min_count, depth) <= EXPLORE_BUDGET:
-            break
-    pairs = _pair_counts(baskets, min_count) if depth >= 3 else None
-    if pairs is not None:
-        asked = max(asked, _nodes_from_pairs(*pairs, min_count))
-        while _nodes_from_pairs(*pairs, min_count) > EXPLORE_BUDGET and min_count < n:
-            min_count = min(n, math.ceil(min_count * 1.25))
-    if min_count > max(1, math.ceil(min_support * n - 1e-9)):
+    asked_count = max(1, math.ceil(min_support * n - 1e-9))
+    min_count, asked = _explore_floor(baskets, asked_count, max_antecedent + 1)
+    if min_count > asked_count:
         narrowed = (
             f"The search narrowed to stay within {EXPLORE_BUDGET:,} counted itemsets (about "
             f"{asked:,} estimated): min support raised from {min_support:.2%} to "
