@@ -95,12 +95,22 @@ class Warehouse:
             )
         try:
             conn = duckdb.connect(path, read_only=read_only)
-            for name, value in _duckdb_budget().items():  # SET, not config: other connections
-                conn.execute(f"SET {name} = {literal(value)}")  # to the file may exist
         except duckdb.Error as exc:
             raise WarehouseError(
                 f"Cannot open {path!r} as a DuckDB database: {_first_line(exc)}.",
                 hint="pass a DuckDB file, or close the program that holds it open",
+            ) from None
+        budget = _duckdb_budget()
+        # SET, not connect config: other connections to the same file may exist
+        conn.execute(f"SET temp_directory = {literal(budget['temp_directory'])}")
+        try:
+            conn.execute(f"SET memory_limit = {literal(budget['memory_limit'])}")
+        except duckdb.Error as exc:
+            conn.close()
+            raise InputError(
+                f"Expected REACHLIST_DUCKDB_MEMORY as a size such as 1536MB or 2GB, found "
+                f"{budget['memory_limit']!r} ({_first_line(exc)}).",
+                hint=f"set it to a size like 2GB, or unset it for the default of {DUCKDB_MEMORY}",
             ) from None
         return cls(path, DUCKDB, mapping, conn)
 

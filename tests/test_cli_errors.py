@@ -208,3 +208,10 @@ def test_exit_codes_tell_kinds_of_failure_apart(pristine: Path, tmp_path: Path) 
     assert run("items", "zzzzzz-nothing", "-w", str(pristine)).exit_code == 3  # empty
     assert run("check", "-w", str(tmp_path)).exit_code == 4  # warehouse
     assert run("sizes", MAT, "-w", str(pristine), "--bogus-option").exit_code == 2  # usage
+
+
+def test_a_bad_memory_budget_is_one_line(pristine: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("REACHLIST_DUCKDB_MEMORY", "lots")
+    line = one_line(run("sizes", MAT, "-w", str(pristine)), 2)
+    assert "Expected REACHLIST_DUCKDB_MEMORY as a size such as 1536MB" in line
+    assert "found 'lots'" in line
