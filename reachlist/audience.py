@@ -190,12 +190,14 @@ class Filters:
 
     regions: tuple[str, ...] = ()
     channels: tuple[str, ...] = ()  # ordered through one of these inside the lookback window
-    active_days: int | None = None  # placed an order within this many days before the cutoff
+    ordered_within_days: int | None = (
+        None  # placed an order within this many days before the cutoff
+    )
 
     def __post_init__(self) -> None:
-        if self.active_days is not None and self.active_days < 1:
+        if self.ordered_within_days is not None and self.ordered_within_days < 1:
             raise InputError(
-                f"Expected a number of days of at least 1, found {self.active_days}.",
+                f"Expected a number of days of at least 1, found {self.ordered_within_days}.",
                 hint="pass --ordered-within 90, or leave it out",
             )
 
@@ -314,7 +316,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     # per row of customers (customer_facts keeps the strictest row of a duplicated id) ...
     not_adult_row = outside_region_row = "FALSE"
     # ... and per listed customer (no row in customers: age and region unknown)
-    not_adult = outside_region = outside_channel = inactive = "FALSE"
+    not_adult = outside_region = outside_channel = no_recent_order = "FALSE"
     if spec.age_restricted:
         not_adult_row = "birth_date IS NULL OR birth_date > :adult_born_by"
         not_adult = "coalesce(c.not_adult = 1, TRUE)"
@@ -328,11 +330,11 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         joins += "\nLEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id"
         outside_channel = "ch.customer_id IS NULL"
         params["channels"] = list(f.channels)
-    if f.active_days is not None:
+    if f.ordered_within_days is not None:
         ctes += _ACTIVE_CTE
         joins += "\nLEFT JOIN active_customers AS a ON a.customer_id = b.customer_id"
-        inactive = "a.customer_id IS NULL"
-        params["active_since"] = day_of(spec.lookback.until - timedelta(days=f.active_days))
+        no_recent_order = "a.customer_id IS NULL"
+        params["active_since"] = day_of(spec.lookback.until - timedelta(days=f.ordered_within_days))
     if per_rule:
         # which rules reach whom needs neither customer facts nor filters
         ctes, final = "", _REACH_SELECT
@@ -345,7 +347,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
             "not_adult": not_adult,
             "outside_region": outside_region,
             "outside_channel": outside_channel,
-            "inactive": inactive,
+            "no_recent_order": no_recent_order,
         }
         final = _LIST_SELECT.format(
             flags=",\n    ".join(f"{expr:<34} AS {name}" for name, expr in flags.items()),
@@ -373,7 +375,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
 def audience_query(spec: AudienceSpec) -> Query:
     """One row per reached customer: customer_id, rule_id, score and one boolean per exclusion
     (has_target, returned_target, no_consent, suppressed, not_adult, outside_region,
-    outside_channel, inactive),
+    outside_channel, no_recent_order),
     plus email when ``spec.contact``; best score first."""
     return _build(spec, per_rule=False)
 

@@ -300,7 +300,7 @@ class CampaignLog:
     def record(
         self, record: CampaignRecord, contacts: pl.DataFrame, *, replace: bool = False
     ) -> None:
-        """Write the campaign and its contacts (customer_id, contact_group, score, reason) in one
+        """Write the campaign and its contacts (customer_id, contact_group, score, rule_id) in one
         transaction, creating the log tables first when they are absent."""
         with self.recording(record, contacts, replace=replace):
             pass
@@ -321,7 +321,7 @@ class CampaignLog:
             pl.col("customer_id").cast(pl.String if self.text_ids else pl.Int64),
             pl.col("contact_group").cast(pl.String),
             pl.col("score").cast(pl.Float64),
-            pl.col("reason").cast(pl.String),
+            pl.col("rule_id").cast(pl.String),
             pl.lit(record.sent_at or record.created_at, dtype=pl.Datetime("us")).alias(
                 "contacted_at"
             ),

@@ -33,7 +33,7 @@ STEPS: tuple[Step, ...] = (
     Step("not_adult", "age-restricted target, not known to be an adult"),
     Step("outside_region", "outside the chosen regions"),
     Step("outside_channel", "no order through the chosen channels"),
-    Step("inactive", "no order recently enough"),
+    Step("no_recent_order", "no order recently enough"),
     Step("no_address", "no email address (with contact fields)"),
 )
 """The exclusion order (DESIGN.md). Consent and suppression can only be switched off explicitly."""

@@ -370,7 +370,7 @@ def plan_list(
         (request.cap_days, "--cap-days", 0, MAX_CAP_DAYS),
         (request.horizon_days, "--horizon", 1, MAX_HORIZON_DAYS),
         (request.bought_within_days, "--bought-within", 1, MAX_DAYS_BACK),
-        (request.filters.active_days, "--ordered-within", 1, MAX_DAYS_BACK),
+        (request.filters.ordered_within_days, "--ordered-within", 1, MAX_DAYS_BACK),
     ):
         if value is not None and not low <= value <= high:
             raise InputError(
@@ -770,7 +770,7 @@ def _excluded(
     for key, used in (
         ("outside_region", bool(f.regions)),
         ("outside_channel", bool(f.channels)),
-        ("inactive", f.active_days is not None),
+        ("no_recent_order", f.ordered_within_days is not None),
     ):
         if used:
             in_use.add(key)
@@ -1151,9 +1151,7 @@ def build_list(
             counts=outcome.counts(),
             overrides=plan.overrides,
         )
-        contacts = outcome.listed.select(
-            "customer_id", "contact_group", "score", pl.col("rule_id").alias("reason")
-        )
+        contacts = outcome.listed.select("customer_id", "contact_group", "score", "rule_id")
         with log.recording(record, contacts, replace=replace):
             stage(2)
             path = staged.publish()

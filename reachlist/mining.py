@@ -921,11 +921,11 @@ def _resolve_min_count(n: int, min_count: int | None, min_support: float | None)
     return max(1, math.ceil(Fraction(repr(float(min_support))) * n))
 
 
-def _sort_rules(df: pl.DataFrame, sort_by: str) -> pl.DataFrame:
-    _check_choice("sort_by", sort_by, MEASURES)
-    ascending = sort_by in ("p_value", "p_adjusted")
-    key = pl.col(sort_by)
-    if df.schema[sort_by] == pl.Float64:
+def _rank_rules(df: pl.DataFrame, rank_by: str) -> pl.DataFrame:
+    _check_choice("rank_by", rank_by, MEASURES)
+    ascending = rank_by in ("p_value", "p_adjusted")
+    key = pl.col(rank_by)
+    if df.schema[rank_by] == pl.Float64:
         key = key.fill_nan(float("inf") if ascending else float("-inf"))
     return df.sort(
         [key, pl.col("n_both"), pl.col("rule_id")],
@@ -949,12 +949,12 @@ def _assemble(
     keep_unproductive: bool,
     correction: str,
     alpha: float,
-    sort_by: str,
+    rank_by: str,
     top: int | None = None,
 ) -> pl.DataFrame:
     """Rule table from counts of every candidate rule (the correction's family)."""
     _check_choice("correction", correction, CORRECTIONS)
-    _check_choice("sort_by", sort_by, MEASURES)
+    _check_choice("rank_by", rank_by, MEASURES)
     m = ante.shape[0]
     if m == 0:
         return _empty_rules()
@@ -990,7 +990,7 @@ def _assemble(
         },
         schema=RULE_COLUMNS,
     )
-    df = _sort_rules(df, sort_by)
+    df = _rank_rules(df, rank_by)
     return df if top is None else df.head(top)
 
 
@@ -1133,7 +1133,7 @@ def plan_search(
     min_count: int,
     max_antecedent: int,
     *,
-    sort_by: str,
+    rank_by: str,
     budget: int = SEARCH_BUDGET,
     keep_top: int = KEEP_TOP,
     rule_budget: int = RULE_BUDGET,
@@ -1165,7 +1165,7 @@ def plan_search(
     if not over(min_count, max_antecedent):
         return plan
     first = plan.estimated_nodes
-    if sort_by == "leverage" and p_y < 1:
+    if rank_by == "leverage" and p_y < 1:
         eligible = cond_counts >= min_count
         n_xy = cond_counts[eligible].astype(np.float64)
         n_x = baskets.item_counts[others[eligible]].astype(np.float64)
@@ -1213,7 +1213,7 @@ def target_rules(
     keep_unproductive: bool = False,
     correction: str = "holm",
     alpha: float = 0.05,
-    sort_by: str = "lift",
+    rank_by: str = "lift",
     budget: int | None = SEARCH_BUDGET,
     keep_top: int = KEEP_TOP,
     rule_budget: int = RULE_BUDGET,
@@ -1223,7 +1223,7 @@ def target_rules(
 
     The p-value correction runs over every such rule examined (before the confidence, lift and
     productivity filters); ``n_tested`` says how many. Unproductive rules are dropped unless
-    ``keep_unproductive``. Columns: ``RULE_COLUMNS``; sorted by ``sort_by`` descending.
+    ``keep_unproductive``. Columns: ``RULE_COLUMNS``; sorted by ``rank_by`` descending.
 
     The search is bounded: when it is estimated to count more than ``budget`` itemsets it is
     narrowed (:func:`plan_search`) and one line saying how is appended to ``notes``.
@@ -1251,7 +1251,7 @@ def target_rules(
             others,
             min_count,
             depth,
-            sort_by=sort_by,
+            rank_by=rank_by,
             budget=budget,
             keep_top=keep_top,
             rule_budget=rule_budget,
@@ -1317,7 +1317,7 @@ def target_rules(
         keep_unproductive=keep_unproductive,
         correction=correction,
         alpha=alpha,
-        sort_by=sort_by,
+        rank_by=rank_by,
     )
 
 
@@ -1380,7 +1380,7 @@ def rules_from_itemsets(
     keep_unproductive: bool = False,
     correction: str = "holm",
     alpha: float = 0.05,
-    sort_by: str = "lift",
+    rank_by: str = "lift",
     top: int | None = None,
 ) -> pl.DataFrame:
     """Rules with one consequent from itemset counts (columns items: list[str], count).
@@ -1424,7 +1424,7 @@ def rules_from_itemsets(
         keep_unproductive=keep_unproductive,
         correction=correction,
         alpha=alpha,
-        sort_by=sort_by,
+        rank_by=rank_by,
         top=top,
     )
 
@@ -1466,7 +1466,7 @@ def top_rules(
         keep_unproductive=keep_unproductive,
         correction=correction,
         alpha=alpha,
-        sort_by=measure,
+        rank_by=measure,
         top=top,
     )
 
@@ -1480,7 +1480,7 @@ def rules_from_counts(
     keep_unproductive: bool = False,
     correction: str = "holm",
     alpha: float = 0.05,
-    sort_by: str = "lift",
+    rank_by: str = "lift",
 ) -> pl.DataFrame:
     """Rule table from counts computed elsewhere (e.g. SQL in the warehouse).
 
@@ -1523,5 +1523,5 @@ def rules_from_counts(
         keep_unproductive=keep_unproductive,
         correction=correction,
         alpha=alpha,
-        sort_by=sort_by,
+        rank_by=rank_by,
     )

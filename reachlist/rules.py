@@ -123,7 +123,7 @@ def mine_rules(
     max_antecedent: int = 3,
     keep_unproductive: bool = False,
     correction: str = "holm",
-    sort_by: str = "leverage",
+    rank_by: str = "leverage",
     progress: Progress | None = None,
 ) -> RuleSet:
     """Every rule X -> target (1..max_antecedent items at ``level``) meeting the thresholds.
@@ -145,7 +145,7 @@ def mine_rules(
             hint="widen the window with --since, or target a new item through --stand-in",
         )
     say(f"Counting itemsets in {baskets.n_baskets:,} baskets")
-    if sort_by == BREADTH_LIFT and kind != "customer":
+    if rank_by == BREADTH_LIFT and kind != "customer":
         raise InputError(
             f"Expected --basket customer to rank by {BREADTH_LIFT}, found --basket {kind}: "
             "shopping breadth is a property of a customer, not of one order.",
@@ -155,7 +155,7 @@ def mine_rules(
         min_support=min_support,
         max_antecedent=max_antecedent,
         correction=correction,
-        sort_by="lift" if sort_by == BREADTH_LIFT else sort_by,
+        rank_by="lift" if rank_by == BREADTH_LIFT else rank_by,
     )
     notes: list[str] = []
     frame = mining.target_rules(
@@ -193,7 +193,7 @@ def mine_rules(
         pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
         pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
     )
-    if sort_by == BREADTH_LIFT:
+    if rank_by == BREADTH_LIFT:
         frame = sort_by_breadth_lift(frame)
     return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame, note)
 
@@ -486,7 +486,7 @@ def strongest_rules(
     if measure not in mining.MEASURES:
         raise InputError(
             f"Expected a measure of {', '.join(mining.MEASURES)}, found {measure!r}.",
-            hint="pass --by lift, --by confidence, ...",
+            hint="pass --rank-by lift, --rank-by confidence, ...",
         )
     window = mining_window(wh, since, until)
     say(f"Reading {kind} baskets for {window}")

@@ -142,7 +142,7 @@ CONTRACT: dict[str, Table] = {
                 Column("customer_id", "id"),
                 Column("contact_group", "text", doc="treatment or holdout"),
                 Column("score", "number", nullable=True),
-                Column("reason", "text", nullable=True),
+                Column("rule_id", "text", nullable=True, doc="the reaching rule"),
                 Column("contacted_at", "timestamp"),
             ),
             owned=True,

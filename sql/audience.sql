@@ -9,7 +9,7 @@
 --
 -- reachlist removes flagged customers in this fixed order and counts each step:
 --   has_target, returned_target, no_consent, suppressed, contacted recently, not_adult,
---   outside_region, outside_channel, inactive
+--   outside_region, outside_channel, no_recent_order
 -- The contact-frequency cap (it reads the campaign log, which may live in another database) and
 -- the holdout (a hash of campaign id and customer id) are applied by reachlist after this query.
 WITH antecedent_skus AS (

@@ -25,7 +25,7 @@ FLAGS = (
     "not_adult",
     "outside_region",
     "outside_channel",
-    "inactive",
+    "no_recent_order",
 )
 ORDER = (
     "has_target",
@@ -38,7 +38,7 @@ ORDER = (
     "not_adult",
     "outside_region",
     "outside_channel",
-    "inactive",
+    "no_recent_order",
     "no_address",
 )
 
@@ -156,11 +156,11 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
     active_ok = (
         set(
             orders.filter(
-                (pl.col("ordered_at") >= until - timedelta(days=f.active_days))
+                (pl.col("ordered_at") >= until - timedelta(days=f.ordered_within_days))
                 & (pl.col("ordered_at") < until)
             )["customer_id"].to_list()
         )
-        if f.active_days is not None
+        if f.ordered_within_days is not None
         else set()
     )
     rows = []
@@ -182,7 +182,7 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
                 "outside_region": bool(f.regions)
                 and any(c.get("region") not in f.regions for c in crows),
                 "outside_channel": bool(f.channels) and cid not in channel_ok,
-                "inactive": f.active_days is not None and cid not in active_ok,
+                "no_recent_order": f.ordered_within_days is not None and cid not in active_ok,
             }
         )
     schema = {"customer_id": pl.Int64, "rule_id": pl.String, "score": pl.Float64}

@@ -50,7 +50,7 @@ SPECS = {
     "bought_within": {"bought_within_days": 365},
     "region": {"filters": Filters(regions=("south",))},
     "channel": {"filters": Filters(channels=("web",))},
-    "active": {"filters": Filters(active_days=30)},
+    "active": {"filters": Filters(ordered_within_days=30)},
     "all_filters": {"filters": Filters(("north", "east"), ("store",), 200)},
     "age": {"age_restricted": True, "adult_born_by": date(2008, 6, 1)},
     "contact": {"contact": True},

@@ -116,7 +116,11 @@ def test_filters_and_age_restriction(world: Path) -> None:
     with Warehouse.open(world) as wh:
         plan = plan_list(
             wh,
-            request(target="R", stand_in="T", filters=Filters(regions=("north",), active_days=330)),
+            request(
+                target="R",
+                stand_in="T",
+                filters=Filters(regions=("north",), ordered_within_days=330),
+            ),
             rules=RULESET,
             now=NOW,
         )
@@ -125,7 +129,7 @@ def test_filters_and_age_restriction(world: Path) -> None:
     steps = {s.key: s for s in out.waterfall}
     assert steps["not_adult"].removed == 2  # 13 (age unknown) and 17 (a minor)
     assert steps["outside_region"].removed == 1  # 15 lives in the south
-    assert steps["inactive"].removed == 1  # 16's last order is in January
+    assert steps["no_recent_order"].removed == 1  # 16's last order is in January
     assert not steps["outside_channel"].in_use
 
 
@@ -138,7 +142,7 @@ def test_frequency_cap_reads_the_campaign_log(world: Path) -> None:
                 "customer_id": [3, 4, 10],
                 "contact_group": ["treatment", "treatment", "holdout"],
                 "score": [0.2, 0.3, 0.2],
-                "reason": ["R2", "R1", "R2"],
+                "rule_id": ["R2", "R1", "R2"],
             }
         )
         log.record(earlier, contacts)

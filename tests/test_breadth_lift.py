@@ -99,7 +99,8 @@ def test_breadth_lift_is_the_mantel_haenszel_risk_ratio_of_the_strata(
 
 def test_rules_shows_and_ranks_by_breadth_lift(pristine: Path) -> None:
     result = CliRunner().invoke(
-        main, ["rules", MAT, "-w", str(pristine), "--by", "breadth_lift", "--top", "5", "--json"]
+        main,
+        ["rules", MAT, "-w", str(pristine), "--rank-by", "breadth_lift", "--top", "5", "--json"],
     )
     assert result.exit_code == 0, result.output
     rules = json.loads(result.stdout)["rules"]
@@ -107,10 +108,10 @@ def test_rules_shows_and_ranks_by_breadth_lift(pristine: Path) -> None:
     assert values == sorted(values, reverse=True)
     table = CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--top", "5"])
     assert "b.lift" in table.output and "added value over shopping breadth" in table.output
-    none = CliRunner().invoke(main, ["rules", "-w", str(pristine), "--by", "breadth_lift"])
+    none = CliRunner().invoke(main, ["rules", "-w", str(pristine), "--rank-by", "breadth_lift"])
     assert none.exit_code == 2 and none.output.startswith("Error:")
     orders = CliRunner().invoke(
-        main, ["rules", MAT, "-w", str(pristine), "--basket", "order", "--by", "breadth_lift"]
+        main, ["rules", MAT, "-w", str(pristine), "--basket", "order", "--rank-by", "breadth_lift"]
     )
     assert orders.exit_code == 2 and "--basket customer" in orders.output
 

@@ -60,7 +60,7 @@ def test_the_brief_agrees_with_the_campaign_log(built: tuple[Path, Path, dict]) 
     assert record is not None
     groups = dict(contacts.group_by("contact_group").len().iter_rows())
     assert data["treatment"] == groups["treatment"] and data["holdout"] == groups["holdout"]
-    per_rule = contacts.filter(pl.col("contact_group") == "treatment").group_by("reason").len()
+    per_rule = contacts.filter(pl.col("contact_group") == "treatment").group_by("rule_id").len()
     assert {r["rule_id"]: r["treatment"] for r in data["rules"]} == dict(per_rule.iter_rows())
     assert data["expected_buyers"]["expected"] == record["counts"]["estimate"]["expected"]
     assert data["offer_name"] and data["rules"][0]["in_words"].startswith("bought ")

@@ -23,13 +23,13 @@ def contacts(ids: list[int | None], group: str = "treatment") -> pl.DataFrame:
             "customer_id": ids,
             "contact_group": [group] * len(ids),
             "score": [0.25] * len(ids),
-            "reason": ["R1"] * len(ids),
+            "rule_id": ["R1"] * len(ids),
         },
         schema={
             "customer_id": pl.Int64,
             "contact_group": pl.String,
             "score": pl.Float64,
-            "reason": pl.String,
+            "rule_id": pl.String,
         },
     )
 
@@ -139,3 +139,21 @@ def test_postgres_log_is_transactional(pg_url: str, pg_schema: str) -> None:
         log.record(record(), contacts([7]), replace=True)
         assert log.contacts("spring")["customer_id"].to_list() == [7]
         assert log.recent_contacts(datetime(2026, 1, 1)).to_list() == [7]
+
+
+def test_a_log_with_the_older_column_name_is_read_through_the_mapping(tmp_path: Path) -> None:
+    # Logs written before the contacts' rule column was named rule_id call it `reason`; a mapping
+    # line keeps them usable without touching the table.
+    path = tmp_path / "w.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.execute(
+            "CREATE TABLE campaign_contacts (campaign_id VARCHAR NOT NULL, customer_id BIGINT "
+            "NOT NULL, contact_group VARCHAR NOT NULL, score DOUBLE, reason VARCHAR, "
+            "contacted_at TIMESTAMP NOT NULL)"
+        )
+    mapping = Mapping.from_dict({"campaign_contacts": {"rule_id": "reason"}})
+    with Warehouse.open(path, mapping) as wh:
+        CampaignLog(wh).record(record(), contacts([4, 5]))
+        assert CampaignLog(wh).contacts("spring")["rule_id"].to_list() == ["R1", "R1"]
+    with duckdb.connect(str(path)) as con:
+        assert con.execute("SELECT DISTINCT reason FROM campaign_contacts").fetchall() == [("R1",)]

@@ -331,7 +331,7 @@ def test_the_cap_reads_the_warehouse_log_and_the_state_file(tmp_path: Path) -> N
                         "customer_id": [1, 2],
                         "contact_group": ["treatment"] * 2,
                         "score": [0.4, 0.4],
-                        "reason": ["R1", "R1"],
+                        "rule_id": ["R1", "R1"],
                     }
                 ),
             )

@@ -46,7 +46,7 @@ def test_a_dense_history_stays_within_the_budget() -> None:
         "TARGET",
         min_count=5,
         max_antecedent=3,
-        sort_by="leverage",
+        rank_by="leverage",
         budget=budget,
         keep_top=100,
         notes=notes,
@@ -63,7 +63,7 @@ def test_narrowing_keeps_the_exact_best_rules_by_leverage() -> None:
     the exhaustive search (which counts everything), rule for rule."""
     baskets = long_tail(2_000, 400, seed=4)
     full = target_rules(
-        baskets, "TARGET", min_count=3, max_antecedent=3, sort_by="leverage", budget=None
+        baskets, "TARGET", min_count=3, max_antecedent=3, rank_by="leverage", budget=None
     )
     notes: list[str] = []
     keep = 5
@@ -72,7 +72,7 @@ def test_narrowing_keeps_the_exact_best_rules_by_leverage() -> None:
         "TARGET",
         min_count=3,
         max_antecedent=3,
-        sort_by="leverage",
+        rank_by="leverage",
         budget=10_000,
         keep_top=keep,
         notes=notes,
@@ -107,7 +107,7 @@ def test_a_catalogue_of_90k_items_counts_only_what_can_pass() -> None:
     baskets = Baskets.from_arrays(rows, cols, labels=labels, n_baskets=n_customers)
     notes: list[str] = []
     rules = target_rules(
-        baskets, "TARGET", min_count=5, max_antecedent=3, sort_by="leverage", notes=notes
+        baskets, "TARGET", min_count=5, max_antecedent=3, rank_by="leverage", notes=notes
     )
     plan = plan_search(
         baskets,
@@ -116,7 +116,7 @@ def test_a_catalogue_of_90k_items_counts_only_what_can_pass() -> None:
         _others(baskets),
         5,
         3,
-        sort_by="leverage",
+        rank_by="leverage",
     )
     assert plan.estimated_nodes <= 4_000_000
     assert int(rules["n_tested"][0]) <= 4_000_000 if rules.height else True

@@ -252,7 +252,7 @@ def test_unknown_target_and_bad_options() -> None:
     with pytest.raises(InputError):
         target_rules(b, "a", min_count=1, correction="fdr")
     with pytest.raises(InputError):
-        target_rules(b, "a", min_count=1, sort_by="nonsense")
+        target_rules(b, "a", min_count=1, rank_by="nonsense")
     with pytest.raises(InputError):
         Baskets.from_transactions([["a"]], n_baskets=0)
 

@@ -40,7 +40,7 @@ def state(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
             "customer_id": ids,
             "contact_group": ["holdout" if i % 4 == 0 else "treatment" for i in range(ids.len())],
             "score": 0.5,
-            "reason": "hand-made",
+            "rule_id": "hand-made",
         }
     )
     path = tmp_path_factory.mktemp("state") / "state.duckdb"

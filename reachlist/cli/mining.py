@@ -107,7 +107,7 @@ BREADTH_NOTE = (
 @warehouse_options
 @mining_options
 @click.option(
-    "--by",
+    "--rank-by",
     "measure",
     # Leverage by default: sorting by lift or confidence puts chance extensions of real rules
     # (three items, a few dozen holders) on top; leverage weighs strength and reach together,
@@ -115,7 +115,7 @@ BREADTH_NOTE = (
     default="leverage",
     show_default=True,
     type=click.Choice([*MEASURES, BREADTH_LIFT]),
-    help="Sort rules by this measure (breadth_lift: toward a TARGET, customer baskets).",
+    help="Rank rules by this measure (breadth_lift: toward a TARGET, customer baskets).",
 )
 @click.option(
     "--top",
@@ -152,7 +152,7 @@ def rules(
         raise InputError(
             f"Expected a TARGET to rank by {BREADTH_LIFT}, found none: added value over breadth "
             "is measured toward one target.",
-            hint="pass a target, for example `reachlist rules SG04-104 --by breadth_lift`",
+            hint="pass a target, for example `reachlist rules SG04-104 --rank-by breadth_lift`",
         )
     note = ""
     with delayed_status(out, "Mining rules") as progress:
@@ -177,7 +177,7 @@ def rules(
             title = f"Strongest rules by {measure}, {n:,} {mining['basket']} baskets, {window}"
             correction = str(mining["correction"])
         else:
-            rs = mine_rules(wh, target, sort_by=measure, progress=progress, **mining)  # type: ignore[arg-type]
+            rs = mine_rules(wh, target, rank_by=measure, progress=progress, **mining)  # type: ignore[arg-type]
             frame, window, n, correction = rs.frame, rs.window, rs.n_baskets, rs.correction
             note = rs.note
             title = (

@@ -109,7 +109,7 @@ def backtest_table(bt: Backtest, width: int | None = None) -> Table:
         "naive",
         "breadth",
         "base",
-        "xbreadth",
+        "breadth_lift",
     ]
     if narrow:
         columns = [c for c in columns if c not in ("naive", "base")]
@@ -132,7 +132,7 @@ def backtest_table(bt: Backtest, width: int | None = None) -> Table:
             "naive": f"{r.naive:,.1f}",
             "breadth": _pct(r.estimate.breadth_matched_rate),
             "base": _pct(r.estimate.base_rate),
-            "xbreadth": "-" if av is None else f"x{av.estimate:.2f}",
+            "breadth_lift": "-" if av is None else f"x{av.estimate:.2f}",
         }
         t.add_row(*(cells[c] for c in columns))
     return t
@@ -161,7 +161,7 @@ def render_backtest(bt: Backtest, console: Console, *, chart: bool = True) -> No
         f"pred.: calibrated breadth-matched estimate from {c.estimate.expected.n_backtests} "
         f"earlier backtests; naive: rule confidence taken as take-up (a co-purchase rate, "
         f"shown to compare); observed base rate outside the list {_pct(bt.base_rate)}; "
-        "breadth: breadth-matched rate; base: rate outside the rule's audience; xbreadth: "
+        "breadth: breadth-matched rate; base: rate outside the rule's audience; breadth_lift: "
         "added value over breadth; ! = outside the interval. Rules mined in "
         f"{bt.window}; nothing after the cutoff was read except to observe buyers.",
         soft_wrap=False,

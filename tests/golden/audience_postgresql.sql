@@ -9,7 +9,7 @@
 --
 -- reachlist removes flagged customers in this fixed order and counts each step:
 --   has_target, returned_target, no_consent, suppressed, contacted recently, not_adult,
---   outside_region, outside_channel, inactive
+--   outside_region, outside_channel, no_recent_order
 -- The contact-frequency cap (it reads the campaign log, which may live in another database) and
 -- the holdout (a hash of campaign id and customer id) are applied by reachlist after this query.
 WITH customers AS NOT MATERIALIZED (SELECT "customer_id" AS customer_id, "email" AS email, "marketing_consent" AS marketing_consent, "consent_date" AS consent_date, "birth_date" AS birth_date, "region" AS region FROM "retail"."customers"),
@@ -149,7 +149,7 @@ SELECT
     coalesce(c.not_adult = 1, TRUE)    AS not_adult,
     coalesce(c.outside_region = 1, TRUE) AS outside_region,
     ch.customer_id IS NULL             AS outside_channel,
-    a.customer_id IS NULL              AS inactive,
+    a.customer_id IS NULL              AS no_recent_order,
     c.email
 FROM best AS b
 LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
