@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import polars as pl
 
 from reachlist.errors import EmptyResultError, InputError
-from reachlist.query import Query, template_text
+from reachlist.query import Query, template_parts, template_text
 from reachlist.targets import LEVEL_COLUMN, Level, Target, Window, day_of
 
 if TYPE_CHECKING:
@@ -251,46 +251,8 @@ def adult_born_by(today: date, adult_age: int = 18) -> date:
         return today.replace(year=today.year - adult_age, day=28)
 
 
-# Repeated or optional fragments of sql/audience.sql. reachlist fills them from fixed text and
-# rule numbers; every value (items, ids, scores, dates) is a bound parameter.
-_RULE_BLOCK = """rule_{k} AS (
-    -- customers holding every antecedent item of rule {k}
-    SELECT customer_id
-    FROM held
-    WHERE item IN (:rule_{k}_items)
-    GROUP BY customer_id
-    HAVING count(*) = :rule_{k}_size
-)"""
-_REACHED_LINE = (
-    "    SELECT customer_id, {k} AS rule_rank, :rule_{k}_id AS rule_id, "
-    ":rule_{k}_score AS score FROM rule_{k}"
-)
-_CHANNEL_CTE = """,
-channel_customers AS (
-    -- customers with an order through a chosen channel inside the lookback window
-    SELECT DISTINCT customer_id FROM orders
-    WHERE channel IN (:channels) AND ordered_at >= :since AND ordered_at < :until
-)"""
-_ACTIVE_CTE = """,
-active_customers AS (
-    -- customers with an order (a purchase or a return) recently enough
-    SELECT DISTINCT customer_id FROM orders
-    WHERE ordered_at >= :active_since AND ordered_at < :until
-)"""
-_LIST_SELECT = """SELECT
-    b.customer_id,
-    b.rule_id,
-    b.score,
-    {flags}{contact}
-FROM best AS b
-LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
-LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
-LEFT JOIN returned_target AS r ON r.customer_id = b.customer_id
-LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id{filter_joins}
-ORDER BY b.score DESC, b.customer_id"""
-_REACH_SELECT = """SELECT customer_id, rule_rank
-FROM reached
-ORDER BY rule_rank, customer_id"""
+# Repeated or optional fragments of sql/audience.sql (sql/audience_parts.sql).
+_PARTS = template_parts("audience_parts")
 
 
 def _params(spec: AudienceSpec) -> dict[str, Any]:
@@ -326,18 +288,18 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         outside_region = "coalesce(c.outside_region = 1, TRUE)"
         params["regions"] = list(f.regions)
     if f.channels:
-        ctes += _CHANNEL_CTE
+        ctes += _PARTS["channel_cte"]
         joins += "\nLEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id"
         outside_channel = "ch.customer_id IS NULL"
         params["channels"] = list(f.channels)
     if f.ordered_within_days is not None:
-        ctes += _ACTIVE_CTE
+        ctes += _PARTS["active_cte"]
         joins += "\nLEFT JOIN active_customers AS a ON a.customer_id = b.customer_id"
         no_recent_order = "a.customer_id IS NULL"
         params["active_since"] = day_of(spec.lookback.until - timedelta(days=f.ordered_within_days))
     if per_rule:
         # which rules reach whom needs neither customer facts nor filters
-        ctes, final = "", _REACH_SELECT
+        ctes, final = "", _PARTS["reach_select"]
     else:
         flags = {
             "has_target": "t.customer_id IS NOT NULL",
@@ -349,7 +311,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
             "outside_channel": outside_channel,
             "no_recent_order": no_recent_order,
         }
-        final = _LIST_SELECT.format(
+        final = _PARTS["list_select"].format(
             flags=",\n    ".join(f"{expr:<34} AS {name}" for name, expr in flags.items()),
             contact=",\n    c.email" if spec.contact else "",
             filter_joins=joins,
@@ -357,8 +319,10 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     text = template_text("audience").format(
         level=LEVEL_COLUMN[spec.level],
         target_level=LEVEL_COLUMN[spec.target.level],
-        rule_blocks=",\n".join(_RULE_BLOCK.format(k=r.rank) for r in spec.rules),
-        reached_union="\n    UNION ALL\n".join(_REACHED_LINE.format(k=r.rank) for r in spec.rules),
+        rule_blocks=",\n".join(_PARTS["rule_block"].format(k=r.rank) for r in spec.rules),
+        reached_union="\n    UNION ALL\n".join(
+            _PARTS["reached_line"].format(k=r.rank) for r in spec.rules
+        ),
         not_adult_row=not_adult_row,
         outside_region_row=outside_region_row,
         filter_ctes=ctes,

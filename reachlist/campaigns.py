@@ -33,29 +33,15 @@ from typing import Any, Self
 
 import polars as pl
 
-from reachlist import ids
+from reachlist import ids, statements
 from reachlist.errors import InputError, ReachlistError, StateError, WarehouseError
-from reachlist.query import Query, quote_ident, quote_qualified
-from reachlist.schema import CONTRACT, LOG_TABLES, Kind, Mapping
+from reachlist.query import Query
+from reachlist.schema import LOG_TABLES
 from reachlist.warehouse import Warehouse
 
-__all__ = ["GROUPS", "KEYS", "CampaignLog", "CampaignRecord", "check_campaign_id", "log_table_ddl"]
+__all__ = ["GROUPS", "CampaignLog", "CampaignRecord", "check_campaign_id"]
 
 GROUPS = ("treatment", "holdout")
-_SQL_TYPE: dict[Kind, str] = {
-    "id": "BIGINT",  # VARCHAR when the warehouse's customer ids are text (see log_table_ddl)
-    "integer": "BIGINT",
-    "text": "VARCHAR",
-    "boolean": "BOOLEAN",
-    "date": "DATE",
-    "timestamp": "TIMESTAMP",
-    "number": "DOUBLE PRECISION",
-}
-KEYS: dict[str, tuple[str, ...]] = {
-    "campaigns": ("campaign_id",),
-    "campaign_contacts": ("campaign_id", "customer_id"),
-}
-"""The unique key of each log table: one record per campaign, one row per customer in it."""
 _ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._:-]{0,79}")
 
 
@@ -67,20 +53,6 @@ def check_campaign_id(campaign_id: str) -> str:
             hint="pass --campaign spring-mats-2026",
         )
     return campaign_id
-
-
-def log_table_ddl(mapping: Mapping, table: str, *, text_ids: bool = False) -> str:
-    """CREATE TABLE for one log table, under the names the mapping gives it. Customer ids are
-    BIGINT, or VARCHAR when the warehouse keeps them as text."""
-    tmap = mapping.table(table)
-    types = {**_SQL_TYPE, "id": "VARCHAR" if text_ids else "BIGINT"}
-    cols = [
-        f"{quote_ident(tmap.column(c.name))} {types[c.kind]}" + ("" if c.nullable else " NOT NULL")
-        for c in CONTRACT[table].columns
-    ]
-    key = ", ".join(quote_ident(tmap.column(c)) for c in KEYS[table])
-    body = ",\n    ".join([*cols, f"PRIMARY KEY ({key})"])
-    return f"CREATE TABLE IF NOT EXISTS {quote_qualified(tmap.physical)} (\n    {body}\n)"
 
 
 @dataclass(frozen=True)
@@ -199,17 +171,7 @@ class CampaignLog:
         for table in LOG_TABLES:
             if self.db.physical_columns(table) is None:
                 continue
-            parts = self.db.mapping.table(table).physical
-            schema = (
-                "table_schema = current_schema()" if len(parts) == 1 else ("table_schema = :schema")
-            )
-            q = Query(
-                "SELECT count(*) AS n FROM information_schema.table_constraints\n"
-                f"WHERE table_name = :name AND {schema}\n"
-                "  AND constraint_type IN ('PRIMARY KEY', 'UNIQUE')",
-                {"name": parts[-1], **({"schema": parts[-2]} if len(parts) > 1 else {})},
-                label="log table keys",
-            )
+            q = statements.table_keys(self.db.mapping.table(table).physical)
             if not self.db.scalar(q):
                 out.append(self.db.mapping.table(table).physical_name)
         return out
@@ -217,11 +179,7 @@ class CampaignLog:
     def has_campaign(self, campaign_id: str) -> bool:
         if self.db.physical_columns("campaigns") is None:
             return False
-        q = Query(
-            "SELECT count(*) AS n FROM campaigns WHERE campaign_id = :campaign_id",
-            {"campaign_id": campaign_id},
-            label="campaign exists",
-        )
+        q = Query.from_template("campaign_exists", {"campaign_id": campaign_id})
         return bool(self.db.scalar(q))
 
     def refuse_existing(self, campaign_id: str, *, replace: bool) -> None:
@@ -288,12 +246,9 @@ class CampaignLog:
     def _recent(self, since: datetime, other_than: str | None) -> pl.Series:
         if self.db.physical_columns("campaign_contacts") is None:
             return pl.Series("customer_id", [], dtype=pl.Int64)
-        q = Query(
-            "SELECT DISTINCT customer_id FROM campaign_contacts\n"
-            "WHERE contact_group = :treatment AND contacted_at >= :since\n"
-            "  AND campaign_id <> :campaign_id",
+        q = Query.from_template(
+            "recent_contacts",
             {"treatment": "treatment", "since": since, "campaign_id": other_than or ""},
-            label="recent contacts",
         )
         return ids.normalise(self.db.fetch(q)["customer_id"])
 
@@ -337,7 +292,9 @@ class CampaignLog:
                 for table in missing:
                     try:
                         self.db.run_statement(
-                            log_table_ddl(self.db.mapping, table, text_ids=self.text_ids)
+                            statements.create_log_table(
+                                self.db.mapping, table, text_ids=self.text_ids
+                            )
                         )
                     except WarehouseError as exc:
                         if _is_key_clash(exc.message):  # another build created it just now
@@ -369,15 +326,7 @@ class CampaignLog:
             raise self._write_error("campaigns", exc, record.campaign_id) from None
 
     def _delete(self, table: str, campaign_id: str) -> None:
-        tmap = self.db.mapping.table(table)
-        self.db.execute(
-            Query(
-                f"DELETE FROM {quote_qualified(tmap.physical)} "
-                f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
-                {"campaign_id": campaign_id},
-                label=f"replace {table}",
-            )
-        )
+        self.db.execute(statements.delete_campaign(self.db.mapping, table, campaign_id))
 
     def set_send_date(self, campaign_id: str, sent_at: datetime) -> int:
         """Record the day a logged campaign is (or was) sent: every contact's ``contacted_at``
@@ -394,25 +343,18 @@ class CampaignLog:
         parameters = dict(record["parameters"])
         parameters["send_date"] = sent_at.date().isoformat()
         moved = self.contacts(campaign_id).height
-        statements = []
+        changes = []
         for table, column, value in (
             ("campaign_contacts", "contacted_at", sent_at),
             ("campaigns", "parameters", json.dumps(parameters, default=str, sort_keys=True)),
         ):
-            tmap = self.db.mapping.table(table)
-            statements.append(
-                Query(
-                    f"UPDATE {quote_qualified(tmap.physical)} "
-                    f"SET {quote_ident(tmap.column(column))} = :value "
-                    f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
-                    {"value": value, "campaign_id": campaign_id},
-                    label=f"send date in {table}",
-                )
+            changes.append(
+                statements.set_campaign_value(self.db.mapping, table, column, value, campaign_id)
             )
         try:
             with self.db.transaction():
-                for statement in statements:
-                    self.db.execute(statement)
+                for change in changes:
+                    self.db.execute(change)
         except ReachlistError:
             raise
         except Exception as exc:
@@ -445,14 +387,7 @@ class CampaignLog:
         """The campaign's row with its JSON fields decoded, or None."""
         if self.db.physical_columns("campaigns") is None:
             return None
-        cols = ", ".join(CONTRACT["campaigns"].column_names)
-        df = self.db.fetch(
-            Query(
-                f"SELECT {cols} FROM campaigns WHERE campaign_id = :campaign_id",
-                {"campaign_id": campaign_id},
-                label="campaign",
-            )
-        )
+        df = self.db.fetch(Query.from_template("logged_campaign", {"campaign_id": campaign_id}))
         if df.height == 0:
             return None
         row = df.row(0, named=True)
@@ -461,15 +396,7 @@ class CampaignLog:
         return row
 
     def contacts(self, campaign_id: str) -> pl.DataFrame:
-        cols = ", ".join(CONTRACT["campaign_contacts"].column_names)
-        return self.db.fetch(
-            Query(
-                f"SELECT {cols} FROM campaign_contacts WHERE campaign_id = :campaign_id "
-                "ORDER BY customer_id",
-                {"campaign_id": campaign_id},
-                label="campaign contacts",
-            )
-        )
+        return self.db.fetch(Query.from_template("logged_contacts", {"campaign_id": campaign_id}))
 
 
 def _is_key_clash(text: str) -> bool:

@@ -150,7 +150,7 @@ def find_items(
             )
         )
     if not parts:
-        total = wh.scalar(Query("SELECT count(*) AS n FROM products", label="products"))
+        total = wh.scalar(Query.from_template("product_count"))
         raise EmptyResultError(
             f"Expected products, categories or departments whose code or name contains "
             f"{cleaned!r}, found none among {int(total or 0):,} products.",

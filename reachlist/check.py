@@ -18,8 +18,9 @@ from dataclasses import dataclass, field
 from datetime import UTC, date, datetime, timedelta
 from typing import Any, Literal
 
+from reachlist import statements
 from reachlist.errors import ContractError, ReachlistError
-from reachlist.query import Query, quote_qualified
+from reachlist.query import Query
 from reachlist.schema import CONTRACT, LOG_TABLES, SOURCE_TABLES, Kind
 from reachlist.types import INCOMPATIBLE, cast_for
 from reachlist.warehouse import Warehouse
@@ -150,11 +151,8 @@ def _source_problem(
 ) -> Problem | None:
     """A mapped expression or constant must run against its table (checked with LIMIT 0)."""
     tmap = wh.typed_mapping.table(table)
-    from reachlist.query import column_sql
-
-    expr = column_sql(tmap, column)
     try:
-        wh.fetch_raw(f"SELECT {expr} AS probe FROM {quote_qualified(tmap.physical)} LIMIT 0")
+        wh.fetch_raw(statements.column_probe(tmap, column))
     except ReachlistError as exc:
         return Problem(
             "expression fails",

@@ -28,6 +28,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
+from reachlist import statements
 from reachlist.errors import InputError
 from reachlist.query import HOLDINGS, Query
 from reachlist.warehouse import Warehouse
@@ -109,7 +110,7 @@ def current_mark(wh: Warehouse) -> Watermark:
     last = row["last_order"]
     saved, wh.holdings_table = wh.holdings_table, None  # digest the derivation, not the file
     try:
-        derived = wh.render(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"))
+        derived = wh.render(Query.from_template("holdings_rows"))
     finally:
         wh.holdings_table = saved
     return Watermark(
@@ -127,7 +128,7 @@ def _attached_mark(wh: Warehouse, path: Path) -> Watermark | None:
     if not path.exists() or not wh.attach_read_only(path, ALIAS):
         return None
     try:
-        row = wh.fetch(Query(f"SELECT * FROM {ALIAS}.main.history_mark", label="holdings mark"))
+        row = wh.fetch(statements.attached_mark(ALIAS))
         return Watermark(**row.row(0, named=True))
     except Exception:  # an older layout or a foreign file: treat as absent
         wh.detach(ALIAS)
@@ -153,20 +154,13 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
     tmp.unlink(missing_ok=True)
     try:
         say(f"step 2 of 3: netting {mark.order_lines:,} order lines by customer, SKU and day")
-        reader = wh.stream_arrow(Query(f"SELECT * FROM {HOLDINGS}", label="holdings"), BATCH_ROWS)
+        reader = wh.stream_arrow(Query.from_template("holdings_rows"), BATCH_ROWS)
         with Warehouse.open(tmp, create=True) as side:
-            side.create_from_arrow("holdings", reader, "SELECT * FROM src ORDER BY order_day")
+            side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)
             say("step 3 of 3: writing the watermark")
-            side.run_statement(
-                "CREATE TABLE history_mark (order_lines BIGINT, quantity_sum DOUBLE, "
-                "orders BIGINT, last_order VARCHAR, source VARCHAR, format INTEGER)"
-            )
-            side.executemany(
-                "INSERT INTO history_mark VALUES (:order_lines, :quantity_sum, :orders, "
-                ":last_order, :source, :format)",
-                [mark.__dict__],
-            )
-            rows = int(side.fetch_raw("SELECT count(*) AS n FROM holdings")["n"][0])
+            side.run_statement(statements.CREATE_MARK)
+            side.executemany(statements.INSERT_MARK, [mark.__dict__])
+            rows = int(side.fetch_raw(statements.row_count(HOLDINGS))["n"][0])
         os.replace(tmp, path)
     finally:
         with contextlib.suppress(OSError):

@@ -554,10 +554,8 @@ def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tu
         return values
     table, column, option = _FILTER_COLUMNS[kind]
     present = wh.fetch(
-        Query(
-            f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IN (:values)",
-            {"values": list(values)},
-            label=f"{kind} values",
+        Query.from_template(
+            "filter_values_present", {"values": list(values)}, table=table, column=column
         )
     )
     found = {str(v) for v in present["value"].to_list()}
@@ -567,10 +565,8 @@ def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tu
     known = [
         str(v)
         for v in wh.fetch(
-            Query(
-                f"SELECT DISTINCT {column} AS value FROM {table} WHERE {column} IS NOT NULL "
-                f"ORDER BY 1 LIMIT {MAX_SUGGESTION_VALUES}",
-                label=f"known {kind} values",
+            Query.from_template(
+                "filter_values_known", {"most": MAX_SUGGESTION_VALUES}, table=table, column=column
             )
         )["value"].to_list()
     ]
@@ -671,14 +667,7 @@ def sensitive_items(
         wanted.setdefault(level, set()).update(rule.antecedent)
     for lvl, items in wanted.items():
         col = LEVEL_COLUMN[lvl]
-        df = wh.fetch(
-            Query(
-                f"SELECT DISTINCT {col} AS item FROM products\n"
-                f"WHERE sensitive AND {col} IN (:items)\nORDER BY 1",
-                {"items": sorted(items)},
-                label="sensitive items",
-            )
-        )
+        df = wh.fetch(Query.from_template("sensitive_items", {"items": sorted(items)}, level=col))
         prefix = "" if lvl == "sku" else f"{lvl}:"
         found += [f"{prefix}{v}" for v in df["item"].to_list()]
     return tuple(dict.fromkeys(found))

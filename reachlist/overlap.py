@@ -107,13 +107,7 @@ def promotion_overlap(
     window = mining_window(wh, since, until, days=days)
     held = held_items_query(window, level=level, basket=kind)
     n_baskets = int(
-        wh.scalar(
-            Query(
-                f"SELECT count(DISTINCT basket) AS n FROM (\n{held.sql.strip()}\n) AS held",
-                dict(held.params),
-                label="overlap baskets",
-            )
-        )
+        wh.scalar(Query.from_template("basket_count", dict(held.params), held=held.sql.strip()))
         or 0
     )
     if n_baskets == 0:
@@ -121,11 +115,7 @@ def promotion_overlap(
             f"Expected baskets in {window}, found none.", hint="widen the window with --since"
         )
     pairs = wh.fetch(
-        Query(
-            f"SELECT basket, item FROM (\n{held.sql.strip()}\n) AS held\nWHERE item IN (:items)",
-            {**held.params, "items": names},
-            label="overlap items",
-        )
+        Query.from_template("basket_items", {**held.params, "items": names}, held=held.sql.strip())
     )
     counts = _set_counts(pairs, names)
     sets = _test_sets(names, counts, n_baskets, alpha)

@@ -86,6 +86,19 @@ def template_text(name: str) -> str:
         raise InputError(f"SQL template {name!r} is missing from the installation.") from None
 
 
+def template_parts(name: str) -> dict[str, str]:
+    """The parts of ``sql/<name>.sql``, each the text after a ``-- part: NAME`` line up to the
+    next one (trailing blank lines dropped): repeated or optional fragments of one query."""
+    parts: dict[str, list[str]] = {}
+    current: list[str] | None = None
+    for line in template_text(name).split("\n"):
+        if line.startswith("-- part: "):
+            current = parts.setdefault(line.removeprefix("-- part: ").strip(), [])
+        elif current is not None:
+            current.append(line)
+    return {k: "\n".join(v).rstrip("\n") for k, v in parts.items()}
+
+
 def _expand_lists(sql: str, params: dict[str, Any]) -> tuple[str, dict[str, Any]]:
     out: dict[str, Any] = {}
     for key, value in params.items():

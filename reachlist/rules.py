@@ -77,9 +77,7 @@ def _related_items(wh: Warehouse, target: Target, level: Level) -> set[str]:
     """Items at ``level`` that contain the target or lie inside it: holding one says nothing new."""
     if target.level == level:
         return set()
-    hierarchy = wh.fetch(
-        Query("SELECT DISTINCT sku, category, department FROM products", label="hierarchy")
-    )
+    hierarchy = wh.fetch(Query.from_template("item_hierarchy"))
     inside = hierarchy.filter(pl.col(target.level) == target.name)
     return {str(v) for v in inside[level].unique().to_list()}
 
@@ -238,7 +236,7 @@ def basket_breadth(
         return out
     labels = [str(x) for x in baskets.labels.tolist()]
     if level == "sku":
-        cats = wh.fetch(Query("SELECT sku, category FROM products", label="sku categories"))
+        cats = wh.fetch(Query.from_template("item_hierarchy"))
         category = dict(zip(cats["sku"].to_list(), cats["category"].to_list(), strict=True))
         names = [None if x == target_label_ else category.get(x) for x in labels]
     else:

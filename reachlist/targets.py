@@ -73,7 +73,7 @@ def check_basket(kind: str) -> BasketKind:
 
 def item_names(wh: Warehouse, level: Level) -> list[str]:
     col = LEVEL_COLUMN[level]
-    df = wh.fetch(Query(f"SELECT DISTINCT {col} AS item FROM products ORDER BY 1", label="items"))
+    df = wh.fetch(Query.from_template("level_items", level=col))
     return [str(v) for v in df["item"].to_list() if v is not None]
 
 
@@ -87,7 +87,7 @@ def resolve_target(wh: Warehouse, target: Target) -> Target:
         return Target(target.level, lowered[target.name.lower()])
     pool = known
     if target.level == "sku":
-        names = wh.fetch(Query("SELECT sku, name FROM products", label="product names"))
+        names = wh.fetch(Query.from_template("all_product_names"))
         by_name = {str(n).lower(): str(s) for s, n in names.iter_rows()}
         if target.name.lower() in by_name:
             return Target("sku", by_name[target.name.lower()])
@@ -146,7 +146,7 @@ def _as_day(value: date | datetime | str, what: str) -> datetime:
 
 def _order_time(wh: Warehouse, aggregate: str) -> datetime:
     """The first (min) or last (max) order time; one clear error when there are no orders."""
-    value = wh.scalar(Query(f"SELECT {aggregate}(ordered_at) AS t FROM orders", label="order time"))
+    value = wh.scalar(Query.from_template("order_time_bound", aggregate=aggregate))
     if value is None:
         raise InputError(
             "Expected order history, found no orders in the warehouse.",

@@ -18,6 +18,7 @@ from typing import Any
 
 import polars as pl
 
+from reachlist import statements
 from reachlist.errors import ContractError, InputError, WarehouseError
 from reachlist.query import (
     DUCKDB,
@@ -25,9 +26,6 @@ from reachlist.query import (
     Query,
     Rendered,
     dialect_named,
-    literal,
-    quote_ident,
-    quote_qualified,
     render,
 )
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
@@ -102,9 +100,9 @@ class Warehouse:
             ) from None
         budget = _duckdb_budget()
         # SET, not connect config: other connections to the same file may exist
-        conn.execute(f"SET temp_directory = {literal(budget['temp_directory'])}")
+        conn.execute(statements.set_option("temp_directory", budget["temp_directory"]))
         try:
-            conn.execute(f"SET memory_limit = {literal(budget['memory_limit'])}")
+            conn.execute(statements.set_option("memory_limit", budget["memory_limit"]))
         except duckdb.Error as exc:
             conn.close()
             raise InputError(
@@ -306,13 +304,13 @@ class Warehouse:
     def insert_arrow(self, table: str, data: Any, select_sql: str) -> None:
         """``INSERT INTO table <select_sql>`` where ``select_sql`` reads the Arrow table ``data``
         as ``src`` (DuckDB only: how the sample warehouse is written)."""
-        self._from_arrow(f"INSERT INTO {quote_ident(table)} {select_sql}", table, data)
+        self._from_arrow(statements.insert_select(table, select_sql), table, data)
 
     def create_from_arrow(self, table: str, data: Any, select_sql: str) -> None:
         """``CREATE TABLE table AS <select_sql>`` where ``select_sql`` reads the Arrow table or
         record-batch reader ``data`` as ``src`` (DuckDB only: how reachlist writes the holdings
         file beside a warehouse). The table takes the types the data has."""
-        self._from_arrow(f"CREATE TABLE {quote_ident(table)} AS {select_sql}", table, data)
+        self._from_arrow(statements.create_as(table, select_sql), table, data)
 
     def _from_arrow(self, statement: str, table: str, data: Any) -> None:
         if not self.is_duckdb:
@@ -354,7 +352,7 @@ class Warehouse:
             return False
         self.detach(alias)
         try:
-            self._conn.execute(f"ATTACH {literal(str(path))} AS {quote_ident(alias)} (READ_ONLY)")
+            self._conn.execute(statements.attach_read_only(str(path), alias))
         except Exception:
             return False
         return True
@@ -362,7 +360,7 @@ class Warehouse:
     def detach(self, alias: str) -> None:
         if self.is_duckdb:
             with contextlib.suppress(Exception):
-                self._conn.execute(f"DETACH DATABASE IF EXISTS {quote_ident(alias)}")
+                self._conn.execute(statements.detach(alias))
 
     def _rollback(self) -> None:
         if not self.is_duckdb:
@@ -374,46 +372,29 @@ class Warehouse:
 
         The frame's columns carry logical names; they are mapped and quoted here."""
         tmap = self.mapping.table(table)
-        target = quote_qualified(tmap.physical)
-        cols = ", ".join(quote_ident(tmap.column(c)) for c in frame.columns)
+        columns = [tmap.column(c) for c in frame.columns]
         if self.is_duckdb:
             self._conn.register("_reachlist_frame", frame.to_arrow())
             try:
-                src = ", ".join(quote_ident(c) for c in frame.columns)
-                self._conn.execute(
-                    f"INSERT INTO {target} ({cols}) SELECT {src} FROM _reachlist_frame"
-                )
+                self._conn.execute(statements.append_from(tmap.physical, columns, frame.columns))
             finally:
                 self._conn.unregister("_reachlist_frame")
         elif self.dialect.name == "postgresql" and frame.height > 1000:
             # COPY is an order of magnitude faster than INSERT for bulk loads.
             cursor = self._conn.connection.driver_connection.cursor()
-            with cursor.copy(f"COPY {target} ({cols}) FROM STDIN") as copy:
+            with cursor.copy(statements.copy_in(tmap.physical, columns)) as copy:
                 for row in frame.iter_rows():
                     copy.write_row(row)
         else:
             import sqlalchemy as sa
 
-            marks = ", ".join(f":{c}" for c in frame.columns)
-            stmt = sa.text(f"INSERT INTO {target} ({cols}) VALUES ({marks})")
+            stmt = sa.text(statements.append_values(tmap.physical, columns, frame.columns))
             self._conn.execute(stmt, frame.to_dicts())
 
     # -- the contract ----------------------------------------------------------------------------
     def physical_columns(self, logical_table: str) -> list[PhysicalColumn] | None:
         """Columns of the table a logical table maps to, or None when the table is missing."""
-        parts = self.mapping.table(logical_table).physical
-        if len(parts) == 1:
-            where = "table_name = :t AND table_schema = current_schema()"
-            params: dict[str, Any] = {"t": parts[0]}
-        else:
-            where = "table_name = :t AND table_schema = :s"
-            params = {"t": parts[-1], "s": parts[-2]}
-        q = Query(
-            "SELECT column_name, data_type FROM information_schema.columns "
-            f"WHERE {where} ORDER BY ordinal_position",
-            params,
-            label="information_schema",
-        )
+        q = statements.table_columns(self.mapping.table(logical_table).physical)
         # information_schema is read directly: no logical table names are involved.
         r = Rendered(*_raw(q, self.dialect))
         try:

@@ -225,7 +225,7 @@ def test_concurrent_replace_builds_on_postgres_log_a_campaign_once(
     wins and the other is refused; without them (an old log: "keyless") both succeed and the
     campaign is logged twice, which is why the keys exist."""
     keys = log != "keyless"
-    from reachlist.campaigns import log_table_ddl
+    from reachlist.statements import create_log_table
     from reachlist.transfer import copy_warehouse
 
     copy_warehouse(str(world), pg_url, schema=pg_schema)
@@ -235,7 +235,7 @@ def test_concurrent_replace_builds_on_postgres_log_a_campaign_once(
         if log != "fresh":
             with pg.transaction():
                 for t in ("campaigns", "campaign_contacts"):
-                    ddl = log_table_ddl(pg.mapping, t)
+                    ddl = create_log_table(pg.mapping, t)
                     if not keys:  # what an earlier reachlist created: same columns, no keys
                         ddl = ddl.split(",\n    PRIMARY KEY")[0] + "\n)"
                     pg.run_statement(ddl)

@@ -9,9 +9,10 @@ import duckdb
 import polars as pl
 import pytest
 
-from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id, log_table_ddl
+from reachlist.campaigns import CampaignLog, CampaignRecord, check_campaign_id
 from reachlist.errors import InputError, StateError
 from reachlist.schema import Mapping
+from reachlist.statements import create_log_table
 from reachlist.warehouse import Warehouse
 
 WHEN = datetime(2026, 3, 1, 9, 30)
@@ -110,10 +111,10 @@ def test_mapped_log_tables_use_the_warehouse_names() -> None:
     mapping = Mapping.from_dict(
         {"campaigns": {"table": "crm.rl_campaign", "campaign_id": "code"}, "schema": "mart"}
     )
-    ddl = log_table_ddl(mapping, "campaigns")
+    ddl = create_log_table(mapping, "campaigns")
     assert ddl.startswith('CREATE TABLE IF NOT EXISTS "crm"."rl_campaign"')
     assert '"code" VARCHAR NOT NULL' in ddl
-    assert '"mart"."campaign_contacts"' in log_table_ddl(mapping, "campaign_contacts")
+    assert '"mart"."campaign_contacts"' in create_log_table(mapping, "campaign_contacts")
 
 
 @pytest.mark.parametrize("bad", ["", "a b", "x'; DROP TABLE campaigns; --", "-lead", "a" * 81])

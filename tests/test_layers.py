@@ -68,3 +68,37 @@ def test_module_imports_only_what_its_layer_may(module: str) -> None:
     if layer != "engine":
         wrong += [i for i in imports if _top(i) in DATABASE_DRIVERS]
     assert not wrong, f"{module} ({layer} layer) imports {sorted(set(wrong))}"
+
+
+# Where SQL text may be written: templates in sql/, and the modules that build statements from
+# parts (query rendering, the audience query's parts, statements over physical names).
+SQL_BUILDERS = ("reachlist.query", "reachlist.audience", "reachlist.statements")
+_SQL_START = ("SELECT ", "WITH ", "INSERT ", "UPDATE ", "DELETE ", "CREATE ", "DROP ", "ALTER ")
+
+
+def _sql_literals(path: Path) -> list[str]:
+    """String constants (and f-string heads) of a module that begin like a SQL statement (the
+    project writes SQL keywords in capitals)."""
+    found = []
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        text = None
+        if isinstance(node, ast.Constant) and isinstance(node.value, str):
+            text = node.value
+        elif isinstance(node, ast.JoinedStr) and node.values:
+            head = node.values[0]
+            if isinstance(head, ast.Constant) and isinstance(head.value, str):
+                text = head.value
+        if text and text.lstrip().startswith(_SQL_START) and "\n>>>" not in text:
+            found.append(f"line {node.lineno}: {text.strip()[:40]!r}")
+    return found
+
+
+@pytest.mark.parametrize("module", sorted(m for m in MODULES if m not in SQL_BUILDERS))
+def test_sql_lives_in_templates_or_the_statement_builders(module: str) -> None:
+    path = PACKAGE.parent / (module.replace(".", "/") + ".py")
+    if not path.exists():
+        path = PACKAGE.parent / module.replace(".", "/") / "__init__.py"
+    found = _sql_literals(path)
+    assert not found, (
+        f"{module} writes SQL inline (move it to sql/ or reachlist.statements): {found}"
+    )

@@ -1,0 +1,223 @@
+"""Statements over the warehouse's own names: the tables reachlist creates, writes and inspects.
+
+Reads over the logical contract are templates in ``sql/``. What is left are statements whose
+table and column names come from the mapping, from a data frame or from the engine's catalogue:
+creating and writing the campaign log, copying tables, the catalogue look-ups, attaching the
+holdings file. They are built here and nowhere else; ``reachlist.warehouse`` runs them.
+Identifiers go through :func:`~reachlist.query.quote_ident`, values are bound or, where an engine
+takes no parameter there (ATTACH, SET), written with :func:`literal`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+import polars as pl
+
+from reachlist.query import Query, column_sql, literal, quote_ident, quote_qualified
+from reachlist.schema import CONTRACT, Mapping, TableMap
+
+# -- the campaign log ------------------------------------------------------------------------
+LOG_TYPES = {
+    "text": "VARCHAR",
+    "timestamp": "TIMESTAMP",
+    "number": "DOUBLE PRECISION",
+    "integer": "BIGINT",
+    "date": "DATE",
+    "boolean": "BOOLEAN",
+}
+"""How each kind of log column is created (customer ids: see create_log_table)."""
+LOG_KEYS: dict[str, tuple[str, ...]] = {
+    "campaigns": ("campaign_id",),
+    "campaign_contacts": ("campaign_id", "customer_id"),
+}
+"""The unique key of each log table: one record per campaign, one row per customer in it."""
+
+
+def create_log_table(mapping: Mapping, table: str, *, text_ids: bool = False) -> str:
+    """CREATE TABLE for one log table, under the names the mapping gives it. Customer ids are
+    BIGINT, or VARCHAR when the warehouse keeps them as text."""
+    tmap = mapping.table(table)
+    types = {**LOG_TYPES, "id": "VARCHAR" if text_ids else "BIGINT"}
+    cols = [
+        f"{quote_ident(tmap.column(c.name))} {types[c.kind]}" + ("" if c.nullable else " NOT NULL")
+        for c in CONTRACT[table].columns
+    ]
+    key = ", ".join(quote_ident(tmap.column(c)) for c in LOG_KEYS[table])
+    body = ",\n    ".join([*cols, f"PRIMARY KEY ({key})"])
+    return f"CREATE TABLE IF NOT EXISTS {quote_qualified(tmap.physical)} (\n    {body}\n)"
+
+
+def delete_campaign(mapping: Mapping, table: str, campaign_id: str) -> Query:
+    """Remove one campaign's rows from a log table (before it is logged again, replaced)."""
+    tmap = mapping.table(table)
+    return Query(
+        f"DELETE FROM {quote_qualified(tmap.physical)} "
+        f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
+        {"campaign_id": campaign_id},
+        label=f"replace {table}",
+    )
+
+
+def set_campaign_value(
+    mapping: Mapping, table: str, column: str, value: Any, campaign_id: str
+) -> Query:
+    """Set one column of one campaign's rows in a log table (the send date)."""
+    tmap = mapping.table(table)
+    return Query(
+        f"UPDATE {quote_qualified(tmap.physical)} "
+        f"SET {quote_ident(tmap.column(column))} = :value "
+        f"WHERE {quote_ident(tmap.column('campaign_id'))} = :campaign_id",
+        {"value": value, "campaign_id": campaign_id},
+        label=f"{column} in {table}",
+    )
+
+
+# -- the engine's catalogue ------------------------------------------------------------------
+def _where_table(parts: Sequence[str]) -> tuple[str, dict[str, Any]]:
+    if len(parts) == 1:
+        return "table_name = :t AND table_schema = current_schema()", {"t": parts[0]}
+    return "table_name = :t AND table_schema = :s", {"t": parts[-1], "s": parts[-2]}
+
+
+def table_columns(parts: Sequence[str]) -> Query:
+    """The columns and types of one physical table, from information_schema."""
+    where, params = _where_table(parts)
+    return Query(
+        "SELECT column_name, data_type FROM information_schema.columns "
+        f"WHERE {where} ORDER BY ordinal_position",
+        params,
+        label="information_schema",
+    )
+
+
+def table_keys(parts: Sequence[str]) -> Query:
+    """How many primary or unique keys one physical table has."""
+    where, params = _where_table(parts)
+    return Query(
+        "SELECT count(*) AS n FROM information_schema.table_constraints\n"
+        f"WHERE {where}\n  AND constraint_type IN ('PRIMARY KEY', 'UNIQUE')",
+        params,
+        label="log table keys",
+    )
+
+
+def column_probe(tmap: TableMap, column: str) -> str:
+    """Select a mapped column's expression from its table without reading a row: does it run?"""
+    return (
+        f"SELECT {column_sql(tmap, column)} AS probe FROM {quote_qualified(tmap.physical)} LIMIT 0"
+    )
+
+
+# -- copying tables --------------------------------------------------------------------------
+_FRAME_TYPES: dict[Any, str] = {
+    pl.Int8: "SMALLINT",
+    pl.Int16: "SMALLINT",
+    pl.Int32: "INTEGER",
+    pl.Int64: "BIGINT",
+    pl.UInt8: "SMALLINT",
+    pl.UInt16: "INTEGER",
+    pl.UInt32: "BIGINT",
+    pl.UInt64: "BIGINT",
+    pl.Float32: "REAL",
+    pl.Float64: "DOUBLE PRECISION",
+    pl.Boolean: "BOOLEAN",
+    pl.Date: "DATE",
+    pl.String: "VARCHAR",
+}
+
+
+def frame_sql_type(dtype: pl.DataType) -> str:
+    """The SQL type a column of a data frame is created with in another warehouse."""
+    if isinstance(dtype, pl.Decimal):
+        return f"NUMERIC({dtype.precision or 18}, {dtype.scale or 0})"
+    if isinstance(dtype, pl.Datetime):
+        return "TIMESTAMP"
+    for k, v in _FRAME_TYPES.items():
+        if dtype == k:
+            return v
+    return "VARCHAR"
+
+
+def create_table(physical: Sequence[str], frame: pl.DataFrame) -> str:
+    cols = ",\n    ".join(f"{quote_ident(c)} {frame_sql_type(t)}" for c, t in frame.schema.items())
+    return f"CREATE TABLE {quote_qualified(physical)} (\n    {cols}\n)"
+
+
+def drop_table(physical: Sequence[str]) -> str:
+    return f"DROP TABLE IF EXISTS {quote_qualified(physical)}"
+
+
+def create_schema(schema: str) -> str:
+    return f"CREATE SCHEMA IF NOT EXISTS {quote_ident(schema)}"
+
+
+def contract_rows(table: str) -> Query:
+    """Every row of a logical table, its contract columns in order (for copying)."""
+    return Query(f"SELECT {', '.join(CONTRACT[table].column_names)} FROM {table}", label=table)
+
+
+def append_from(physical: Sequence[str], columns: Sequence[str], names: Sequence[str]) -> str:
+    """Append the registered relation ``_reachlist_frame`` (columns ``names``) into ``columns``."""
+    cols = ", ".join(quote_ident(c) for c in columns)
+    src = ", ".join(quote_ident(c) for c in names)
+    return f"INSERT INTO {quote_qualified(physical)} ({cols}) SELECT {src} FROM _reachlist_frame"
+
+
+def append_values(physical: Sequence[str], columns: Sequence[str], names: Sequence[str]) -> str:
+    """Append one row of bound values ``:name`` per ``names`` into ``columns``."""
+    cols = ", ".join(quote_ident(c) for c in columns)
+    marks = ", ".join(f":{c}" for c in names)
+    return f"INSERT INTO {quote_qualified(physical)} ({cols}) VALUES ({marks})"
+
+
+def copy_in(physical: Sequence[str], columns: Sequence[str]) -> str:
+    """PostgreSQL's bulk load of rows into ``columns``."""
+    cols = ", ".join(quote_ident(c) for c in columns)
+    return f"COPY {quote_qualified(physical)} ({cols}) FROM STDIN"
+
+
+def insert_select(table: str, select_sql: str) -> str:
+    """Append the rows of ``select_sql`` (reachlist's own, over the Arrow relation ``src``)."""
+    return f"INSERT INTO {quote_ident(table)} {select_sql}"
+
+
+def create_as(table: str, select_sql: str) -> str:
+    return f"CREATE TABLE {quote_ident(table)} AS {select_sql}"
+
+
+# -- DuckDB session and attached files -------------------------------------------------------
+def set_option(name: str, value: str) -> str:
+    """SET one of reachlist's DuckDB settings (``name`` is reachlist's own, never user text)."""
+    return f"SET {name} = {literal(value)}"
+
+
+def attach_read_only(path: str, alias: str) -> str:
+    return f"ATTACH {literal(path)} AS {quote_ident(alias)} (READ_ONLY)"
+
+
+def detach(alias: str) -> str:
+    return f"DETACH DATABASE IF EXISTS {quote_ident(alias)}"
+
+
+# -- the holdings file -----------------------------------------------------------------------
+MARK_TABLE = "history_mark"
+CREATE_MARK = (
+    f"CREATE TABLE {MARK_TABLE} (order_lines BIGINT, quantity_sum DOUBLE, orders BIGINT, "
+    "last_order VARCHAR, source VARCHAR, format INTEGER)"
+)
+INSERT_MARK = (
+    f"INSERT INTO {MARK_TABLE} VALUES (:order_lines, :quantity_sum, :orders, :last_order, "
+    ":source, :format)"
+)
+HOLDINGS_ORDERED = "SELECT * FROM src ORDER BY order_day"
+
+
+def row_count(table: str) -> str:
+    return f"SELECT count(*) AS n FROM {quote_ident(table)}"
+
+
+def attached_mark(alias: str) -> Query:
+    """The watermark stored in an attached holdings file."""
+    return Query(f"SELECT * FROM {quote_ident(alias)}.main.{MARK_TABLE}", label="holdings mark")

@@ -1,0 +1,2 @@
+-- How many product rows the catalogue holds.
+SELECT count(*) AS n FROM products
