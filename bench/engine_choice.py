@@ -21,6 +21,7 @@ import duckdb
 import polars as pl
 
 from reachlist import mining
+from reachlist.baskets import Baskets
 from reachlist.query import DUCKDB as DIALECT
 from reachlist.query import inline, render
 from reachlist.schema import Mapping
@@ -66,7 +67,7 @@ def main(path: str) -> None:
         pairs = con.sql("SELECT basket, item FROM held").pl()
         labels = pairs["item"].unique().sort()
         codes = pairs["item"].cast(pl.Enum(labels.to_list())).to_physical().to_numpy()
-        baskets = mining.Baskets.from_arrays(
+        baskets = Baskets.from_arrays(
             pairs["basket"], codes.astype("int64"), labels=labels.to_list()
         )
         in_mem = mining.target_rules(

@@ -26,7 +26,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from reachlist.mining import Baskets, frequent_itemsets, target_rules
+from reachlist.baskets import Baskets
+from reachlist.mining import frequent_itemsets, target_rules
 
 
 def generate(

@@ -1,13 +1,7 @@
 """In-memory mining: baskets -> frequent itemsets -> rules X -> y with every measure.
 
-Baskets are held three ways, one per access pattern:
-
-- a basket-major index (CSR: ``indptr``, ``indices``), used to cut out the baskets that hold an
-  item or a set of items (a *projection*: cost proportional to the lines of those baskets);
-- an item-major index (the baskets of each item), from which
-- vertical bitmaps are built on first use and kept: one row of packed ``uint64`` words per item
-  (bit ``b`` set when basket ``b`` holds the item); a count is an AND of rows plus a popcount
-  (``np.bitwise_count``).
+Baskets (``reachlist.baskets``) come as a basket-major index, an item-major index and vertical
+bitmaps; measures and the exact test are in ``reachlist.measures``.
 
 Mining is Eclat (depth-first, vertical): every node of the search ANDs the prefix's row into the
 rows of all candidate extensions at once (one numpy call per node) and keeps the extensions that
@@ -17,12 +11,6 @@ baskets out of the CSR index so the subtree runs on narrow rows, whichever is es
 count found there is n(X+y)), then counts n(X) one numpy call per search node, on all baskets or,
 when y is in most baskets, as n(X+y) + n(X) among the baskets that lack y.
 
-Measures (DESIGN.md), with N baskets and n(.) the number of baskets holding all of a set:
-support = n(X+y)/N, coverage = n(X)/N, confidence = n(X+y)/n(X), lift = confidence/(n(y)/N),
-leverage = support - coverage*n(y)/N, conviction = (1 - n(y)/N)/(1 - confidence) (+inf when
-confidence is 1 and n(y) < N; NaN when both are 1), p_value = one-sided Fisher exact test for
-positive association, P(n(X+y) >= observed) under the hypergeometric null with all margins fixed.
-
 A rule is *productive* when its confidence is strictly greater than the confidence of every rule
 X' -> y with X' a proper subset of X, the empty antecedent included (whose confidence is n(y)/N);
 so a one-item rule is productive iff its lift is > 1.
@@ -30,51 +18,35 @@ so a one-item rule is productive iff its lift is > 1.
 
 from __future__ import annotations
 
-import hashlib
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Any
 
 import numpy as np
 import polars as pl
-from scipy.stats import hypergeom
 
+from reachlist.baskets import Baskets, bit_positions, popcounts, project
 from reachlist.errors import InputError
+from reachlist.measures import (
+    CORRECTIONS,
+    MEASURES,
+    adjust_p_values,
+    check_choice,
+    rule_id,
+    rule_measures,
+)
 
 __all__ = [
-    "CORRECTIONS",
     "ITEMSET_COLUMNS",
-    "MEASURES",
     "RULE_COLUMNS",
-    "Baskets",
-    "adjust_p_values",
     "frequent_itemsets",
-    "rule_id",
-    "rule_measures",
     "rules_from_counts",
     "rules_from_itemsets",
     "target_rules",
     "top_rules",
 ]
-
-CORRECTIONS = ("holm", "bonferroni", "none")
-"""Multiple-testing corrections for ``p_adjusted`` (family: every rule that met min support)."""
-
-MEASURES = (
-    "support",
-    "coverage",
-    "confidence",
-    "lift",
-    "leverage",
-    "conviction",
-    "p_value",
-    "p_adjusted",
-    "n_both",
-    "n_antecedent",
-)
-"""Columns a rule table can be sorted by (descending; p-values ascending)."""
 
 RULE_COLUMNS: dict[str, Any] = {
     "rule_id": pl.String,
@@ -107,387 +79,10 @@ ITEMSET_COLUMNS: dict[str, Any] = {
 }
 """Schema of ``frequent_itemsets``."""
 
-_U64 = np.dtype("<u8")
 _NO_LIMIT = 1 << 30
 _LINE_COST = 10.0  # cost of cutting out one basket line, in AND+popcount word operations
 _CUT_OVERHEAD = 20_000.0  # fixed cost of one cut, in the same unit
 _PAIR_BLOCK = 1 << 18  # words of the AND buffer in _frequent_pairs
-_PACK_BUFFER = 1 << 26  # bytes of the bit-scatter buffer in _pack_bits
-
-
-# --------------------------------------------------------------------------------------------
-# Baskets
-# --------------------------------------------------------------------------------------------
-
-
-class Baskets:
-    """A set of baskets (each a set of items): basket-major and item-major indexes, and vertical
-    bitmaps of the items that mining asks for (built on first use from the item-major index and
-    kept, so a large catalogue only pays for the items that can be frequent).
-
-    Build with ``from_arrays``, ``from_frame`` or ``from_transactions``. ``n_baskets`` is the
-    number of distinct baskets given; a larger explicit ``n_baskets`` adds empty baskets (they
-    count in N but hold nothing). An item repeated inside a basket counts once.
-
-    Attributes: ``labels`` (item labels, by item index), ``item_counts`` (baskets holding each
-    item), ``indptr``/``indices`` (basket-major CSR: the item indices of basket b are
-    ``indices[indptr[b]:indptr[b + 1]]``, ascending), ``basket_ids`` (the basket key of each
-    basket index, when built from keys).
-    """
-
-    __slots__ = (
-        "_index",
-        "_rows",
-        "_tid_ptr",
-        "_tids",
-        "basket_ids",
-        "indices",
-        "indptr",
-        "item_counts",
-        "labels",
-    )
-
-    def __init__(
-        self,
-        basket_codes: np.ndarray,
-        item_codes: np.ndarray,
-        labels: Sequence[str],
-        n_baskets: int,
-        basket_ids: np.ndarray | None = None,
-    ) -> None:
-        """Low level: ``basket_codes`` in [0, n_baskets), ``item_codes`` in [0, len(labels))."""
-        labels = [str(x) for x in labels]
-        if len(set(labels)) != len(labels):
-            raise InputError("item labels must be unique.", hint="pass each label once")
-        n_items = len(labels)
-        n = int(n_baskets)
-        b = np.asarray(basket_codes, dtype=np.int64).ravel()
-        i = np.asarray(item_codes, dtype=np.int64).ravel()
-        if b.shape != i.shape:
-            raise InputError(
-                f"basket and item arrays differ in length ({b.size} vs {i.size}).",
-                hint="pass one basket index per item index",
-            )
-        if b.size and (b.min() < 0 or b.max() >= n):
-            raise InputError(f"basket codes must lie in [0, {n}).")
-        if i.size and (i.min() < 0 or i.max() >= n_items):
-            raise InputError(f"item codes must lie in [0, {n_items}).")
-        # one key per (basket, item): sorted unique keys give the deduplicated CSR directly
-        shift = max(n_items - 1, 1).bit_length()
-        key = (b << shift) | i
-        if key.size > 1 and not bool(np.all(key[1:] > key[:-1])):  # else sorted and distinct
-            key.sort()
-            fresh = np.empty(key.size, dtype=bool)
-            fresh[0] = True
-            np.not_equal(key[1:], key[:-1], out=fresh[1:])
-            key = key[fresh]
-        i = (key & ((1 << shift) - 1)).astype(np.int32)
-        key >>= shift  # now the basket codes, ascending
-        self.indptr = np.zeros(n + 1, dtype=np.int64)
-        np.cumsum(np.bincount(key, minlength=n), out=self.indptr[1:])
-        self.indices = i
-        self.item_counts = np.bincount(i, minlength=n_items).astype(np.int64)
-        # item-major index: the baskets of each item, ascending (a stable sort of the lines)
-        order = np.argsort(i.astype(np.uint16) if n_items <= 1 << 16 else i, kind="stable")
-        self._tids = key[order].astype(np.int32 if n < 1 << 31 else np.int64)
-        self._tid_ptr = np.zeros(n_items + 1, dtype=np.int64)
-        np.cumsum(self.item_counts, out=self._tid_ptr[1:])
-        self._rows: dict[int, np.ndarray] = {}
-        self.labels = np.array(labels, dtype=object)
-        self.basket_ids = basket_ids
-        self._index: dict[str, int] | None = None
-        for arr in (self.indptr, self.indices, self.item_counts, self.labels, self._tids):
-            arr.flags.writeable = False
-
-    # -- constructors ---------------------------------------------------------------------
-
-    @classmethod
-    def from_arrays(
-        cls,
-        basket: Any,
-        item: Any,
-        *,
-        labels: Sequence[str] | None = None,
-        n_baskets: int | None = None,
-    ) -> Baskets:
-        """Baskets from two equal-length arrays (one row per basket line).
-
-        ``basket`` holds any basket key (ints or strings). ``item`` holds item indices into
-        ``labels`` when ``labels`` is given, else any item values (their ``str`` is the label).
-        """
-        basket_codes, basket_ids = _factorize(pl.Series("basket", basket))
-        if labels is None:
-            item_codes, uniques = _factorize(pl.Series("item", item))
-            labels = [str(x) for x in uniques]
-        else:
-            item_codes = np.asarray(item, dtype=np.int64)
-        return cls(
-            basket_codes, item_codes, labels, _n_checked(basket_ids.size, n_baskets), basket_ids
-        )
-
-    @classmethod
-    def from_frame(
-        cls,
-        frame: pl.DataFrame,
-        *,
-        basket: str = "basket",
-        item: str = "item",
-        n_baskets: int | None = None,
-    ) -> Baskets:
-        """Baskets from a polars DataFrame with one row per basket line (columns basket, item)."""
-        for col in (basket, item):
-            if col not in frame.columns:
-                raise InputError(
-                    f"column {col!r} not in the frame (columns: {', '.join(frame.columns)}).",
-                    hint="name the basket and item columns",
-                )
-        return cls.from_arrays(frame[basket], frame[item], n_baskets=n_baskets)
-
-    @classmethod
-    def from_transactions(
-        cls,
-        transactions: Iterable[Iterable[Any]],
-        *,
-        counts: Iterable[int] | None = None,
-        n_baskets: int | None = None,
-    ) -> Baskets:
-        """Baskets from lists of items; ``counts[k]`` repeats transaction k (weighted data)."""
-        rows = [list(dict.fromkeys(str(x) for x in t)) for t in transactions]
-        weights = [1] * len(rows) if counts is None else [int(c) for c in counts]
-        if len(weights) != len(rows) or any(w < 0 for w in weights):
-            raise InputError("counts must give one non-negative count per transaction.")
-        labels = sorted({x for r in rows for x in r})
-        code = {x: k for k, x in enumerate(labels)}
-        b_parts, i_parts, start = [], [], 0
-        for r, w in zip(rows, weights, strict=True):
-            if r and w:
-                ids = np.array([code[x] for x in r], dtype=np.int64)
-                b_parts.append(np.repeat(np.arange(start, start + w, dtype=np.int64), ids.size))
-                i_parts.append(np.tile(ids, w))
-            start += w
-        b = np.concatenate(b_parts) if b_parts else np.zeros(0, np.int64)
-        i = np.concatenate(i_parts) if i_parts else np.zeros(0, np.int64)
-        return cls(b, i, labels, _n_checked(start, n_baskets))
-
-    # -- accessors ------------------------------------------------------------------------
-
-    @property
-    def n_baskets(self) -> int:
-        return self.indptr.size - 1
-
-    @property
-    def n_items(self) -> int:
-        return self.labels.size
-
-    def __len__(self) -> int:
-        return self.n_baskets
-
-    def __repr__(self) -> str:
-        return (
-            f"Baskets(n_baskets={self.n_baskets}, n_items={self.n_items}, "
-            f"lines={self.indices.size})"
-        )
-
-    def item_index(self, label: str) -> int:
-        """Index of an item label; ``InputError`` when the item is in no basket's vocabulary."""
-        if self._index is None:
-            self._index = {x: k for k, x in enumerate(self.labels)}
-        try:
-            return self._index[str(label)]
-        except KeyError:
-            raise InputError(
-                f"item {label!r} is not in the baskets ({self.n_items} items).",
-                hint="check the item code and the item level",
-            ) from None
-
-    @property
-    def n_words(self) -> int:
-        """Width of a bitmap row in uint64 words."""
-        return _n_words(self.n_baskets)
-
-    def count(self, items: Iterable[str]) -> int:
-        """Number of baskets holding every item of ``items`` (N for the empty set)."""
-        ids = [self.item_index(x) for x in items]
-        if not ids:
-            return self.n_baskets
-        rows = self.bitmaps(ids)
-        return int(_popcounts(np.bitwise_and.reduce(rows, axis=0)))
-
-    def baskets_holding(self, item: int) -> np.ndarray:
-        """Basket indices (ascending) of the baskets that hold item index ``item``."""
-        return self._tids[self._tid_ptr[item] : self._tid_ptr[item + 1]]
-
-    def bitmaps(self, items: Iterable[int]) -> np.ndarray:
-        """Bitmap rows (len(items), n_words) of item indices ``items``: bit b of a row is set when
-        basket b holds the item. Rows are built on first request and kept."""
-        ids = np.asarray(
-            list(items) if not isinstance(items, np.ndarray) else items, dtype=np.int64
-        ).ravel()
-        missing = np.unique(ids[[int(k) not in self._rows for k in ids]]) if ids.size else ids
-        if missing.size:
-            block = _pack_item_rows(self._tids, self._tid_ptr, missing, self.n_words)
-            block.flags.writeable = False
-            for k, item in enumerate(missing.tolist()):
-                self._rows[item] = block[k]
-        out = np.empty((ids.size, self.n_words), dtype=_U64)
-        for k, item in enumerate(ids.tolist()):
-            out[k] = self._rows[item]
-        return out
-
-    @property
-    def nbytes(self) -> int:
-        """Memory held: the two indexes and the bitmap rows built so far."""
-        arrays = (self.indptr, self.indices, self.item_counts, self._tids, self._tid_ptr)
-        return sum(a.nbytes for a in arrays) + len(self._rows) * self.n_words * 8
-
-
-def _n_checked(seen: int, n_baskets: int | None) -> int:
-    if n_baskets is None:
-        return int(seen)
-    if int(n_baskets) < seen:
-        raise InputError(
-            f"n_baskets={n_baskets} is below the {seen} distinct baskets given.",
-            hint="leave n_baskets out, or give at least the number of baskets",
-        )
-    return int(n_baskets)
-
-
-def _factorize(s: pl.Series) -> tuple[np.ndarray, np.ndarray]:
-    """Dense codes (0..k-1, in sorted order of the values) and the sorted unique values."""
-    if s.null_count():
-        raise InputError(
-            f"column {s.name!r} has {s.null_count()} missing values.",
-            hint="drop or fill them first",
-        )
-    if s.len() == 0:
-        return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    if s.dtype.is_integer():
-        v = s.to_numpy().astype(np.int64, copy=False)
-        lo, hi = int(v.min()), int(v.max())
-        if hi - lo <= 4 * v.size + 1024:  # dense keys: a presence table, no sort
-            present = np.zeros(hi - lo + 1, dtype=bool)
-            present[v - lo] = True
-            if present.all():
-                return v - lo, np.arange(lo, hi + 1, dtype=np.int64)
-            rank = np.cumsum(present) - 1
-            return rank[v - lo], np.flatnonzero(present) + lo
-    if isinstance(s.dtype, (pl.Categorical, pl.Enum)):
-        s = s.cast(pl.String)
-    uniques = s.unique().sort()
-    if s.dtype == pl.String:  # a hash lookup into the sorted labels beats a sort of all rows
-        codes = s.cast(pl.Enum(uniques.to_list())).to_physical()
-    else:
-        codes = s.rank("dense") - 1
-    return codes.cast(pl.Int64).to_numpy(), uniques.to_numpy()
-
-
-# --------------------------------------------------------------------------------------------
-# Bitmap primitives
-# --------------------------------------------------------------------------------------------
-
-
-def _n_words(n_bits: int) -> int:
-    return (int(n_bits) + 63) >> 6
-
-
-def _pack_bits(rows: np.ndarray, cols: np.ndarray, n_rows: int, n_words: int) -> np.ndarray:
-    """Bit matrix (n_rows, n_words) with bit ``cols[k]`` of row ``rows[k]`` set.
-
-    ``cols`` must be ascending (basket-major order); repeats are fine. Bits are scattered into a
-    byte-per-bit buffer over a band of columns at a time (below 64 MiB) and packed with
-    ``np.packbits``.
-    """
-    n_bits = n_words * 64
-    out = np.zeros((n_rows, n_words), dtype=_U64)
-    if rows.size == 0 or n_bits == 0:
-        return out
-    band = min(n_bits, max(64, (_PACK_BUFFER // n_rows) // 64 * 64))
-    buf = np.empty(n_rows * band, dtype=bool)
-    rows = rows.astype(np.int64, copy=False)
-    for c0 in range(0, n_bits, band):
-        c1 = min(n_bits, c0 + band)
-        width = c1 - c0
-        lo, hi = np.searchsorted(cols, (c0, c1))
-        if lo == hi:
-            continue
-        view = buf[: n_rows * width]
-        view[:] = False
-        view[rows[lo:hi] * width + (cols[lo:hi] - c0)] = True
-        packed = np.packbits(view, bitorder="little").view(_U64)
-        out[:, c0 >> 6 : c1 >> 6] = packed.reshape(n_rows, width >> 6)
-    return out
-
-
-def _pack_item_rows(
-    tids: np.ndarray, ptr: np.ndarray, items: np.ndarray, n_words: int
-) -> np.ndarray:
-    """Bitmap rows of ``items`` from the item-major index (baskets of item k at
-    ``tids[ptr[k]:ptr[k + 1]]``), a band of rows at a time through a byte-per-bit buffer."""
-    n_bits = n_words * 64
-    out = np.zeros((items.size, n_words), dtype=_U64)
-    if n_bits == 0:
-        return out
-    band = max(1, _PACK_BUFFER // n_bits)
-    buf = np.empty(min(band, items.size) * n_bits, dtype=bool)
-    for r0 in range(0, items.size, band):
-        chunk = items[r0 : r0 + band]
-        starts, ends = ptr[chunk], ptr[chunk + 1]
-        lens = ends - starts
-        total = int(lens.sum())
-        if total == 0:
-            continue
-        lines = np.repeat(starts - (np.cumsum(lens) - lens), lens)
-        lines += np.arange(total, dtype=np.int64)
-        flat = np.repeat(np.arange(chunk.size, dtype=np.int64) * n_bits, lens) + tids[lines]
-        view = buf[: chunk.size * n_bits]
-        view[:] = False
-        view[flat] = True
-        out[r0 : r0 + chunk.size] = (
-            np.packbits(view, bitorder="little").view(_U64).reshape(chunk.size, n_words)
-        )
-    return out
-
-
-def _popcounts(m: np.ndarray) -> np.ndarray:
-    """Number of set bits in each row of a (r, w) word matrix."""
-    if m.shape[-1] == 0:
-        return np.zeros(m.shape[:-1], dtype=np.int64)
-    return np.asarray(np.bitwise_count(m).sum(axis=-1, dtype=np.int64))
-
-
-def _bit_positions(row: np.ndarray) -> np.ndarray:
-    """Positions of the set bits of one packed row, ascending."""
-    return np.flatnonzero(np.unpackbits(row.view(np.uint8), bitorder="little"))
-
-
-def _project(
-    baskets: Baskets, rows: np.ndarray, keep_items: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Bitmaps of the items ``keep_items`` restricted to the baskets ``rows``.
-
-    Returns (bits (len(keep_items), ceil(len(rows)/64)), counts per kept item). Cost is
-    proportional to the number of lines in those baskets, not to the number of items.
-    """
-    n_keep = keep_items.size
-    width = _n_words(rows.size)
-    slot = np.full(baskets.n_items, -1, dtype=np.int64)
-    slot[keep_items] = np.arange(n_keep)
-    starts = baskets.indptr[rows]
-    lens = baskets.indptr[rows + 1] - starts
-    total = int(lens.sum())
-    if total == 0 or n_keep == 0:
-        return np.zeros((n_keep, width), dtype=_U64), np.zeros(n_keep, dtype=np.int64)
-    lines = np.repeat(starts - (np.cumsum(lens) - lens), lens)
-    lines += np.arange(total, dtype=np.int64)
-    local = np.repeat(np.arange(rows.size, dtype=np.int64), lens)
-    s = slot[baskets.indices[lines]]
-    if 4 * n_keep >= 3 * baskets.n_items:  # most items kept: send the rest to a spare row
-        s[s < 0] = n_keep
-        bits = _pack_bits(s, local, n_keep + 1, width)[:n_keep]
-        return bits, np.bincount(s, minlength=n_keep + 1)[:n_keep].astype(np.int64)
-    sel = s >= 0
-    s, local = s[sel], local[sel]
-    return _pack_bits(s, local, n_keep, width), np.bincount(s, minlength=n_keep).astype(np.int64)
 
 
 # --------------------------------------------------------------------------------------------
@@ -552,7 +147,7 @@ def _frequent_pairs(bits: np.ndarray, min_count: int) -> tuple[np.ndarray, np.nd
     step = max(1, _PAIR_BLOCK // max(r * w, 1))
     for k0 in range(0, r - 1, step):
         k1 = min(r - 1, k0 + step)
-        counts = _popcounts(bits[k0:k1, None, :] & bits[None, k0 + 1 :, :])
+        counts = popcounts(bits[k0:k1, None, :] & bits[None, k0 + 1 :, :])
         # column c stands for row k0 + 1 + c; keep it only when it is after the row (j > i)
         upper = np.arange(k0 + 1, r)[None, :] > np.arange(k0, k1)[:, None]
         ii, jj = np.nonzero(upper & (counts >= min_count))
@@ -596,7 +191,7 @@ def _eclat(
             nz = np.flatnonzero(row)
             row, rest = row[nz], rest[:, nz]
         child = rest & row
-        cc = _popcounts(child)
+        cc = popcounts(child)
         keep = np.flatnonzero(cc >= min_count)
         if keep.size == 0:
             continue
@@ -642,8 +237,8 @@ def _search(
     mean_len = baskets.indices.size / max(baskets.n_baskets, 1)
 
     def cut(k: int, items: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        local = _bit_positions(bits[k])
-        return _project(baskets, local if rows is None else rows[local], items)
+        local = bit_positions(bits[k])
+        return project(baskets, local if rows is None else rows[local], items)
 
     n_rows = baskets.n_baskets if rows is None else rows.size
     for k in range(ids.size - 1):
@@ -660,7 +255,7 @@ def _search(
             keep = np.flatnonzero(cc >= min_count)
         else:
             sub = bits[k + 1 :] & bits[k]
-            cc = _popcounts(sub)
+            cc = popcounts(sub)
             keep = np.flatnonzero(cc >= min_count)
             # a big subtree below: cut the baskets out after all, so it runs on narrow rows
             below = keep.size * keep.size / 2
@@ -697,7 +292,7 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
     needed = np.unique(
         np.concatenate([np.array(p, dtype=np.int64) for p, _ in groups] + [e for _, e in groups])
     )
-    bits = baskets.bitmaps(needed) if rows is None else _project(baskets, rows, needed)[0]
+    bits = baskets.bitmaps(needed) if rows is None else project(baskets, rows, needed)[0]
     slot = np.full(baskets.n_items, -1, dtype=np.int64)
     slot[needed] = np.arange(needed.size)
     n_words = bits.shape[1]
@@ -708,21 +303,21 @@ def _count_groups(baskets: Baskets, found: _Found, rows: np.ndarray | None) -> n
         if prefix:
             by_first.setdefault(prefix[0], []).append(g)
         else:
-            out[g] = _popcounts(bits[slot[ext]])
+            out[g] = popcounts(bits[slot[ext]])
     for first, members in by_first.items():
-        n_first = int(_popcounts(bits[slot[first]]))
+        n_first = int(popcounts(bits[slot[first]]))
         work = sum(groups[g][1].size + len(groups[g][0]) for g in members)
         cut_cost = n_first * (mean_len + 4) * _LINE_COST + _CUT_OVERHEAD
         if cut_cost + work * n_first / 64 < work * n_words:
             # every basket of the cut holds ``first``: drop it from the prefixes
-            local = _bit_positions(bits[slot[first]])
+            local = bit_positions(bits[slot[first]])
             items = np.unique(
                 np.concatenate(
                     [np.array(groups[g][0][1:], dtype=np.int64) for g in members]
                     + [groups[g][1] for g in members]
                 )
             )
-            sub, _ = _project(baskets, local if rows is None else rows[local], items)
+            sub, _ = project(baskets, local if rows is None else rows[local], items)
             sub_slot = np.full(baskets.n_items, -1, dtype=np.int64)
             sub_slot[items] = np.arange(items.size)
             _count_under(
@@ -740,7 +335,7 @@ def _count_under(
     prefix_rows: dict[tuple[int, ...], np.ndarray] = {}
     for (prefix, ext), g in zip(groups, where, strict=True):
         if not prefix:
-            out[g] = _popcounts(bits[slot[ext]])
+            out[g] = popcounts(bits[slot[ext]])
             continue
         row = prefix_rows.get(prefix)
         if row is None:
@@ -748,78 +343,7 @@ def _count_under(
             for k in prefix[1:]:
                 row = row & bits[slot[k]]
             prefix_rows[prefix] = row
-        out[g] = _popcounts(bits[slot[ext]] & row)
-
-
-# --------------------------------------------------------------------------------------------
-# Measures, p-values, corrections
-# --------------------------------------------------------------------------------------------
-
-
-def rule_measures(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> dict[str, np.ndarray]:
-    """Every measure of rules X -> y from raw counts (broadcast over numpy arrays).
-
-    ``n`` baskets, ``n_x`` = n(X), ``n_y`` = n(y), ``n_xy`` = n(X+y). Returns float arrays:
-    support, coverage, confidence, lift, leverage, conviction, p_value (one-sided Fisher exact
-    test for positive association). Undefined values are NaN (confidence with n(X) = 0,
-    conviction 0/0 when confidence and P(y) are both 1); conviction is +inf when confidence is 1
-    and P(y) < 1.
-    """
-    n, n_x, n_y, n_xy = np.broadcast_arrays(
-        *(np.asarray(v, dtype=np.int64) for v in (n, n_x, n_y, n_xy))
-    )
-    if np.any(n_xy < 0) or np.any(n_xy > np.minimum(n_x, n_y)) or np.any(np.maximum(n_x, n_y) > n):
-        raise InputError("inconsistent counts: need 0 <= n_xy <= min(n_x, n_y) and n_x, n_y <= n.")
-    fn, fx, fy, fxy = (v.astype(np.float64) for v in (n, n_x, n_y, n_xy))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        support = fxy / fn
-        coverage = fx / fn
-        confidence = fxy / fx
-        lift = (fxy * fn) / (fx * fy)
-        leverage = (fxy * fn - fx * fy) / (fn * fn)
-        # (1 - n_y/N) / (1 - n_xy/n_x) = (N - n_y) n_x / (N (n_x - n_xy)), exact integers inside
-        conviction = ((fn - fy) * fx) / (fn * (fx - fxy))
-    p_value = fisher_greater(n, n_x, n_y, n_xy)
-    return {
-        "support": support,
-        "coverage": coverage,
-        "confidence": confidence,
-        "lift": lift,
-        "leverage": leverage,
-        "conviction": conviction,
-        "p_value": p_value,
-    }
-
-
-def fisher_greater(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> np.ndarray:
-    """One-sided Fisher exact p-value, H1 positive association: P(K >= n_xy), K hypergeometric
-    (population n, n_y successes, n_x draws); equal to
-    ``scipy.stats.fisher_exact([[n_xy, n_x-n_xy], [n_y-n_xy, n-n_x-n_y+n_xy]], "greater")``."""
-    n, n_x, n_y, n_xy = (np.asarray(v, dtype=np.int64) for v in (n, n_x, n_y, n_xy))
-    p = hypergeom.sf(n_xy - 1, n, n_y, n_x)
-    return np.clip(np.asarray(p, dtype=np.float64), 0.0, 1.0)
-
-
-def adjust_p_values(p: Any, correction: str = "holm") -> np.ndarray:
-    """Family-wise adjusted p-values: ``holm`` (step-down), ``bonferroni`` or ``none``."""
-    _check_choice("correction", correction, CORRECTIONS)
-    p = np.asarray(p, dtype=np.float64)
-    m = p.size
-    if correction == "none" or m == 0:
-        return np.asarray(p.copy())
-    if correction == "bonferroni":
-        return np.asarray(np.minimum(1.0, p * m))
-    order = np.argsort(p, kind="stable")  # Holm: step down from the smallest p
-    stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
-    out = np.empty(m)
-    out[order] = np.minimum(1.0, stepped)
-    return out
-
-
-def rule_id(antecedent: Iterable[str], consequent: str) -> str:
-    """Stable short id of a rule: a hash of the sorted antecedent labels and the consequent."""
-    text = "\x1f".join(sorted(str(a) for a in antecedent)) + "\x1e" + str(consequent)
-    return "R" + hashlib.blake2b(text.encode("utf-8"), digest_size=6).hexdigest()
+        out[g] = popcounts(bits[slot[ext]] & row)
 
 
 # --------------------------------------------------------------------------------------------
@@ -922,7 +446,7 @@ def _resolve_min_count(n: int, min_count: int | None, min_support: float | None)
 
 
 def _rank_rules(df: pl.DataFrame, rank_by: str) -> pl.DataFrame:
-    _check_choice("rank_by", rank_by, MEASURES)
+    check_choice("rank_by", rank_by, MEASURES)
     ascending = rank_by in ("p_value", "p_adjusted")
     key = pl.col(rank_by)
     if df.schema[rank_by] == pl.Float64:
@@ -953,8 +477,8 @@ def _assemble(
     top: int | None = None,
 ) -> pl.DataFrame:
     """Rule table from counts of every candidate rule (the correction's family)."""
-    _check_choice("correction", correction, CORRECTIONS)
-    _check_choice("rank_by", rank_by, MEASURES)
+    check_choice("correction", correction, CORRECTIONS)
+    check_choice("rank_by", rank_by, MEASURES)
     m = ante.shape[0]
     if m == 0:
         return _empty_rules()
@@ -994,11 +518,6 @@ def _assemble(
     return df if top is None else df.head(top)
 
 
-def _check_choice(name: str, value: str, allowed: Sequence[str]) -> None:
-    if value not in allowed:
-        raise InputError(f"unknown {name} {value!r}.", hint=f"use one of {', '.join(allowed)}")
-
-
 def _check_common(min_confidence: float, min_lift: float, alpha: float, correction: str) -> None:
     if not 0.0 <= float(min_confidence) <= 1.0:
         raise InputError(f"min_confidence must be in [0, 1], got {min_confidence}.")
@@ -1006,7 +525,7 @@ def _check_common(min_confidence: float, min_lift: float, alpha: float, correcti
         raise InputError(f"min_lift must be >= 0, got {min_lift}.")
     if not 0.0 < float(alpha) < 1.0:
         raise InputError(f"alpha must be in (0, 1), got {alpha}.")
-    _check_choice("correction", correction, CORRECTIONS)
+    check_choice("correction", correction, CORRECTIONS)
 
 
 # --------------------------------------------------------------------------------------------
@@ -1241,7 +760,7 @@ def target_rules(
     others = np.flatnonzero(np.arange(baskets.n_items) != y)
     others = others[baskets.item_counts[others] >= min_count]
     holding = baskets.baskets_holding(y)
-    cond_bits, cond_counts = _project(baskets, holding, others)
+    cond_bits, cond_counts = project(baskets, holding, others)
     depth = int(max_antecedent)
     if budget is not None:
         plan = plan_search(

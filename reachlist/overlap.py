@@ -19,10 +19,9 @@ from itertools import combinations
 
 import numpy as np
 import polars as pl
-from scipy.stats import hypergeom
 
 from reachlist.errors import EmptyResultError, InputError
-from reachlist.mining import adjust_p_values
+from reachlist.measures import adjust_p_values, rule_measures
 from reachlist.query import Query
 from reachlist.targets import (
     BasketKind,
@@ -158,14 +157,13 @@ def _test_sets(
     for size in (2, 3):
         for combo in combinations(range(len(names)), size):
             n_s = counts[combo]
-            lifts, ps = [], []
-            for y in combo:
-                x = tuple(i for i in combo if i != y)
-                n_x, n_y = counts[x], counts[(y,)]
-                lifts.append(n_s * n / (n_x * n_y) if n_x and n_y else 0.0)
-                ps.append(float(hypergeom.sf(n_s - 1, n, n_x, n_y)))
+            # every split X + y of the set, as rules X -> y (the miner's measures and test)
+            n_x = [counts[tuple(i for i in combo if i != y)] for y in combo]
+            n_y = [counts[(y,)] for y in combo]
+            m = rule_measures(n, n_x, n_y, n_s)
+            lift = float(np.nan_to_num(m["lift"], nan=0.0, posinf=0.0).min())
             expected = n * float(np.prod([counts[(i,)] / n for i in combo]))
-            rows.append((combo, n_s, expected, min(lifts), max(ps)))
+            rows.append((combo, n_s, expected, lift, float(m["p_value"].max())))
     adjusted = adjust_p_values([r[4] for r in rows], CORRECTION)
     sets = [
         OverlapSet(

@@ -21,7 +21,9 @@ import numpy as np
 import polars as pl
 
 from reachlist import mining
+from reachlist.baskets import Baskets
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
+from reachlist.measures import MEASURES
 from reachlist.query import Query
 from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
 from reachlist.targets import (
@@ -84,7 +86,7 @@ def _related_items(wh: Warehouse, target: Target, level: Level) -> set[str]:
 
 def load_baskets(
     wh: Warehouse, target: Target | None, level: Level, basket: BasketKind, window: Window
-) -> mining.Baskets:
+) -> Baskets:
     """Basket -> item pairs from the warehouse, with the target added when it is at another level."""
     pairs = wh.fetch(held_items_query(window, level=level, basket=basket))
     if target is not None and target.level != level:
@@ -102,7 +104,7 @@ def load_baskets(
     # than a generic string factorisation.
     labels = pairs["item"].cast(pl.String).unique().sort()
     codes = pairs["item"].cast(pl.String).cast(pl.Enum(labels.to_list())).to_physical()
-    return mining.Baskets.from_arrays(
+    return Baskets.from_arrays(
         pairs["basket"], codes.to_numpy().astype("int64"), labels=labels.to_list()
     )
 
@@ -209,7 +211,7 @@ _DENSE_BREADTH_LIMIT = 1 << 29  # bytes of the presence table in basket_breadth
 
 
 def basket_breadth(
-    wh: Warehouse, baskets: mining.Baskets, target: Target, level: Level, window: Window
+    wh: Warehouse, baskets: Baskets, target: Target, level: Level, window: Window
 ) -> np.ndarray:
     """Shopping breadth of each customer basket: distinct categories held in the window.
 
@@ -262,7 +264,7 @@ MASK_CACHE = 256  # presence masks kept at once while matching rules on breadth 
 
 
 def breadth_tables(
-    baskets: mining.Baskets,
+    baskets: Baskets,
     breadth: np.ndarray,
     target: str,
     antecedents: list[list[str]],
@@ -304,7 +306,7 @@ def breadth_tables(
 
 
 def breadth_lift_intervals(
-    baskets: mining.Baskets,
+    baskets: Baskets,
     breadth: np.ndarray,
     target: str,
     antecedents: list[list[str]],
@@ -323,7 +325,7 @@ def breadth_lift_intervals(
 
 
 def breadth_lifts(
-    baskets: mining.Baskets,
+    baskets: Baskets,
     breadth: np.ndarray,
     target: str,
     antecedents: list[list[str]],
@@ -343,7 +345,7 @@ def breadth_lifts(
 
 
 def _why_empty(
-    baskets: mining.Baskets,
+    baskets: Baskets,
     label: str,
     min_support: float,
     min_confidence: float,
@@ -396,7 +398,7 @@ EXPLORE_MAX_ANTECEDENT = 2  # antecedent items when rules toward every consequen
 EXPLORE_BUDGET = 200_000  # itemsets one search toward every consequent may count (estimated)
 
 
-def _pair_counts(baskets: mining.Baskets, min_count: int) -> tuple[np.ndarray, np.ndarray] | None:
+def _pair_counts(baskets: Baskets, min_count: int) -> tuple[np.ndarray, np.ndarray] | None:
     """Item counts (ascending) of the items frequent at ``min_count`` and the baskets holding
     each pair of them (upper triangle), when that is cheap to count (None otherwise)."""
     counts = baskets.item_counts
@@ -426,7 +428,7 @@ PAIR_ITEMS = 3_000  # frequent items up to which pairs are counted to bound the 
 PAIR_WORK = 2_000_000_000  # ... and item pairs x bitmap words
 
 
-def _explore_floor(baskets: mining.Baskets, min_count: int, depth: int) -> tuple[int, int]:
+def _explore_floor(baskets: Baskets, min_count: int, depth: int) -> tuple[int, int]:
     """The support floor (in baskets) at which a search toward every consequent fits
     ``EXPLORE_BUDGET`` itemsets, and the itemsets estimated at ``min_count``. No target bounds
     this search, so the floor rises (the strongest rules by support survive it): first as if
@@ -481,9 +483,9 @@ def strongest_rules(
         )
         max_antecedent = EXPLORE_MAX_ANTECEDENT
     lvl, kind = check_level(level), check_basket(basket)
-    if measure not in mining.MEASURES:
+    if measure not in MEASURES:
         raise InputError(
-            f"Expected a measure of {', '.join(mining.MEASURES)}, found {measure!r}.",
+            f"Expected a measure of {', '.join(MEASURES)}, found {measure!r}.",
             hint="pass --rank-by lift, --rank-by confidence, ...",
         )
     window = mining_window(wh, since, until)

@@ -10,7 +10,8 @@ import numpy as np
 import polars as pl
 import pytest
 
-from reachlist.mining import Baskets, estimate_nodes, plan_search, target_rules
+from reachlist.baskets import Baskets, project
+from reachlist.mining import estimate_nodes, plan_search, target_rules
 
 
 def dense(n_customers: int, n_items: int, share: float, seed: int) -> Baskets:
@@ -151,7 +152,6 @@ def _others(b: Baskets) -> np.ndarray:
 
 def _cond_counts(b: Baskets) -> np.ndarray:
     """Each other item's count inside the target's baskets (as the search sees them)."""
-    from reachlist.mining import _project
 
-    _, counts = _project(b, b.baskets_holding(b.item_index("TARGET")), _others(b))
+    _, counts = project(b, b.baskets_holding(b.item_index("TARGET")), _others(b))
     return counts

@@ -19,7 +19,8 @@ import numpy as np
 import pytest
 from scipy.stats import fisher_exact
 
-from reachlist.mining import Baskets, frequent_itemsets, target_rules, top_rules
+from reachlist.baskets import Baskets
+from reachlist.mining import frequent_itemsets, target_rules, top_rules
 from tests.reference_data import check_values
 
 pd = pytest.importorskip("pandas")

@@ -17,18 +17,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from reachlist import mining
+from reachlist import baskets, mining
+from reachlist.baskets import Baskets
 from reachlist.errors import InputError
-from reachlist.mining import (
-    Baskets,
-    adjust_p_values,
-    frequent_itemsets,
-    rule_id,
-    rule_measures,
-    rules_from_counts,
-    target_rules,
-    top_rules,
-)
+from reachlist.measures import adjust_p_values, rule_id, rule_measures
+from reachlist.mining import frequent_itemsets, rules_from_counts, target_rules, top_rules
 
 ITEMS = [f"i{k}" for k in range(7)]
 SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -45,12 +38,12 @@ knobs_st = st.tuples(
 
 @contextmanager
 def engine(knobs):
-    saved = (mining._LINE_COST, mining._PAIR_BLOCK, mining._PACK_BUFFER)
-    mining._LINE_COST, mining._PAIR_BLOCK, mining._PACK_BUFFER = knobs
+    saved = (mining._LINE_COST, mining._PAIR_BLOCK, baskets._PACK_BUFFER)
+    mining._LINE_COST, mining._PAIR_BLOCK, baskets._PACK_BUFFER = knobs
     try:
         yield
     finally:
-        mining._LINE_COST, mining._PAIR_BLOCK, mining._PACK_BUFFER = saved
+        mining._LINE_COST, mining._PAIR_BLOCK, baskets._PACK_BUFFER = saved
 
 
 def brute_counts(transactions, max_size=99) -> Counter:

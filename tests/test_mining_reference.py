@@ -19,13 +19,8 @@ from fractions import Fraction
 import polars as pl
 import pytest
 
-from reachlist.mining import (
-    Baskets,
-    frequent_itemsets,
-    rules_from_itemsets,
-    target_rules,
-    top_rules,
-)
+from reachlist.baskets import Baskets
+from reachlist.mining import frequent_itemsets, rules_from_itemsets, target_rules, top_rules
 from tests.reference_data import check_values
 
 DATA = check_values()  # tests/data/reference/check-values.json, a copy of the shared values

@@ -10,7 +10,7 @@ import click
 from reachlist.cli import main, out, warehouse_options
 from reachlist.cli.progress import delayed_status
 from reachlist.errors import InputError
-from reachlist.mining import CORRECTIONS, MEASURES
+from reachlist.measures import CORRECTIONS, MEASURES
 from reachlist.rules import (
     BREADTH_LIFT,
     DEFAULT_MIN_SUPPORT,
