@@ -47,7 +47,8 @@ def timed(args: list[str]) -> tuple[float, float]:
 
 
 def phases(warehouse: str, target_args: list[str]) -> str:
-    from reachlist.lists import ListRequest, plan_list, preview_list
+    from reachlist.lists import preview_list
+    from reachlist.planning import ListRequest, plan_list
     from reachlist.warehouse import Warehouse
 
     purpose = "clear" if "clear" in target_args else "introduce"

@@ -38,8 +38,8 @@ _LAZY: dict[str, str] = {
     "mine_rules": "reachlist.rules",
     "RuleSet": "reachlist.rules",
     # lists: plan, preview, build
-    "ListRequest": "reachlist.lists",
-    "plan_list": "reachlist.lists",
+    "ListRequest": "reachlist.planning",
+    "plan_list": "reachlist.planning",
     "preview_list": "reachlist.lists",
     "build_list": "reachlist.lists",
     "CampaignLog": "reachlist.campaigns",
@@ -101,7 +101,8 @@ if TYPE_CHECKING:
     from reachlist.catalog import find_items
     from reachlist.check import check_warehouse
     from reachlist.estimate import calibrate_audience, estimate_takeup
-    from reachlist.lists import ListRequest, build_list, plan_list, preview_list
+    from reachlist.lists import build_list, preview_list
+    from reachlist.planning import ListRequest, plan_list
     from reachlist.results import campaign_results
     from reachlist.rules import RuleSet, mine_rules
     from reachlist.sample import build_sample

@@ -18,7 +18,8 @@ from reachlist.audience import Filters
 from reachlist.campaigns import CampaignLog, CampaignRecord
 from reachlist.errors import EmptyResultError, InputError, StateError
 from reachlist.holdout import assign_holdout, bucket, in_holdout
-from reachlist.lists import ListRequest, build_list, plan_list, preview_list
+from reachlist.lists import build_list, preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.targets import Target
 from reachlist.warehouse import Warehouse
 from tests import audience_cases as cases

@@ -11,7 +11,8 @@ import pytest
 
 from reachlist.audience import AudienceSpec, Filters, audience_query, choose_rules, reach_query
 from reachlist.campaigns import CampaignLog
-from reachlist.lists import ListRequest, build_list, plan_list, preview_list
+from reachlist.lists import build_list, preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.schema import Mapping
 from reachlist.transfer import copy_warehouse
 from reachlist.warehouse import Warehouse

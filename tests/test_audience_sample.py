@@ -12,7 +12,8 @@ import pytest
 
 from reachlist.audience import AudienceSpec, Filters, audience_query, choose_rules
 from reachlist.errors import InputError
-from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.lists import preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.rules import mine_rules
 from reachlist.sample import KEY_SKUS, PERIOD_START, planted_rules
 from reachlist.targets import Target, Window, last_order_day

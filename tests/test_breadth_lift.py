@@ -13,7 +13,8 @@ from statsmodels.stats.contingency_tables import StratifiedTable
 
 from reachlist.cli import main
 from reachlist.errors import EmptyResultError
-from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.lists import preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.query import Query
 from reachlist.rules import RuleSet, basket_breadth, breadth_tables, load_baskets, mine_rules
 from reachlist.sample import KEY_SKUS

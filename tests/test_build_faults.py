@@ -23,7 +23,8 @@ import pytest
 from reachlist.campaigns import CampaignLog
 from reachlist.errors import StateError
 from reachlist.export import clear_leftovers
-from reachlist.lists import BUILD_STAGES, ListRequest, build_list, plan_list
+from reachlist.lists import BUILD_STAGES, build_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.schema import Mapping
 from reachlist.warehouse import Warehouse
 from tests import audience_cases as cases
@@ -66,7 +67,8 @@ KILLER = textwrap.dedent(
     import os, signal, sys
     from datetime import datetime
     from reachlist.campaigns import CampaignLog
-    from reachlist.lists import ListRequest, build_list, plan_list
+    from reachlist.planning import ListRequest, plan_list
+    from reachlist.lists import build_list
     from reachlist.warehouse import Warehouse
     from tests import audience_cases as cases, audience_reference as ref
 

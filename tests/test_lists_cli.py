@@ -45,7 +45,7 @@ def test_sql_prints_what_runs_and_inline_sql_runs_elsewhere(sample: Path) -> Non
     rows = con.execute(inline.stdout).fetchall()  # as an analyst would run it elsewhere
     con.close()
     from reachlist.audience import Filters
-    from reachlist.lists import ListRequest, plan_list
+    from reachlist.planning import ListRequest, plan_list
 
     with Warehouse.open(sample, read_only=True) as wh:
         plan = plan_list(wh, ListRequest(MAT, filters=Filters(regions=("North",))))

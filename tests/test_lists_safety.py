@@ -14,7 +14,8 @@ import pytest
 
 from reachlist.audience import Filters
 from reachlist.campaigns import CampaignLog
-from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.lists import preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.targets import Target, Window, last_order_day, mining_window, order_history
 from reachlist.warehouse import Warehouse
 from tests import audience_reference as ref

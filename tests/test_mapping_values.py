@@ -16,7 +16,8 @@ import pytest
 from reachlist.campaigns import CampaignLog
 from reachlist.check import check_warehouse
 from reachlist.errors import InputError
-from reachlist.lists import ListRequest, build_list, plan_list, preview_list
+from reachlist.lists import build_list, preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.schema import Mapping
 from reachlist.targets import Target
 from reachlist.warehouse import Warehouse

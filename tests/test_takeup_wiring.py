@@ -9,7 +9,8 @@ from click.testing import CliRunner
 
 from reachlist.campaigns import CampaignLog
 from reachlist.cli import main
-from reachlist.lists import ListRequest, plan_list, preview_list
+from reachlist.lists import preview_list
+from reachlist.planning import ListRequest, plan_list
 from reachlist.sample import KEY_SKUS
 from reachlist.warehouse import Warehouse
 

@@ -15,7 +15,7 @@ from reachlist.cli.mining import mining_options
 from reachlist.cli.progress import delayed_status
 from reachlist.estimate import DEFAULT_HORIZON, MAX_CUTOFFS
 from reachlist.holdout import DEFAULT_GLOBAL_SHARE, DEFAULT_SHARE
-from reachlist.lists import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, ListRequest
+from reachlist.planning import DEFAULT_CAP_DAYS, DEFAULT_MIN_AUDIENCE, PURPOSES, ListRequest
 from reachlist.warehouse import Warehouse
 
 
@@ -294,7 +294,7 @@ def sql_cmd(
 
     Example: reachlist sql SG04-104 --inline > audience.sql
     """
-    from reachlist.lists import plan_list
+    from reachlist.planning import plan_list
     from reachlist.render.lists import (
         render_caution,
         render_plan_header,
@@ -336,7 +336,8 @@ def sizes(wh: Warehouse, target: str, state: str | None, as_json: bool, **opts: 
     Example: reachlist sizes SG04-104 --purpose introduce --region North
     """
     from reachlist.campaigns import CampaignLog
-    from reachlist.lists import plan_list, preview_list
+    from reachlist.lists import preview_list
+    from reachlist.planning import plan_list
     from reachlist.render.lists import render_sizes
 
     # A preview writes nothing: a --state file that does not exist yet is not created (the
@@ -405,7 +406,8 @@ def build(
     """
     from reachlist.campaigns import CampaignLog
     from reachlist.export import check_destination
-    from reachlist.lists import build_list, plan_list
+    from reachlist.lists import build_list
+    from reachlist.planning import plan_list
     from reachlist.render.lists import render_built
 
     check_destination(out_path, force=force)

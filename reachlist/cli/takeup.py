@@ -72,7 +72,8 @@ def estimate(
     """
     from reachlist.campaigns import CampaignLog
     from reachlist.estimate import estimate_takeup, holdout_planning
-    from reachlist.lists import plan_list, preview_list
+    from reachlist.lists import preview_list
+    from reachlist.planning import plan_list
     from reachlist.render.takeup import render_estimate, render_holdout_planning, to_json
 
     log = CampaignLog.open(wh, state) if state is None or Path(state).exists() else None

@@ -6,8 +6,9 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from reachlist.lists import SKIPPED, Built, ListOutcome, Plan
+from reachlist.lists import SKIPPED, Built, ListOutcome
 from reachlist.overlap import ADVICE, OverlapReport
+from reachlist.planning import Plan
 from reachlist.query import Dialect, Rendered, literal
 from reachlist.query import inline as inline_values
 from reachlist.render import CAUTION, fmt_count
