@@ -24,6 +24,7 @@ import polars as pl
 from reachlist.errors import EmptyResultError, InputError
 from reachlist.query import Query, template_parts, template_text
 from reachlist.targets import LEVEL_COLUMN, Level, Target, Window, day_of
+from reachlist.wording import option
 
 if TYPE_CHECKING:
     from reachlist.rules import RuleSet
@@ -97,10 +98,12 @@ def choose_rules(
     if rank_by not in RANK_MEASURES:
         raise InputError(
             f"Expected a ranking measure of {', '.join(RANK_MEASURES)}, found {rank_by!r}.",
-            hint="pass --rank-by leverage (or confidence, lift, support, conviction, n_both)",
+            hint=f"pass {option('rank_by')} leverage (or confidence, lift, support, conviction, n_both)",
         )
     if top < 1:
-        raise InputError(f"Expected --top of at least 1, found {top}.", hint="pass --top 5")
+        raise InputError(
+            f"Expected {option('top')} of at least 1, found {top}.", hint=f"pass {option('top')} 5"
+        )
     frame = rules.frame
     if rule_ids:
         wanted = list(dict.fromkeys(rule_ids))
@@ -119,7 +122,7 @@ def choose_rules(
             raise EmptyResultError(
                 f"Expected at least one significant rule toward {rules.target}, found "
                 f"{rules.frame.height} rule(s) and none significant after correction.",
-                hint="widen the window, lower --min-support, or pick rules by id with --rule",
+                hint=f"widen the window, lower {option('min_support')}, or pick rules by id with {option('rule_ids')}",
             )
     if "breadth_lift" in frame.columns:
         frame = frame.with_columns(pl.col("breadth_lift").fill_nan(None))
@@ -129,7 +132,7 @@ def choose_rules(
         raise InputError(
             f"Expected rules with a breadth_lift to rank by it, found rules mined from "
             f"{rules.basket} baskets without one.",
-            hint="mine with --basket customer, or pass --rank-by leverage",
+            hint=f"mine with {option('basket')} customer, or pass {option('rank_by')} leverage",
         )
     frame = frame.sort(
         [rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True
@@ -198,7 +201,7 @@ class Filters:
         if self.ordered_within_days is not None and self.ordered_within_days < 1:
             raise InputError(
                 f"Expected a number of days of at least 1, found {self.ordered_within_days}.",
-                hint="pass --ordered-within 90, or leave it out",
+                hint=f"pass {option('ordered_within_days')} 90, or leave it out",
             )
 
 
@@ -220,13 +223,13 @@ class AudienceSpec:
         if not self.rules:
             raise EmptyResultError(
                 f"Expected at least one rule to build the audience for {self.target}, found none.",
-                hint="choose rules with --top or --rule",
+                hint=f"choose rules with {option('top')} or {option('rule_ids')}",
             )
         if self.age_restricted and self.adult_born_by is None:
             raise InputError("An age-restricted target needs adult_born_by (internal).")
         if self.bought_within_days is not None and self.bought_within_days < 1:
             raise InputError(
-                f"Expected --bought-within of at least 1 day, found {self.bought_within_days}.",
+                f"Expected {option('bought_within_days')} of at least 1 day, found {self.bought_within_days}.",
                 hint="leave it out to exclude everyone who ever bought the target",
             )
 

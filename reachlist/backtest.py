@@ -33,6 +33,7 @@ from reachlist.estimate import (
 from reachlist.stats import gains_chart_points, gains_table
 from reachlist.targets import Target, Window, _as_datetime, parse_target, resolve_target
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["Backtest", "BacktestRow", "backtest"]
 
@@ -136,10 +137,11 @@ def backtest(
     within ``horizon_days``, and count who actually bought."""
     from reachlist.rules import mine_rules
 
-    at = _as_datetime(cutoff, "--cutoff")
+    at = _as_datetime(cutoff, option("cutoff"))
     if horizon_days < 1:
         raise InputError(
-            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+            f"Expected a horizon of at least 1 day, found {horizon_days}.",
+            hint=f"pass {option('horizon_days')} 30",
         )
     tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
     window = Window(at - timedelta(days=LOOKBACK_DAYS), at)

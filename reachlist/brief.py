@@ -21,6 +21,7 @@ from reachlist.query import Query
 from reachlist.stats.power import minimum_detectable_uplift
 from reachlist.targets import parse_target
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 SCHEMA_VERSION = 1
 
@@ -45,7 +46,7 @@ def _find(log: CampaignLog, campaign_id: str) -> tuple[CampaignLog, dict[str, An
     raise InputError(
         f"Expected campaign {campaign_id!r} in the campaign log at {log.where}, found no such "
         "campaign.",
-        hint="list the logged campaigns with `reachlist campaigns` (with --state PATH when the "
+        hint=f"list the logged campaigns with `reachlist campaigns` (with {option('state')} PATH when the "
         "log is kept in a local file)",
     )
 

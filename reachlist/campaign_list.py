@@ -22,6 +22,7 @@ from reachlist.campaigns import CampaignLog
 from reachlist.errors import InputError
 from reachlist.estimate import DEFAULT_HORIZON
 from reachlist.query import Query
+from reachlist.wording import option
 
 MAX_LIMIT = 10_000
 """The most campaigns one listing reads from each log (a bound, not a page size)."""
@@ -92,7 +93,7 @@ def list_campaigns(log: CampaignLog, *, today: date, limit: int = 50) -> Campaig
     if not 1 <= limit <= MAX_LIMIT:
         raise InputError(
             f"Expected a limit from 1 to {MAX_LIMIT:,} campaigns, found {limit:,}.",
-            hint="pass --limit 50 (the newest campaigns come first)",
+            hint=f"pass {option('limit')} 50 (the newest campaigns come first)",
         )
     rows: list[dict[str, Any]] = []
     total = 0
@@ -122,7 +123,7 @@ def campaign_file_text(log: CampaignLog, campaign_id: str) -> str:
             raise InputError(
                 f"Expected campaign {campaign_id!r} to have been built from a campaign file, "
                 "found one built from command-line options.",
-                hint="its options are in the log's parameters; `reachlist campaigns --json` "
+                hint=f"its options are in the log's parameters; `reachlist campaigns {option('as_json=True')}` "
                 "lists the campaigns",
             )
         return str(text)

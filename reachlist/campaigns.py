@@ -38,6 +38,7 @@ from reachlist.errors import InputError, ReachlistError, StateError, WarehouseEr
 from reachlist.query import Query
 from reachlist.schema import LOG_TABLES
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["GROUPS", "CampaignLog", "CampaignRecord", "check_campaign_id"]
 
@@ -50,7 +51,7 @@ def check_campaign_id(campaign_id: str) -> str:
         raise InputError(
             f"Expected a campaign id of letters, digits and . _ : - (at most 80, starting with a "
             f"letter or digit), found {campaign_id!r}.",
-            hint="pass --campaign spring-mats-2026",
+            hint=f"pass {option('campaign_id')} spring-mats-2026",
         )
     return campaign_id
 
@@ -127,7 +128,7 @@ class CampaignLog:
             return cls(warehouse)
         if "://" in state:
             raise InputError(
-                f"Expected --state to be a local DuckDB file, found the URL {state!r}.",
+                f"Expected {option('state')} to be a local DuckDB file, found the URL {state!r}.",
                 hint="pass a path such as reachlist-state.duckdb",
             )
         return cls(
@@ -187,7 +188,7 @@ class CampaignLog:
             raise StateError(
                 f"Campaign {campaign_id!r} is already in the campaign log at {self.where}; "
                 "nothing was written.",
-                hint="pass --replace to overwrite its record, or choose another --campaign id",
+                hint=f"pass {option('replace=True')} to overwrite its record, or choose another {option('campaign_id')} id",
             )
 
     def recent_contacts(self, since: datetime, *, other_than: str | None = None) -> pl.Series:
@@ -308,7 +309,7 @@ class CampaignLog:
                             f"Could not create the campaign log table {table} in {self.where} "
                             f"({exc.message.rstrip('.')}); nothing was written.",
                             hint="when the warehouse is read-only, keep the log locally with "
-                            "--state PATH",
+                            f"{option('state')} PATH",
                         ) from None
                 if exists:
                     for table in LOG_TABLES:
@@ -337,7 +338,7 @@ class CampaignLog:
             raise InputError(
                 f"Expected campaign {campaign_id!r} in the campaign log at {self.where}, found no "
                 "such campaign.",
-                hint="list the logged campaigns with `reachlist campaigns` (with --state PATH when "
+                hint=f"list the logged campaigns with `reachlist campaigns` (with {option('state')} PATH when "
                 "the log is kept in a local file)",
             )
         parameters = dict(record["parameters"])
@@ -373,13 +374,13 @@ class CampaignLog:
             return StateError(
                 f"Campaign {campaign_id!r} was logged in {self.where} by another build while "
                 "this one ran; this build wrote nothing (no log rows, no list file).",
-                hint="check `reachlist results` for the campaign that was logged; pass --replace "
+                hint=f"check `reachlist results` for the campaign that was logged; pass {option('replace=True')} "
                 "to replace it with this build's list",
             )
         return StateError(
             f"Could not write the campaign log table {table} in {self.where} "
             f"({text}); nothing was written.",
-            hint="when the warehouse is read-only, keep the log locally with --state PATH",
+            hint=f"when the warehouse is read-only, keep the log locally with {option('state')} PATH",
         )
 
     # -- reading ---------------------------------------------------------------------------------

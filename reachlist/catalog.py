@@ -20,6 +20,7 @@ from reachlist.errors import EmptyResultError, InputError
 from reachlist.query import Query
 from reachlist.targets import LEVEL_COLUMN, Window, mining_window
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["DEFAULT_MOST_COUNTED", "DEFAULT_TOP", "ItemSearch", "find_items", "like_pattern"]
 
@@ -93,7 +94,7 @@ def find_items(
     if top < 1 or most_counted < 1:
         raise InputError(
             f"Expected top and most_counted of at least 1, found {top} and {most_counted}.",
-            hint="pass --top 1 or more",
+            hint=f"pass {option('top')} 1 or more",
         )
     cleaned = _check_text(text)
     window = mining_window(wh, since, until)
@@ -175,6 +176,6 @@ def find_items(
         if matched[kind] > shown:
             notes.append(
                 f"{shown:,} of {matched[kind]:,} matching {label} shown, most buyers "
-                "first (--top to change)."
+                f"first ({option('top')} to change)."
             )
     return ItemSearch(cleaned, window, items, matched, notes)

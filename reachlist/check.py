@@ -24,6 +24,7 @@ from reachlist.query import Query
 from reachlist.schema import CONTRACT, LOG_TABLES, SOURCE_TABLES, Kind
 from reachlist.types import INCOMPATIBLE, cast_for
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 Severity = Literal["error", "warning"]
 
@@ -175,7 +176,7 @@ def _data_problems(wh: Warehouse, counts: dict[str, Any], today: date) -> list[P
                 "customers.customer_id",
                 f"{dup['duplicated_ids']:,} ids on {dup['duplicate_rows']:,} rows",
                 "keep one row per customer (lists refuse this warehouse), or build with "
-                "--merge-duplicates to read each by its strictest row",
+                f"{option('merge_duplicates=True')} to read each by its strictest row",
             )
         )
     nulls = wh.fetch(Query.from_template("null_ids")).row(0, named=True)
@@ -251,7 +252,7 @@ def _far_months(rows: list[tuple[Any, ...]]) -> list[Problem]:
                 "orders far from the rest",
                 "orders.ordered_at",
                 f"{n:,} orders in {span}; the history runs {bulk[0][2]:%Y-%m}..{bulk[-1][2]:%Y-%m}",
-                "fix the dates (a typed year?); windows you pass with --since/--until leave them out",
+                f"fix the dates (a typed year?); windows you pass with {option('since')}/{option('until')} leave them out",
                 "warning",
             )
         )

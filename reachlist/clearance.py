@@ -11,6 +11,7 @@ from reachlist.errors import InputError
 from reachlist.estimate import Calibrated
 from reachlist.planning import Plan, item_buyers, item_facts
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["NOT_NEEDED", "Clearance", "size_to_stock"]
 
@@ -45,14 +46,14 @@ def size_to_stock(
     and the clearance says so."""
     req = plan.request
     if req.stock is not None:
-        stock, stock_from = req.stock, "--stock"
+        stock, stock_from = req.stock, option("stock")
     else:
         on_hand = item_facts(wh, plan.target)["stock_on_hand"]
         if on_hand is None or on_hand <= 0:
             raise InputError(
                 f"Expected a stock to clear for {plan.target}, found products.stock_on_hand "
                 f"{on_hand!r}.",
-                hint="pass --stock N with the units to clear",
+                hint=f"pass {option('stock')} N with the units to clear",
             )
         stock, stock_from = int(on_hand), "products.stock_on_hand"
     kept = frame.filter(pl.col("excluded_by").is_null())

@@ -52,3 +52,11 @@ class EmptyResultError(ReachlistError):
 
 class StateError(ReachlistError):
     """The campaign log or the file system refuses a change that would lose data."""
+
+
+def brief(exc: BaseException) -> str:
+    """What went wrong, without the fix: for a note inside a report (the fix belongs to errors
+    shown on their own line)."""
+    if isinstance(exc, ReachlistError):
+        return exc.message.rstrip(".")
+    return (str(exc).strip().splitlines() or [type(exc).__name__])[0]

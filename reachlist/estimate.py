@@ -68,6 +68,7 @@ from reachlist.targets import (
     last_order_day,
 )
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = [
     "BREADTH_DAYS",
@@ -116,7 +117,8 @@ def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: in
     one query (sql/takeup_history.sql); reads nothing at or after ``as_of``."""
     if not 0 <= last <= MOST_CUTOFFS:
         raise InputError(
-            f"Expected at most {MOST_CUTOFFS} cutoffs, found {last}.", hint="pass --cutoffs 13"
+            f"Expected at most {MOST_CUTOFFS} cutoffs, found {last}.",
+            hint=f"pass {option('cutoffs')} 13",
         )
     ks = range(last + 1)
     numbers = "(VALUES " + ", ".join(f"({k})" for k in ks) + ")"
@@ -293,7 +295,7 @@ def _snapshot(
     if people.height == 0:
         raise EmptyResultError(
             f"Expected customers lacking {target} at {at:%Y-%m-%d}, found none.",
-            hint="choose a later --as-of or a target fewer customers already hold",
+            hint=f"choose a later {option('as_of')} or a target fewer customers already hold",
         )
     if edges is None:
         edges = breadth_deciles(people["breadth"].to_numpy())
@@ -417,7 +419,7 @@ def _history(
         raise EmptyResultError(
             f"Expected at least {MIN_HISTORY_DAYS + horizon} days of order history before "
             f"{as_of:%Y-%m-%d} to calibrate a {horizon}-day take-up estimate, found less.",
-            hint="choose a later --as-of or a shorter --horizon",
+            hint=f"choose a later {option('as_of')} or a shorter {option('horizon_days')}",
         )
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
     frames = takeup_history(wh, target, as_of, horizon, len(ats))
@@ -557,7 +559,8 @@ def calibrate_audience(
     """Backtests and calibration for an audience definition; reads nothing at or after as_of."""
     if horizon_days < 1:
         raise InputError(
-            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+            f"Expected a horizon of at least 1 day, found {horizon_days}.",
+            hint=f"pass {option('horizon_days')} 30",
         )
     if spec is None and customers is None:
         raise InputError(
@@ -565,7 +568,7 @@ def calibrate_audience(
             hint="pass customers=... or spec=...",
         )
     if as_of is not None:
-        when = _as_datetime(as_of, "--as-of")
+        when = _as_datetime(as_of, option("as_of"))
     elif spec is not None:
         when = spec.lookback.until
     else:
@@ -735,7 +738,7 @@ def holdout_planning(
         try:
             needed = holdout_share_needed(list_size, rate, wanted_uplift, alpha=alpha, power=power)
         except ReachlistError as exc:
-            note = str(exc)
+            note = exc.message
     return HoldoutPlanning(
         list_size, share, rate, detectable, wanted_uplift, needed, note, alpha, power
     )

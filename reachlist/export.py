@@ -27,6 +27,7 @@ from pathlib import Path
 import polars as pl
 
 from reachlist.errors import InputError, StateError
+from reachlist.wording import option
 
 __all__ = [
     "FORMATS",
@@ -89,7 +90,7 @@ def check_destination(
     if p.exists() and not force:
         raise StateError(
             f"{'List file' if list_file else 'File'} {str(p)!r} already exists; nothing was written.",
-            hint="pass --force to overwrite it, or choose another --out",
+            hint=f"pass {option('force=True')} to overwrite it, or choose another {option('out')}",
         )
     if not p.parent.is_dir():
         raise StateError(
@@ -128,7 +129,7 @@ class StagedFile:
             raise StateError(
                 f"List file {str(self.final)!r} appeared while the list was being built; "
                 "it was kept and nothing was written there.",
-                hint="pass --force to overwrite it, or choose another --out",
+                hint=f"pass {option('force=True')} to overwrite it, or choose another {option('out')}",
             )
         try:
             if self.final.exists():
@@ -273,7 +274,7 @@ def stage_text(text: str, path: str | os.PathLike[str], *, force: bool = False) 
     if final.exists() and not force:
         raise StateError(
             f"File {str(final)!r} already exists; nothing was written.",
-            hint="pass --force to overwrite it, or choose another --out",
+            hint=f"pass {option('force=True')} to overwrite it, or choose another {option('out')}",
         )
     temp = _hidden(final)
     try:

@@ -29,7 +29,7 @@ from pathlib import Path
 from typing import Literal
 
 from reachlist import statements
-from reachlist.errors import InputError
+from reachlist.errors import InputError, brief
 from reachlist.query import HOLDINGS, Query
 from reachlist.warehouse import Warehouse
 
@@ -198,7 +198,7 @@ def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = 
             return Prepared(
                 "stale",
                 path,
-                f"Holdings out of date ({changed}) and not rebuilt ({exc}); reading the order "
+                f"Holdings out of date ({changed}) and not rebuilt ({brief(exc)}); reading the order "
                 "lines instead (slower). `reachlist holdings` rebuilds them.",
             )
         return Prepared(

@@ -21,6 +21,7 @@ import hashlib
 import polars as pl
 
 from reachlist.errors import InputError
+from reachlist.wording import option
 
 __all__ = [
     "DEFAULT_GLOBAL_SHARE",
@@ -46,7 +47,7 @@ def check_share(share: float) -> float:
     if not 0.0 <= share < 1.0:
         raise InputError(
             f"Expected a holdout share in [0, 1), found {share}.",
-            hint="pass --holdout 0.1 for 10% (0 keeps no holdout and so no way to measure)",
+            hint=f"pass {option('holdout')} 0.1 for 10% (0 keeps no holdout and so no way to measure)",
         )
     return share
 
@@ -85,6 +86,6 @@ def global_holdout(customer_ids: pl.Series, share: float, seed: str = GLOBAL_SEE
     if not 0.0 <= share < 0.5:
         raise InputError(
             f"Expected a global holdout share in [0, 0.5), found {share}.",
-            hint="pass --global-holdout 0.02 for 2% (0 switches it off)",
+            hint=f"pass {option('global_holdout')} 0.02 for 2% (0 switches it off)",
         )
     return assign_holdout(seed, customer_ids, share).alias("global_holdout")

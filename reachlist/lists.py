@@ -60,10 +60,14 @@ from reachlist.holdout import (
 )
 from reachlist.planning import Plan
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["BUILD_STAGES", "Built", "ListOutcome", "RuleReach", "build_list", "preview_list"]
 
-SKIPPED = "skipped with --no-estimate"
+
+def skipped_note() -> str:
+    """Why a preview has no estimate when it was not asked for one."""
+    return f"skipped with {option('estimate=False')}"
 
 
 @dataclass(frozen=True)
@@ -239,7 +243,7 @@ def _excluded(
     if req.global_holdout > 0:
         notes["global_holdout"] = f"{req.global_holdout:.0%} of all customers"
     else:
-        notes["global_holdout"] = "switched off (--global-holdout 0)"
+        notes["global_holdout"] = f"switched off ({option('global_holdout')} 0)"
     if plan.spec.contact:
         frame = frame.with_columns(
             (~pl.col("email").cast(pl.String).str.contains("@").fill_null(False)).alias(
@@ -248,15 +252,15 @@ def _excluded(
         )
     else:
         frame = frame.with_columns(pl.lit(False).alias("no_address"))
-        notes["no_address"] = "no --with-contact"
+        notes["no_address"] = f"no {option('contact=True')}"
 
     in_use = {"has_target", "returned_target"}
     if req.ignore_consent:
-        notes["no_consent"] = "switched off (--ignore-consent)"
+        notes["no_consent"] = f"switched off ({option('ignore_consent=True')})"
     else:
         in_use.add("no_consent")
     if req.ignore_suppressions:
-        notes["suppressed"] = "switched off (--ignore-suppressions)"
+        notes["suppressed"] = f"switched off ({option('ignore_suppressions=True')})"
     else:
         in_use.add("suppressed")
     if req.cap_days > 0:
@@ -266,7 +270,7 @@ def _excluded(
         elif log.also:
             notes["contacted_recently"] = "read " + " and ".join(log.read_from)
     else:
-        notes["contacted_recently"] = "not used (--cap-days 0)"
+        notes["contacted_recently"] = f"not used ({option('cap_days')} 0)"
     if log is not None:
         in_use.add("held_out_elsewhere")
     if req.global_holdout > 0:
@@ -312,7 +316,7 @@ def _finish(
     cal: Calibrated | None = None
     note: str | None = None
     if not req.estimate:
-        note = SKIPPED
+        note = skipped_note()
     else:
         cal, note = _calibrate(wh, plan, frame.filter(pl.col("excluded_by").is_null()))
     clearance = None
@@ -443,19 +447,19 @@ def _settle(
     sizes = ", ".join(f"{r.rule_id} ({own.get(r.rank, 0):,})" for r in small)
     if plan.request.rule_ids:  # picked by hand: keep them, but say so
         note = (
-            f"Rule(s) {sizes} reach fewer than --min-audience {minimum:,} customers after "
+            f"Rule(s) {sizes} reach fewer than {option('min_audience')} {minimum:,} customers after "
             "the exclusions; kept because they were picked by id."
         )
         return dataclasses.replace(plan, notes=(*plan.notes, note)), frame, waterfall, pairs
     rules = tuple(r for r in plan.rules if r not in small)
     if not rules:
         raise EmptyResultError(
-            f"Expected a rule whose audience after exclusions has at least --min-audience "
+            f"Expected a rule whose audience after exclusions has at least {option('min_audience')} "
             f"{minimum:,} customers, found none: {sizes}.",
-            hint="lower --min-audience, widen the window, or raise --top",
+            hint=f"lower {option('min_audience')}, widen the window, or raise {option('top')}",
         )
     note = (
-        f"Not proposed: rule(s) {sizes} reach fewer than --min-audience {minimum:,} "
+        f"Not proposed: rule(s) {sizes} reach fewer than {option('min_audience')} {minimum:,} "
         "customers after the exclusions."
     )
     plan = dataclasses.replace(

@@ -34,6 +34,7 @@ from reachlist.targets import (
     resolve_target,
 )
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["ADVICE", "MAX_ITEMS", "OverlapReport", "OverlapSet", "promotion_overlap"]
 
@@ -88,7 +89,9 @@ def promotion_overlap(
     one level) for being bought together more often than chance."""
     kind = check_basket(basket)
     if not 0 < alpha < 1:
-        raise InputError(f"Expected --alpha between 0 and 1, found {alpha}.", hint="pass 0.05")
+        raise InputError(
+            f"Expected {option('alpha')} between 0 and 1, found {alpha}.", hint="pass 0.05"
+        )
     targets = [resolve_target(wh, parse_target(i)) for i in items]
     names = list(dict.fromkeys(t.name for t in targets))
     levels = {t.level for t in targets}
@@ -111,7 +114,8 @@ def promotion_overlap(
     )
     if n_baskets == 0:
         raise EmptyResultError(
-            f"Expected baskets in {window}, found none.", hint="widen the window with --since"
+            f"Expected baskets in {window}, found none.",
+            hint=f"widen the window with {option('since')}",
         )
     pairs = wh.fetch(
         Query.from_template("basket_items", {**held.params, "items": names}, held=held.sql.strip())

@@ -50,6 +50,7 @@ from reachlist.targets import (
     resolve_target,
 )
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 if TYPE_CHECKING:
     from reachlist.rules import RuleSet
@@ -170,7 +171,7 @@ def plan_list(
     if request.purpose not in PURPOSES:
         raise InputError(
             f"Expected a purpose of {' or '.join(PURPOSES)}, found {request.purpose!r}.",
-            hint="pass --purpose introduce (new or under-adopted item) or --purpose clear "
+            hint=f"pass {option('purpose')} introduce (new or under-adopted item) or {option('purpose')} clear "
             "(surplus stock)",
         )
     check_share(request.holdout)
@@ -182,53 +183,53 @@ def plan_list(
             f"Expected a global holdout seed of 1 to 80 characters, found {request.global_seed!r}.",
             hint=f"leave it at {GLOBAL_SEED!r} unless your organisation keeps its own",
         )
-    for value, option, low, high in (
-        (request.cap_days, "--cap-days", 0, MAX_CAP_DAYS),
-        (request.horizon_days, "--horizon", 1, MAX_HORIZON_DAYS),
-        (request.bought_within_days, "--bought-within", 1, MAX_DAYS_BACK),
-        (request.filters.ordered_within_days, "--ordered-within", 1, MAX_DAYS_BACK),
+    for value, name, low, high in (
+        (request.cap_days, "cap_days", 0, MAX_CAP_DAYS),
+        (request.horizon_days, "horizon_days", 1, MAX_HORIZON_DAYS),
+        (request.bought_within_days, "bought_within_days", 1, MAX_DAYS_BACK),
+        (request.filters.ordered_within_days, "ordered_within_days", 1, MAX_DAYS_BACK),
     ):
         if value is not None and not low <= value <= high:
             raise InputError(
-                f"Expected {option} from {low:,} to {high:,} days, found {value:,}.",
-                hint=f"pass {option} with a number of days in that range",
+                f"Expected {option(name)} from {low:,} to {high:,} days, found {value:,}.",
+                hint=f"pass {option(name)} with a number of days in that range",
             )
     if request.cutoffs < 1:
         raise InputError(
-            f"Expected --cutoffs of at least 1, found {request.cutoffs}.",
-            hint="pass --cutoffs 3 for a quick estimate on a large warehouse, or --no-estimate",
+            f"Expected {option('cutoffs')} of at least 1, found {request.cutoffs}.",
+            hint=f"pass {option('cutoffs')} 3 for a quick estimate on a large warehouse, or {option('estimate=False')}",
         )
     if request.horizon_days < 1:
         raise InputError(
-            f"Expected --horizon of at least 1 day, found {request.horizon_days}.",
-            hint="pass --horizon 30",
+            f"Expected {option('horizon_days')} of at least 1 day, found {request.horizon_days}.",
+            hint=f"pass {option('horizon_days')} 30",
         )
     if request.min_audience < 0:
         raise InputError(
-            f"Expected --min-audience of at least 0, found {request.min_audience}.",
-            hint=f"pass --min-audience {DEFAULT_MIN_AUDIENCE}, or 0 for no minimum",
+            f"Expected {option('min_audience')} of at least 0, found {request.min_audience}.",
+            hint=f"pass {option('min_audience')} {DEFAULT_MIN_AUDIENCE}, or 0 for no minimum",
         )
     if request.stock is not None and request.stock < 1:
         raise InputError(
-            f"Expected --stock of at least 1 unit, found {request.stock}.",
+            f"Expected {option('stock')} of at least 1 unit, found {request.stock}.",
             hint="leave it out to use products.stock_on_hand",
         )
     if request.offer_code is not None and not OFFER_CODE.fullmatch(request.offer_code):
         raise InputError(
-            f"Expected --offer-code of 1 to 64 letters, digits or - _ . / (a coupon or promotion "
+            f"Expected {option('offer_code')} of 1 to 64 letters, digits or - _ . / (a coupon or promotion "
             f"code), found {request.offer_code!r}.",
-            hint="pass the code as the CRM platform knows it, for example --offer-code MAT-WINTER-15",
+            hint=f"pass the code as the CRM platform knows it, for example {option('offer_code')} MAT-WINTER-15",
         )
     built_at = now or datetime.now(UTC).replace(tzinfo=None)
     send_at = (
-        _day_start(_as_datetime(request.send_date, "--send-date"))
+        _day_start(_as_datetime(request.send_date, option("send_date")))
         if request.send_date is not None
         else None
     )
     if send_at is not None:
         now = send_at
     elif request.until is not None and now is None:
-        now = _day_start(_as_datetime(request.until, "--until"))
+        now = _day_start(_as_datetime(request.until, option("until")))
     else:
         now = built_at
     merged = check_duplicate_customers(wh, merge=request.merge_duplicates)
@@ -246,7 +247,7 @@ def plan_list(
     if merged:
         notes.append(
             f"{merged:,} customer id(s) are on more than one row of customers "
-            "(--merge-duplicates): each is listed once and read by its strictest row."
+            f"({option('merge_duplicates=True')}): each is listed once and read by its strictest row."
         )
     if rules_target != target:
         notes.append(
@@ -280,7 +281,7 @@ def plan_list(
             notes.append(
                 f"Not chosen: rule(s) {', '.join(below)}, whose breadth-matched lift lies below 1 "
                 "(95% interval): their holders buy the target less often than customers who "
-                "shop as broadly. Pick one with --rule ID to use it anyway."
+                f"shop as broadly. Pick one with {option('rule_ids')} ID to use it anyway."
             )
     weak = [r.rule_id for r in chosen if not r.significant]
     if weak:
@@ -294,13 +295,17 @@ def plan_list(
         raise InputError(
             f"Expected no sensitive items, found {', '.join(sensitive)} (products.sensitive): "
             "lists inferred from such purchases can be unlawful or harmful.",
-            hint="check with your data-protection lead, then pass --allow-sensitive",
+            hint=f"check with your data-protection lead, then pass {option('allow_sensitive=True')}",
         )
     overrides = []
     if request.ignore_consent:
-        overrides.append("marketing-consent exclusion switched off (--ignore-consent)")
+        overrides.append(
+            f"marketing-consent exclusion switched off ({option('ignore_consent=True')})"
+        )
     if request.ignore_suppressions:
-        overrides.append("suppression-list exclusion switched off (--ignore-suppressions)")
+        overrides.append(
+            f"suppression-list exclusion switched off ({option('ignore_suppressions=True')})"
+        )
     campaign_id = check_campaign_id(
         request.campaign_id or default_campaign_id(target, request.purpose, now.date())
     )
@@ -350,15 +355,15 @@ def check_duplicate_customers(wh: Warehouse, *, merge: bool = False) -> int:
             f"one row ({rows:,} rows); rows that disagree on consent or age make the list "
             "unsafe.",
             hint="run `reachlist check` to see them and fix the table, or pass "
-            "--merge-duplicates to read each such customer by its strictest row",
+            f"{option('merge_duplicates=True')} to read each such customer by its strictest row",
         )
     return ids
 
 
 # Filter values are checked against these columns (fixed fragments, never user text).
 _FILTER_COLUMNS = {
-    "region": ("customers", "region", "--region"),
-    "channel": ("orders", "channel", "--channel"),
+    "region": ("customers", "region", "regions"),
+    "channel": ("orders", "channel", "channels"),
 }
 
 
@@ -370,7 +375,8 @@ def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tu
     missing value and the closest present ones (``north`` -> ``North``)."""
     if not values:
         return values
-    table, column, option = _FILTER_COLUMNS[kind]
+    table, column, name = _FILTER_COLUMNS[kind]
+    flag = option(name)
     present = wh.fetch(
         Query.from_template(
             "filter_values_present", {"values": list(values)}, table=table, column=column
@@ -396,16 +402,16 @@ def check_filter_values(wh: Warehouse, kind: str, values: tuple[str, ...]) -> tu
         if c.lower() != value.lower()
     ]
     if close:
-        hint = f"did you mean {option} {close[0]!r}?" + (
+        hint = f"did you mean {flag} {close[0]!r}?" + (
             f" (or {', '.join(repr(c) for c in close[1:3])})" if close[1:] else ""
         )
     elif known:
         shown = ", ".join(repr(k) for k in known[:8]) + (", ..." if len(known) > 8 else "")
         hint = f"use one of the values in {table}.{column}: {shown}"
     else:
-        hint = f"{table}.{column} holds no values; leave {option} out"
+        hint = f"{table}.{column} holds no values; leave {flag} out"
     raise InputError(
-        f"Expected {option} values present in {table}.{column}, found {value!r}, which no "
+        f"Expected {flag} values present in {table}.{column}, found {value!r}, which no "
         f"{'customer' if table == 'customers' else 'order'} has (values are case-sensitive).",
         hint=hint,
     )
@@ -446,7 +452,7 @@ HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
 def _stand_in_hint(wh: Warehouse, target: Target, until: datetime) -> str:
     """How to introduce an item nobody has bought: name its own category (or department)."""
     generic = (
-        "pass --stand-in with an existing sku or category:NAME whose buyers are like the ones "
+        f"pass {option('stand_in')} with an existing sku or category:NAME whose buyers are like the ones "
         "you want"
     )
     if target.level != "sku":
@@ -462,7 +468,7 @@ def _stand_in_hint(wh: Warehouse, target: Target, until: datetime) -> str:
         buyers = item_buyers(wh, group, until)[0]
         if buyers:
             return (
-                f"pass --stand-in {level}:{quote_option(str(name))} (its own {level}: "
+                f"pass {option('stand_in')} {level}:{quote_option(str(name))} (its own {level}: "
                 f"{buyers:,} buyers), or another item whose buyers are like the ones you want"
             )
     return generic

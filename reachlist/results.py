@@ -39,6 +39,7 @@ from reachlist.targets import (
     parse_target,
 )
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 __all__ = ["CampaignResults", "GroupTakeUp", "buyers_query", "campaign_results"]
 
@@ -164,14 +165,15 @@ def campaign_results(
     """Take-up in treatment and holdout within ``horizon_days`` of each contact's send time."""
     if horizon_days < 1:
         raise InputError(
-            f"Expected a horizon of at least 1 day, found {horizon_days}.", hint="pass --horizon 30"
+            f"Expected a horizon of at least 1 day, found {horizon_days}.",
+            hint=f"pass {option('horizon_days')} 30",
         )
     record = log.campaign(campaign_id)
     if record is None:
         raise InputError(
             f"Expected campaign {campaign_id!r} in the campaign log at {log.where}, found no such "
             "campaign.",
-            hint="check the id (it is printed by `reachlist build`), or pass --state PATH when "
+            hint=f"check the id (it is printed by `reachlist build`), or pass {option('state')} PATH when "
             "the log is kept in a local file",
         )
     target = parse_target(str(record["target"]))

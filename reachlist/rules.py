@@ -39,6 +39,7 @@ from reachlist.targets import (
     resolve_target,
 )
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 DEFAULT_MIN_SUPPORT = 0.002
 BREADTH_LIFT = "breadth_lift"
@@ -142,14 +143,14 @@ def mine_rules(
         raise EmptyResultError(
             f"No {kind} basket in {window} holds the target {str(tgt)!r}, so no rule can point "
             "to it.",
-            hint="widen the window with --since, or target a new item through --stand-in",
+            hint=f"widen the window with {option('since')}, or target a new item through {option('stand_in')}",
         )
     say(f"Counting itemsets in {baskets.n_baskets:,} baskets")
     if rank_by == BREADTH_LIFT and kind != "customer":
         raise InputError(
-            f"Expected --basket customer to rank by {BREADTH_LIFT}, found --basket {kind}: "
+            f"Expected {option('basket')} customer to rank by {BREADTH_LIFT}, found {option('basket')} {kind}: "
             "shopping breadth is a property of a customer, not of one order.",
-            hint="pass --basket customer, or rank by lift",
+            hint=f"pass {option('basket')} customer, or rank by lift",
         )
     options = dict(
         min_support=min_support,
@@ -358,7 +359,7 @@ def _why_empty(
     if n_y / n < min_support:
         return (
             f"No rule toward {label!r}: the target is held by {n_y:,} of {n:,} baskets "
-            f"({n_y / n:.3%}), below --min-support {min_support:.3%}; lower --min-support below "
+            f"({n_y / n:.3%}), below {option('min_support')} {min_support:.3%}; lower {option('min_support')} below "
             f"{n_y / n:.3%}"
         )
     every = mining.target_rules(
@@ -372,23 +373,23 @@ def _why_empty(
     if every.height == 0:
         return (
             f"No rule toward {label!r}: no antecedent is held together with the target by "
-            f"--min-support {min_support:.3%} of baskets; lower --min-support"
+            f"{option('min_support')} {min_support:.3%} of baskets; lower {option('min_support')}"
         )
     best_conf = float(every["confidence"].max())  # type: ignore[arg-type]
     best_lift = float(every["lift"].max())  # type: ignore[arg-type]
     if best_conf < min_confidence:
         return (
             f"No rule toward {label!r}: {every.height} rules meet support but the best "
-            f"confidence is {best_conf:.3f}, below --min-confidence {min_confidence}"
+            f"confidence is {best_conf:.3f}, below {option('min_confidence')} {min_confidence}"
         )
     if best_lift < min_lift:
         return (
             f"No rule toward {label!r}: {every.height} rules meet support but the best lift is "
-            f"{best_lift:.3f}, below --min-lift {min_lift}"
+            f"{best_lift:.3f}, below {option('min_lift')} {min_lift}"
         )
     return (
         f"No rule toward {label!r}: the {every.height} rules that meet the thresholds are all "
-        "unproductive (a shorter antecedent does as well); pass --keep-unproductive"
+        f"unproductive (a shorter antecedent does as well); pass {option('keep_unproductive=True')}"
         if not keep_unproductive
         else f"No rule toward {label!r} meets all thresholds together"
     )
@@ -486,7 +487,7 @@ def strongest_rules(
     if measure not in MEASURES:
         raise InputError(
             f"Expected a measure of {', '.join(MEASURES)}, found {measure!r}.",
-            hint="pass --rank-by lift, --rank-by confidence, ...",
+            hint=f"pass {option('rank_by')} lift, {option('rank_by')} confidence, ...",
         )
     window = mining_window(wh, since, until)
     say(f"Reading {kind} baskets for {window}")
@@ -519,8 +520,8 @@ def strongest_rules(
     )
     if frame.height == 0:
         raise EmptyResultError(
-            f"No rule meets --min-support {min_support:.3%}, --min-confidence {min_confidence} "
-            f"and --min-lift {min_lift} in {window}.",
-            hint="lower --min-support first",
+            f"No rule meets {option('min_support')} {min_support:.3%}, {option('min_confidence')} {min_confidence} "
+            f"and {option('min_lift')} {min_lift} in {window}.",
+            hint=f"lower {option('min_support')} first",
         )
     return frame, window, baskets.n_baskets, note

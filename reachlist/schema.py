@@ -31,6 +31,7 @@ from pathlib import Path
 from typing import Literal
 
 from reachlist.errors import ContractError, InputError
+from reachlist.wording import option
 
 Kind = Literal["id", "integer", "text", "boolean", "date", "timestamp", "number"]
 """``id``: an identifier that may be an integer or text (alphanumeric codes, UUIDs)."""
@@ -220,7 +221,7 @@ class Mapping:
         except FileNotFoundError:
             raise InputError(
                 f"Mapping file {str(p)!r} was not found.",
-                hint="pass --mapping with the path of an existing TOML file",
+                hint=f"pass {option('mapping')} with the path of an existing TOML file",
             ) from None
         except IsADirectoryError:
             raise InputError(

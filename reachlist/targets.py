@@ -17,6 +17,7 @@ from typing import Literal
 from reachlist.errors import InputError
 from reachlist.query import Query
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 Level = Literal["sku", "category", "department"]
 BasketKind = Literal["customer", "order"]
@@ -57,7 +58,7 @@ def check_level(level: str) -> Level:
     if level not in LEVELS:
         raise InputError(
             f"Expected an item level of {', '.join(LEVELS)}, found {level!r}.",
-            hint="pass --level sku, --level category or --level department",
+            hint=f"pass {option('level')} sku, {option('level')} category or {option('level')} department",
         )
     return level
 
@@ -66,7 +67,7 @@ def check_basket(kind: str) -> BasketKind:
     if kind not in BASKET_KINDS:
         raise InputError(
             f"Expected a basket of customer or order, found {kind!r}.",
-            hint="pass --basket customer (audiences) or --basket order (one checkout)",
+            hint=f"pass {option('basket')} customer (audiences) or {option('basket')} order (one checkout)",
         )
     return kind
 
@@ -99,7 +100,7 @@ def resolve_target(wh: Warehouse, target: Target) -> Target:
     hint = (
         f"did you mean {', '.join(repr(c) for c in close[:3])}?"
         if close
-        else f"list them with `reachlist rules --level {target.level}`"
+        else f"list them with `reachlist rules {option('level')} {target.level}`"
     )
     raise InputError(
         f"Target {str(target)!r} is not a {target.level} in products ({len(known)} known).",
@@ -184,7 +185,7 @@ class OrderHistory:
             out.append(
                 f"{self.later_orders:,} order(s) are dated after today ({self.today:%Y-%m-%d}; "
                 f"the latest {latest}): the default window ends at the last order up to today "
-                "and leaves them out. Fix their dates, or pass --until to choose the end."
+                f"and leaves them out. Fix their dates, or pass {option('until')} to choose the end."
             )
         if self.without_customer:
             out.append(
@@ -249,13 +250,13 @@ def mining_window(
     """``until`` defaults to the day after the last order not later than ``today`` (UTC today);
     ``since`` to ``days`` before it. ``history`` (from ``order_history``) saves reading it again."""
     if until is not None:
-        end = _as_day(until, "--until")
+        end = _as_day(until, option("until"))
     else:
         end = _window_end(history if history is not None else order_history(wh, today))
-    start = _as_day(since, "--since") if since is not None else end - timedelta(days=days)
+    start = _as_day(since, option("since")) if since is not None else end - timedelta(days=days)
     if start >= end:
         raise InputError(
-            f"Expected --since before --until, found {start:%Y-%m-%d} >= {end:%Y-%m-%d}.",
+            f"Expected {option('since')} before {option('until')}, found {start:%Y-%m-%d} >= {end:%Y-%m-%d}.",
             hint="widen the window",
         )
     return Window(start, end)
@@ -294,7 +295,7 @@ def day_of(moment: datetime) -> date:
     if moment.time() != datetime.min.time():
         raise InputError(
             f"Expected a window bound at the start of a day, found {moment:%Y-%m-%d %H:%M}.",
-            hint="give --since and --until as dates like 2026-01-31",
+            hint=f"give {option('since')} and {option('until')} as dates like 2026-01-31",
         )
     return moment.date()
 

@@ -10,6 +10,7 @@ from reachlist import statements
 from reachlist.errors import StateError
 from reachlist.schema import SOURCE_TABLES, Mapping
 from reachlist.warehouse import Warehouse
+from reachlist.wording import option
 
 
 def copy_warehouse(
@@ -30,7 +31,7 @@ def copy_warehouse(
                 f"Destination {dst.display_name} already has {', '.join(existing)}"
                 + (f" in schema {schema!r}" if schema else "")
                 + "; nothing was copied.",
-                hint="pass --replace to drop and reload them, or choose another --schema",
+                hint=f"pass {option('replace=True')} to drop and reload them, or choose another {option('schema')}",
             )
         ddl: list[str] = []
         if schema:

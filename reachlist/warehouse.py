@@ -29,6 +29,7 @@ from reachlist.query import (
     render,
 )
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
+from reachlist.wording import option
 
 
 def _is_url(target: str) -> bool:
@@ -89,7 +90,7 @@ class Warehouse:
             raise InputError(
                 f"Warehouse file {path!r} does not exist (expected a DuckDB file or a URL such as "
                 "postgresql+psycopg://host/db).",
-                hint="create the sample with `reachlist sample --out PATH`, or check the path",
+                hint=f"create the sample with `reachlist sample {option('out')} PATH`, or check the path",
             )
         try:
             conn = duckdb.connect(path, read_only=read_only)

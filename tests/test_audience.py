@@ -206,7 +206,7 @@ def test_rules_picked_by_id_keep_insignificant_ones() -> None:
     [
         ({"rule_ids": ["Rzz"]}, InputError, "Rzz"),
         ({"rank_by": "vibes"}, InputError, "ranking measure"),
-        ({"top": 0}, InputError, "--top"),
+        ({"top": 0}, InputError, "Expected top of"),
     ],
 )
 def test_bad_rule_choices(kwargs: dict, error: type, match: str) -> None:

@@ -108,7 +108,7 @@ def test_switching_consent_and_suppression_off_is_explicit(world: Path) -> None:
     steps = {s.key: s for s in out.waterfall}
     assert not steps["no_consent"].in_use and steps["no_consent"].removed == 0
     assert steps["no_consent"].flagged == 2  # customers 11 and 14 would have gone
-    assert "--ignore-consent" in steps["no_consent"].note
+    assert "ignore_consent=True" in steps["no_consent"].note
     assert len(plan.overrides) == 2
     assert {11, 12, 14, 19} <= set(out.listed["customer_id"].to_list())
 
@@ -169,7 +169,7 @@ def test_clearance_list_is_sized_to_the_stock(world: Path) -> None:
             wh, plan_list(wh, request(purpose="clear", holdout=0.0), rules=RULESET, now=NOW)
         )
     c = small.clearance
-    assert c is not None and c.stock_from == "--stock" and c.clears
+    assert c is not None and c.stock_from == "stock" and c.clears
     # T: customers 8 and 18 hold one unit each (7 returned theirs): 1 unit per buyer
     assert (c.buyers_seen, c.units_per_buyer) == (2, 1.0)
     # best scores first: R1 customers 1, 4 and 21 score 0.3 (7 returned the target and is
@@ -186,7 +186,7 @@ def test_clearance_list_is_sized_to_the_stock(world: Path) -> None:
 
 def test_introducing_an_item_without_history_needs_a_stand_in(world: Path) -> None:
     with Warehouse.open(world) as wh:
-        with pytest.raises(InputError, match="--stand-in"):
+        with pytest.raises(InputError, match="stand_in"):
             plan_list(wh, request(target="NEW"), rules=RULESET, now=NOW)
         plan = plan_list(wh, request(target="NEW", stand_in="T"), rules=RULESET, now=NOW)
         out = preview_list(wh, plan)
@@ -217,10 +217,10 @@ def test_picked_insignificant_rules_are_flagged_in_notes(world: Path) -> None:
     [
         ({"purpose": "sell"}, "purpose"),
         ({"holdout": 1.0}, "holdout share"),
-        ({"cap_days": -1}, "--cap-days"),
+        ({"cap_days": -1}, "cap_days"),
         ({"campaign_id": "bad id; --"}, "campaign id"),
         ({"target": "NOPE"}, "not a sku"),
-        ({"stock": 0}, "--stock"),
+        ({"stock": 0}, "stock"),
     ],
 )
 def test_bad_requests(world: Path, kw: dict, match: str) -> None:
@@ -277,9 +277,9 @@ def test_build_refuses_existing_file_and_campaign(world: Path, tmp_path: Path) -
         log = CampaignLog.open(wh)
         build_list(wh, plan, out, log=log)
         first = pl.read_parquet(out)
-        with pytest.raises(StateError, match="--force"):
+        with pytest.raises(StateError, match="force=True"):
             build_list(wh, plan, out, log=log)
-        with pytest.raises(StateError, match="--replace"):
+        with pytest.raises(StateError, match="replace=True"):
             build_list(wh, plan, tmp_path / "other.parquet", log=log, force=True)
         assert not (tmp_path / "other.parquet").exists()
         built = build_list(wh, plan, out, log=log, force=True, replace=True)
@@ -311,7 +311,7 @@ def test_build_with_a_state_file_leaves_a_read_only_warehouse_alone(
     state = tmp_path / "state.duckdb"
     with Warehouse.open(world, read_only=True) as wh:
         plan = plan_list(wh, request(), rules=RULESET, now=NOW)
-        with pytest.raises(StateError, match="--state"):
+        with pytest.raises(StateError, match="with state PATH"):
             build_list(wh, plan, tmp_path / "a.csv", log=CampaignLog.open(wh))
         assert not (tmp_path / "a.csv").exists()
         with CampaignLog.open(wh, str(state)) as log:

@@ -137,11 +137,11 @@ def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(
     assert {r.rule_id for r in trimmed.plan.rules} == set(own) - small
     assert all(rr.kept >= cut for rr in trimmed.per_rule or [])
     assert any(
-        n.startswith("Not proposed") and f"--min-audience {cut:,}" in n for n in trimmed.plan.notes
+        n.startswith("Not proposed") and f"min_audience {cut:,}" in n for n in trimmed.plan.notes
     )
     with (
         Warehouse.open(pristine, read_only=True) as wh,
-        pytest.raises(EmptyResultError, match="--min-audience"),
+        pytest.raises(EmptyResultError, match="min_audience"),
     ):
         preview_list(wh, plan_list(wh, ListRequest(MAT, min_audience=10**6), rules=ruleset))
     out = CliRunner().invoke(

@@ -79,7 +79,7 @@ def test_one_transaction_writes_all_or_nothing(db: Warehouse) -> None:
 def test_same_campaign_is_refused_unless_replaced(db: Warehouse) -> None:
     log = CampaignLog(db)
     log.record(record(), contacts([1, 2]))
-    with pytest.raises(StateError, match="--replace"):
+    with pytest.raises(StateError, match="replace=True"):
         log.record(record(), contacts([3]))
     log.record(record(), contacts([3]), replace=True)
     assert log.contacts("spring")["customer_id"].to_list() == [3]
@@ -135,7 +135,7 @@ def test_postgres_log_is_transactional(pg_url: str, pg_schema: str) -> None:
         many = contacts(list(range(1, 2502)))  # large enough to go through COPY
         log.record(record(), many)
         assert log.contacts("spring").height == 2501
-        with pytest.raises(StateError, match="--replace"):
+        with pytest.raises(StateError, match="replace=True"):
             log.record(record(), contacts([1]))
         log.record(record(), contacts([7]), replace=True)
         assert log.contacts("spring")["customer_id"].to_list() == [7]

@@ -203,7 +203,7 @@ def test_postgres_gives_the_same_counts(
     assert str(got["first_order_at"]) == str(expected["first_order_at"])
     from reachlist.errors import StateError
 
-    with pytest.raises(StateError, match="--replace"):
+    with pytest.raises(StateError, match="replace=True"):
         copy_warehouse(str(tiny), pg_url, schema=pg_schema)
 
 

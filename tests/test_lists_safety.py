@@ -174,7 +174,7 @@ def test_duplicate_customer_rows_are_refused_or_read_by_their_strictest_row(
     with Warehouse.open(path, read_only=True) as wh:
         with pytest.raises(ContractError, match=r"found 4 id\(s\) on more than one row") as exc:
             plan_list(wh, request(), rules=RULES, now=NOW)
-        assert "reachlist check" in str(exc.value) and "--merge-duplicates" in str(exc.value)
+        assert "reachlist check" in str(exc.value) and "merge_duplicates=True" in str(exc.value)
         plan = plan_list(wh, request(merge_duplicates=True), rules=RULES, now=NOW)
         out = preview_list(wh, plan)
         assert any("4 customer id(s) are on more than one row" in n for n in plan.notes)
@@ -206,8 +206,8 @@ def test_duplicate_customer_rows_are_refused_or_read_by_their_strictest_row(
 @pytest.mark.parametrize(
     ("filters", "match"),
     [
-        (Filters(regions=("North",)), r"found 'North'.*did you mean --region 'north'\?"),
-        (Filters(regions=("north", "sout")), r"found 'sout'.*did you mean --region 'south'\?"),
+        (Filters(regions=("North",)), r"found 'North'.*did you mean regions 'north'\?"),
+        (Filters(regions=("north", "sout")), r"found 'sout'.*did you mean regions 'south'\?"),
         (
             Filters(regions=("moon",)),
             r"found 'moon'.*use one of the values in "
@@ -215,8 +215,8 @@ def test_duplicate_customer_rows_are_refused_or_read_by_their_strictest_row(
         ),
         (
             Filters(channels=("Store",)),
-            r"--channel values present in orders.channel, found "
-            r"'Store'.*did you mean --channel 'store'\?",
+            r"channels values present in orders.channel, found "
+            r"'Store'.*did you mean channels 'store'\?",
         ),
     ],
 )

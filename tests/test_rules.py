@@ -170,11 +170,11 @@ def test_unknown_target_suggests_close_names(garden: Path) -> None:
 
 def test_no_rule_names_the_threshold_to_relax(garden: Path) -> None:
     with Warehouse.open(garden, read_only=True) as wh:
-        with pytest.raises(EmptyResultError, match="--min-confidence"):
+        with pytest.raises(EmptyResultError, match="min_confidence"):
             mine_rules(wh, "SG04-104", min_confidence=0.99)
-        with pytest.raises(EmptyResultError, match="--min-support"):
+        with pytest.raises(EmptyResultError, match="min_support"):
             mine_rules(wh, "SG04-104", min_support=0.5)
-        with pytest.raises(EmptyResultError, match="--stand-in"):
+        with pytest.raises(EmptyResultError, match="stand_in"):
             mine_rules(wh, "OL23-106")  # the brand-new planter has no history
 
 

@@ -18,7 +18,9 @@ import click
 from rich.console import Console
 from rich.text import Text
 
+from reachlist.cli.spelling import CLI_SPELLING
 from reachlist.errors import ReachlistError
+from reachlist.wording import spelling
 
 if TYPE_CHECKING:
     from reachlist.warehouse import Warehouse  # noqa: F401
@@ -123,10 +125,13 @@ class _Group(click.Group):
             formatter.write_dl(rows)
 
     def invoke(self, ctx: click.Context) -> Any:
-        try:
-            return super().invoke(ctx)
-        except ReachlistError as exc:
-            _fail(exc)
+        # library messages name options as this command line spells them (--horizon, not
+        # horizon_days) while a command runs
+        with spelling(CLI_SPELLING):
+            try:
+                return super().invoke(ctx)
+            except ReachlistError as exc:
+                _fail(exc)
 
 
 def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:

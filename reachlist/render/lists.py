@@ -6,7 +6,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from reachlist.lists import SKIPPED, Built, ListOutcome
+from reachlist.lists import Built, ListOutcome, skipped_note
 from reachlist.overlap import ADVICE, OverlapReport
 from reachlist.planning import Plan
 from reachlist.query import Dialect, Rendered, literal
@@ -172,7 +172,7 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
         why = outcome.estimate_note or "no estimate"
         tail = (
             "; run without --no-estimate for baseline buyers with an interval from past backtests"
-            if why == SKIPPED
+            if why == skipped_note()
             else ""
         )
         console.print(

@@ -32,6 +32,7 @@ from reachlist.sample.period import (
     PERIOD_START,
 )
 from reachlist.sample.planted import PLANTED_RULES
+from reachlist.wording import option
 
 # Assembly and writing
 # --------------------------------------------------------------------------------------------
@@ -271,7 +272,7 @@ def build_sample(
     if target.exists() and not overwrite:
         raise StateError(
             f"expected no file at {target}, found an existing file.",
-            hint="pass overwrite=True (CLI: --overwrite) to replace it, or choose another path.",
+            hint=f"pass {option('overwrite=True')} to replace it, or choose another path.",
         )
     if not target.parent.is_dir():
         raise InputError(
