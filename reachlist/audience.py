@@ -55,7 +55,7 @@ or lift favours narrow rules whose few holders mostly own the target already; br
 (customer baskets only) ranks by what a rule adds over shopping breadth."""
 
 # "Ever" for the already-has-the-target exclusion: the earliest timestamp both engines accept.
-EVER = datetime(1, 1, 1)
+EVER = datetime(1900, 1, 1)  # before any order a warehouse holds (and a date every engine reads)
 
 
 @dataclass(frozen=True)

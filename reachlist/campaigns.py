@@ -138,6 +138,16 @@ class CampaignLog:
             text_ids=warehouse.text_ids,
         )
 
+    def refuse_without_transactions(self) -> None:
+        """A campaign is logged all or nothing; an engine without transactions (Spark) cannot
+        hold the log, a local state file can."""
+        if not self.db.transactional:
+            raise InputError(
+                f"Expected a campaign log that can be written all or nothing, found "
+                f"{self.db.display_name} ({self.db.dialect.name} has no transactions).",
+                hint=f"keep the log in a local file: pass {option('state')} reachlist-state.duckdb",
+            )
+
     def close(self) -> None:
         if self._owned:
             self.db.close()
@@ -269,6 +279,7 @@ class CampaignLog:
         an error: ``build_list`` moves the list file into place inside it, so the log never
         commits for a list that is not there. An error in the block rolls everything back."""
         check_campaign_id(record.campaign_id)
+        self.refuse_without_transactions()
         groups = set(contacts["contact_group"].unique().to_list())
         if not groups <= set(GROUPS):
             raise InputError(f"contact_group must be one of {GROUPS}, found {sorted(groups)}.")

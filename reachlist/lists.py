@@ -526,6 +526,7 @@ def build_list(
     """
     for i, path in enumerate(delivered_paths(out)):
         check_destination(path, force=force, list_file=i < 2)
+    log.refuse_without_transactions()
     log.refuse_existing(plan.campaign_id, replace=replace)
     if plan.request.min_audience > 0:
         plan, frame, waterfall, _ = _settle(wh, plan, log)

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 import polars as pl
 
 from reachlist.audience import (
+    EVER,
     AudienceSpec,
     ChosenRule,
     Filters,
@@ -446,9 +447,6 @@ MAX_DAYS_BACK = 36_500  # a hundred years back: --bought-within, --ordered-withi
 OFFER_CODE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_./-]{0,63}")
 
 
-HISTORY_START = datetime(1900, 1, 1)  # before any order a warehouse holds
-
-
 def _stand_in_hint(wh: Warehouse, target: Target, until: datetime) -> str:
     """How to introduce an item nobody has bought: name its own category (or department)."""
     generic = (
@@ -483,7 +481,7 @@ def quote_option(value: str) -> str:
 
 def item_buyers(wh: Warehouse, item: Target, until: datetime) -> tuple[int, float]:
     """Customers holding ``item`` before ``until`` and the net units they hold."""
-    held = wh.fetch(item_buyers_query(item, HISTORY_START, until))
+    held = wh.fetch(item_buyers_query(item, EVER, until))
     return held.height, float(held["units"].sum() or 0) if held.height else 0.0
 
 

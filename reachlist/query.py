@@ -44,6 +44,8 @@ class Dialect:
     placeholder: str  # "dollar" ($name, DuckDB native) or "colon" (:name, SQLAlchemy)
     cte_hint: str = ""  # e.g. "NOT MATERIALIZED" where a CTE would otherwise be materialised
     text_type: str = "VARCHAR"  # what integer ids and SKUs are cast to when text is needed
+    # standard type names the engine spells its own way (templates write the standard name)
+    type_names: tuple[tuple[str, str], ...] = ()
 
 
 DUCKDB = Dialect("duckdb", placeholder="dollar")
@@ -84,6 +86,15 @@ def template_text(name: str) -> str:
         return resources.files("reachlist.sql").joinpath(f"{name}.sql").read_text(encoding="utf-8")
     except FileNotFoundError:  # pragma: no cover - packaging error
         raise InputError(f"SQL template {name!r} is missing from the installation.") from None
+
+
+def raw_sql(query: Query, dialect: Dialect) -> tuple[str, dict[str, Any]]:
+    """A query's text and values for SQL over physical names (no mapping views), with the
+    dialect's placeholders."""
+    sql = query.sql
+    if dialect.placeholder == "dollar":
+        sql = _PARAM.sub(r"$\1", sql)
+    return sql, dict(query.params)
 
 
 def template_parts(name: str) -> dict[str, str]:
@@ -193,6 +204,8 @@ def render(
     missing = [n for n in _PARAM.findall(_strip_comments(sql)) if n not in params]
     if missing:
         raise InputError(f"Query {query.label or '(inline)'} needs values for {missing}.")
+    for standard, own in dialect.type_names:
+        sql = re.sub(rf"\bAS {standard}\)", f"AS {own})", sql)
     if dialect.placeholder == "dollar":
         sql = _PARAM.sub(lambda m: "$" + m.group(1), sql)
     return Rendered(sql, params)

@@ -16,6 +16,10 @@ name. Example::
     table = "sales.basket_rows"
     sku = "article"
 
+On Spark a table can come from Parquet instead of the catalogue: ``path = "/lake/orders.parquet"``
+under its section, or ``lake = "/path/to/lake"`` at the top for one ``NAME.parquet`` per table
+(``customers.parquet``, ``products.parquet``, ...).
+
 Every query reachlist runs is written against the logical names; ``views_sql`` turns the mapping
 into common table expressions so the same query runs on any mapped warehouse.
 """
@@ -154,6 +158,7 @@ CONTRACT: dict[str, Table] = {
 
 SOURCE_TABLES = tuple(name for name, t in CONTRACT.items() if not t.owned)
 LOG_TABLES = tuple(name for name, t in CONTRACT.items() if t.owned)
+LAKE_VIEW = "reachlist_"  # prefix of the session views that present Parquet paths as tables
 
 
 @dataclass(frozen=True)
@@ -181,6 +186,9 @@ class TableMap:
     # logical -> SQL type: physical columns whose type reachlist casts (TIMESTAMP_NS -> TIMESTAMP,
     # an integer SKU -> text); filled in by the warehouse from the physical types it finds
     casts: dict[str, str] = field(default_factory=dict)
+    # a Parquet file or folder holding the table (engines that read files: Spark); the table is
+    # then read as a session view named by ``physical``
+    path: str | None = None
 
     def column(self, logical: str) -> str:
         return self.columns.get(logical, logical)
@@ -257,8 +265,19 @@ class Mapping:
             )
         base: tuple[str, ...] = (default_schema.strip(),) if default_schema else ()
         tables = {name: TableMap(name, (*base, name)) for name in CONTRACT}
+        lake = raw.get("lake")
+        if lake is not None:
+            if not isinstance(lake, str) or not lake.strip():
+                raise InputError(
+                    f"Mapping {source}: lake must be a folder path, found {lake!r}.",
+                    hint='write lake = "/path/to/lake" (one NAME.parquet per contract table)',
+                )
+            for name in SOURCE_TABLES:
+                tables[name] = TableMap(
+                    name, (f"{LAKE_VIEW}{name}",), path=f"{lake.rstrip('/')}/{name}.parquet"
+                )
         for key, section in raw.items():
-            if key == "schema":
+            if key in ("schema", "lake"):
                 continue
             if key not in CONTRACT:
                 raise InputError(
@@ -273,10 +292,20 @@ class Mapping:
                     hint=f'write [{key}] on its own line, then table = "your_table"',
                 )
             table = CONTRACT[key]
-            physical: tuple[str, ...] = (*base, key)
+            physical: tuple[str, ...] = tables[key].physical
+            path = tables[key].path
             columns: dict[str, str] = {}
             sources: dict[str, ColumnSource] = {}
             for col, value in section.items():
+                if col == "path" and not table.owned:
+                    if not isinstance(value, str) or not value.strip():
+                        raise InputError(
+                            f"Mapping {source}: {key}.path must be a Parquet file or folder, "
+                            f"found {value!r}.",
+                            hint=f'write path = "/path/to/lake/{key}.parquet"',
+                        )
+                    path, physical = value.strip(), (f"{LAKE_VIEW}{key}",)
+                    continue
                 if col != "table" and col not in table.column_names:
                     raise InputError(
                         f"Mapping {source}: {key}.{col} is not a column of {key} "
@@ -302,8 +331,13 @@ class Mapping:
                     physical = parts if len(parts) > 1 else (*base, *parts)
                 else:
                     columns[col] = value
-            tables[key] = TableMap(key, physical, columns, sources)
+            tables[key] = TableMap(key, physical, columns, sources, path=path)
         return cls(tables, source=source)
+
+    @property
+    def paths(self) -> dict[str, str]:
+        """Tables read from files: logical name -> Parquet path."""
+        return {name: t.path for name, t in self.tables.items() if t.path is not None}
 
     def with_casts(self, casts: dict[str, dict[str, str]]) -> Mapping:
         """The same mapping with the casts a warehouse's physical types need."""

@@ -103,6 +103,11 @@ def table_keys(parts: Sequence[str]) -> Query:
     )
 
 
+def describe_table(parts: Sequence[str]) -> str:
+    """The columns and types of one table from Spark's catalogue (it has no information_schema)."""
+    return f"DESCRIBE TABLE {quote_qualified(parts)}"
+
+
 def column_probe(tmap: TableMap, column: str) -> str:
     """Select a mapped column's expression from its table without reading a row: does it run?"""
     return (

@@ -1,7 +1,8 @@
-"""The only module that talks to a database.
+"""The only module that talks to a database, through one engine (``reachlist.engines``).
 
-``Warehouse.open`` takes a DuckDB file path or any SQLAlchemy URL (``postgresql+psycopg://...``).
-It runs :class:`reachlist.query.Query` objects and returns polars DataFrames.
+``Warehouse.open`` takes a DuckDB file path, any SQLAlchemy URL (``postgresql+psycopg://...``)
+or a Spark master (``spark://local[2]``, ``sc://host:15002``). It runs
+:class:`reachlist.query.Query` objects and returns polars DataFrames.
 
 >>> wh = Warehouse.open("sample.duckdb")                      # doctest: +SKIP
 >>> wh.fetch(Query("SELECT count(*) AS n FROM orders"))       # doctest: +SKIP
@@ -13,23 +14,19 @@ import contextlib
 import os
 from collections.abc import Iterator
 from dataclasses import dataclass
-from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import polars as pl
 
 from reachlist import statements
 from reachlist.errors import ContractError, InputError, WarehouseError
-from reachlist.query import (
-    DUCKDB,
-    Dialect,
-    Query,
-    Rendered,
-    dialect_named,
-    render,
-)
+from reachlist.query import DUCKDB, Dialect, Query, Rendered, raw_sql, render
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
-from reachlist.wording import option
+
+if TYPE_CHECKING:
+    from reachlist.engines.base import Engine
+
+SPARK_SCHEMES = ("spark://", "sc://")
 
 
 def _is_url(target: str) -> bool:
@@ -43,16 +40,13 @@ class PhysicalColumn:
 
 
 class Warehouse:
-    """A connection to one warehouse plus the mapping that names its tables."""
+    """One engine plus the mapping that names its tables."""
 
-    def __init__(
-        self, target: str, dialect: Dialect, mapping: Mapping, conn: Any, engine: Any = None
-    ) -> None:
+    def __init__(self, target: str, engine: Engine, mapping: Mapping) -> None:
         self.target = target
-        self.dialect = dialect
+        self.engine = engine
+        self.dialect: Dialect = engine.dialect
         self.mapping = mapping
-        self._conn = conn
-        self._engine = engine
         self._in_transaction = False
         self._typed: Mapping | None = None  # the mapping with the casts physical types need
         self._text_ids = False
@@ -76,73 +70,35 @@ class Warehouse:
         works). ``connect_timeout`` (seconds) bounds the wait for a server that does not answer."""
         target = str(target)
         mapping = mapping or Mapping.identity()
-        if _is_url(target):
-            return cls._open_url(target, mapping, connect_timeout)
-        return cls._open_duckdb(target, mapping, read_only, create)
+        engine: Engine
+        if target.startswith(SPARK_SCHEMES):
+            from reachlist.engines.spark import SparkEngine
 
-    @classmethod
-    def _open_duckdb(
-        cls, path: str, mapping: Mapping, read_only: bool, create: bool = False
-    ) -> Warehouse:
-        import duckdb
+            engine = SparkEngine(target, mapping)
+            mapping = engine.mapping  # Parquet paths read as views of the session
+        elif _is_url(target):
+            from reachlist.engines.server import ServerEngine
 
-        if path != ":memory:" and not create and not Path(path).exists():
+            url = encode_credentials(target)
+            engine = ServerEngine(url, _redact(url), connect_timeout)
+            target = url
+        else:
+            from reachlist.engines.embedded import EmbeddedEngine
+
+            engine = EmbeddedEngine(target, read_only=read_only, create=create)
+        if mapping.paths and engine.dialect.name != "spark":
+            engine.close()
+            first = next(iter(mapping.paths))
             raise InputError(
-                f"Warehouse file {path!r} does not exist (expected a DuckDB file or a URL such as "
-                "postgresql+psycopg://host/db).",
-                hint=f"create the sample with `reachlist sample {option('out')} PATH`, or check the path",
+                f"Expected tables in the warehouse for {target!r}, found the mapping reading "
+                f"{first} from a file ({mapping.paths[first]}): files are read on Spark.",
+                hint="open spark://local[2] (or your cluster) with this mapping, or map the "
+                "tables by name",
             )
-        try:
-            conn = duckdb.connect(path, read_only=read_only)
-        except duckdb.Error as exc:
-            raise WarehouseError(
-                f"Cannot open {path!r} as a DuckDB database: {_first_line(exc)}.",
-                hint="pass a DuckDB file, or close the program that holds it open",
-            ) from None
-        budget = _duckdb_budget()
-        # SET, not connect config: other connections to the same file may exist
-        conn.execute(statements.set_option("temp_directory", budget["temp_directory"]))
-        try:
-            conn.execute(statements.set_option("memory_limit", budget["memory_limit"]))
-        except duckdb.Error as exc:
-            conn.close()
-            raise InputError(
-                f"Expected REACHLIST_DUCKDB_MEMORY as a size such as 1536MB or 2GB, found "
-                f"{budget['memory_limit']!r} ({_first_line(exc)}).",
-                hint=f"set it to a size like 2GB, or unset it for the default of {DUCKDB_MEMORY}",
-            ) from None
-        return cls(path, DUCKDB, mapping, conn)
-
-    @classmethod
-    def _open_url(cls, url: str, mapping: Mapping, connect_timeout: int = 15) -> Warehouse:
-        import sqlalchemy as sa
-
-        url = encode_credentials(url)
-        connect_args: dict[str, Any] = {}
-        if url.split(":", 1)[0].startswith("postgresql") and "connect_timeout" not in url:
-            connect_args["connect_timeout"] = connect_timeout
-        try:
-            engine = sa.create_engine(url, connect_args=connect_args)
-        except Exception as exc:  # bad URL or missing driver
-            raise WarehouseError(
-                f"Cannot use warehouse URL {_redact(url)!r}: {redact_text(_first_line(exc), url)}.",
-                hint="use a SQLAlchemy URL such as postgresql+psycopg://user@host:5432/db and "
-                "install its driver (pip install 'reachlist[postgres]')",
-            ) from None
-        try:
-            conn = engine.connect()
-        except Exception as exc:
-            raise WarehouseError(
-                f"Cannot reach warehouse {_redact(url)!r}: {redact_text(_first_line(exc), url)}.",
-                hint="check host, port, database name and credentials, and that the server runs",
-            ) from None
-        return cls(url, dialect_named(engine.dialect.name), mapping, conn, engine)
+        return cls(target, engine, mapping)
 
     def close(self) -> None:
-        with contextlib.suppress(Exception):
-            self._conn.close()
-        if self._engine is not None:
-            self._engine.dispose()
+        self.engine.close()
 
     def __enter__(self) -> Warehouse:
         return self
@@ -153,6 +109,11 @@ class Warehouse:
     @property
     def is_duckdb(self) -> bool:
         return self.dialect is DUCKDB
+
+    @property
+    def transactional(self) -> bool:
+        """Whether writes here can be grouped all-or-nothing (not on Spark)."""
+        return self.engine.transactional
 
     @property
     def display_name(self) -> str:
@@ -202,31 +163,18 @@ class Warehouse:
         """Run SQL written against the physical names (no mapping views): catalogue probes such
         as ``check`` trying a mapped expression. Values are still bound."""
         q = Query(sql, dict(params or {}), label="probe")
-        return self._fetch_rendered(Rendered(*_raw(q, self.dialect)), q)
+        return self._fetch_rendered(Rendered(*raw_sql(q, self.dialect)), q)
 
     def _fetch_rendered(self, r: Rendered, query: Query) -> pl.DataFrame:
         try:
-            if self.is_duckdb:
-                frame: pl.DataFrame = self._conn.sql(r.sql, params=r.params or None).pl()
-                return frame
-            import sqlalchemy as sa
-
-            result = self._conn.execute(sa.text(r.sql), r.params)
-            cols = list(result.keys())
-            rows = result.fetchall()
-            self._end_read()
-            if not rows:
-                return pl.DataFrame({c: [] for c in cols})
-            return pl.DataFrame([tuple(row) for row in rows], schema=cols, orient="row")
+            frame = self.engine.fetch(r.sql, r.params)
+            if not self._in_transaction:
+                self.engine.end_read()
+            return frame
         except Exception as exc:
             if not self._in_transaction:
-                self._rollback()
+                self.engine.rollback()
             raise self._translate(exc, query) from None
-
-    def _end_read(self) -> None:
-        """Close the implicit transaction a read opened, unless inside ``transaction()``."""
-        if not self._in_transaction:
-            self._conn.commit()
 
     def scalar(self, query: Query) -> Any:
         df = self.fetch(query)
@@ -235,12 +183,7 @@ class Warehouse:
     def execute(self, query: Query) -> None:
         r = self.render(query)
         try:
-            if self.is_duckdb:
-                self._conn.execute(r.sql, r.params)
-            else:
-                import sqlalchemy as sa
-
-                self._conn.execute(sa.text(r.sql), r.params)
+            self.engine.execute(r.sql, r.params)
         except Exception as exc:
             raise self._translate(exc, query) from None
 
@@ -250,12 +193,7 @@ class Warehouse:
             return
         r = self.render(Query(sql, dict(rows[0])))
         try:
-            if self.is_duckdb:
-                self._conn.executemany(r.sql, rows)
-            else:
-                import sqlalchemy as sa
-
-                self._conn.execute(sa.text(r.sql), rows)
+            self.engine.executemany(r.sql, rows)
         except Exception as exc:
             raise self._translate(exc, Query(sql)) from None
 
@@ -267,35 +205,21 @@ class Warehouse:
         if self._in_transaction:
             raise WarehouseError("Nested transactions are not supported.", hint="report this")
         _ = self.typed_mapping  # read the catalogue before the transaction, not inside it
-        if self.is_duckdb:
-            self._conn.execute("BEGIN TRANSACTION")
-        else:
-            self._rollback()
+        self.engine.begin()
         self._in_transaction = True
         try:
             yield self
         except BaseException:
             self._in_transaction = False
-            if self.is_duckdb:
-                self._conn.execute("ROLLBACK")
-            else:
-                self._rollback()
+            self.engine.rollback()
             raise
         self._in_transaction = False
-        if self.is_duckdb:
-            self._conn.execute("COMMIT")
-        else:
-            self._conn.commit()
+        self.engine.commit()
 
     def run_statement(self, stmt: str) -> None:
         """Run a statement reachlist built itself with no values to bind (DDL)."""
         try:
-            if self.is_duckdb:
-                self._conn.execute(stmt)
-            else:
-                import sqlalchemy as sa
-
-                self._conn.execute(sa.text(stmt))
+            self.engine.run(stmt)
         except Exception as exc:
             raise WarehouseError(
                 f"Could not change the warehouse {self.display_name}: {_first_line(exc)}.",
@@ -320,16 +244,13 @@ class Warehouse:
                 f"{self.display_name}.",
                 hint="write to a DuckDB file, then `reachlist copy` it elsewhere",
             )
-        self._conn.register("src", data)
         try:
-            self._conn.execute(statement)
+            self.engine.from_arrow(statement, data)
         except Exception as exc:
             raise WarehouseError(
                 f"Could not write {table} into {self.display_name}: {_first_line(exc)}.",
                 hint="check the free space and that the file and its folder are writable",
             ) from None
-        finally:
-            self._conn.unregister("src")
 
     def stream_arrow(self, query: Query, batch_rows: int = 500_000) -> Any:
         """The rows of a query as a pyarrow RecordBatchReader: read in batches of ``batch_rows``,
@@ -342,82 +263,48 @@ class Warehouse:
             )
         r = self.render(query)
         try:
-            return self._conn.sql(r.sql, params=r.params or None).to_arrow_reader(batch_rows)
+            return self.engine.stream_arrow(r.sql, r.params, batch_rows)
         except Exception as exc:
             raise self._translate(exc, query) from None
 
     def attach_read_only(self, path: str | os.PathLike[str], alias: str) -> bool:
-        """Attach another DuckDB file read-only under ``alias`` (False: it cannot be opened;
-        DuckDB only). Attaching works on a warehouse opened read-only too."""
-        if not self.is_duckdb:
-            return False
-        self.detach(alias)
-        try:
-            self._conn.execute(statements.attach_read_only(str(path), alias))
-        except Exception:
-            return False
-        return True
+        """Attach another DuckDB file read-only under ``alias`` (False: it cannot be opened,
+        or this engine attaches no files). Attaching works on a warehouse opened read-only."""
+        return self.engine.attach_read_only(str(path), alias)
 
     def detach(self, alias: str) -> None:
-        if self.is_duckdb:
-            with contextlib.suppress(Exception):
-                self._conn.execute(statements.detach(alias))
-
-    def _rollback(self) -> None:
-        if not self.is_duckdb:
-            with contextlib.suppress(Exception):
-                self._conn.rollback()
+        self.engine.detach(alias)
 
     def load_frame(self, table: str, frame: pl.DataFrame) -> None:
         """Append a DataFrame to the table a logical table maps to (loaders, the campaign log).
 
         The frame's columns carry logical names; they are mapped and quoted here."""
         tmap = self.mapping.table(table)
-        columns = [tmap.column(c) for c in frame.columns]
-        if self.is_duckdb:
-            self._conn.register("_reachlist_frame", frame.to_arrow())
-            try:
-                self._conn.execute(statements.append_from(tmap.physical, columns, frame.columns))
-            finally:
-                self._conn.unregister("_reachlist_frame")
-        elif self.dialect.name == "postgresql" and frame.height > 1000:
-            # COPY is an order of magnitude faster than INSERT for bulk loads.
-            cursor = self._conn.connection.driver_connection.cursor()
-            with cursor.copy(statements.copy_in(tmap.physical, columns)) as copy:
-                for row in frame.iter_rows():
-                    copy.write_row(row)
-        else:
-            import sqlalchemy as sa
-
-            stmt = sa.text(statements.append_values(tmap.physical, columns, frame.columns))
-            self._conn.execute(stmt, frame.to_dicts())
+        self.engine.append_frame(tmap.physical, [tmap.column(c) for c in frame.columns], frame)
 
     # -- the contract ----------------------------------------------------------------------------
     def physical_columns(self, logical_table: str) -> list[PhysicalColumn] | None:
         """Columns of the table a logical table maps to, or None when the table is missing."""
-        q = statements.table_columns(self.mapping.table(logical_table).physical)
-        # information_schema is read directly: no logical table names are involved.
-        r = Rendered(*_raw(q, self.dialect))
+        parts = self.mapping.table(logical_table).physical
         try:
-            if self.is_duckdb:
-                rows = self._conn.execute(r.sql, r.params).fetchall()
-            else:
-                import sqlalchemy as sa
-
-                rows = self._conn.execute(sa.text(r.sql), r.params).fetchall()
-                self._end_read()
+            rows = self.engine.columns(parts)
+            if not self._in_transaction:
+                self.engine.end_read()
         except Exception as exc:
-            self._rollback()
-            raise self._translate(exc, q) from None
+            self.engine.rollback()
+            raise self._translate(exc, statements.table_columns(parts)) from None
         if not rows:
             return None
-        return [PhysicalColumn(str(name), str(dtype)) for name, dtype in rows]
+        return [PhysicalColumn(name, dtype) for name, dtype in rows]
 
     def _translate(self, exc: Exception, query: Query) -> Exception:
         text = _first_line(exc)
         lowered = text.lower()
         what = f" (query {query.label})" if query.label else ""
-        if any(k in lowered for k in ("does not exist", "not found", "no such", "undefined")):
+        if any(
+            k in lowered
+            for k in ("does not exist", "not found", "no such", "undefined", "cannot be found")
+        ):
             return ContractError(
                 f"The warehouse {self.display_name} lacks something a query needs{what}: {text}.",
                 hint="run `reachlist check` to see which table or column is missing and which "
@@ -427,29 +314,6 @@ class Warehouse:
             f"Query{what} failed on {self.dialect.name}: {text}.",
             hint="run `reachlist check`; if it passes, report this with `reachlist sql` output",
         )
-
-
-DUCKDB_MEMORY = "1536MB"  # DuckDB's working memory; beyond it, its joins and sorts spill to disk
-
-
-def _duckdb_budget() -> dict[str, str]:
-    """The memory DuckDB may use (``REACHLIST_DUCKDB_MEMORY``, default ``DUCKDB_MEMORY``) and
-    where it spills beyond that (a private temporary folder, so a read-only warehouse works)."""
-    import tempfile
-
-    return {
-        "memory_limit": os.environ.get("REACHLIST_DUCKDB_MEMORY", DUCKDB_MEMORY),
-        "temp_directory": str(Path(tempfile.gettempdir()) / f"reachlist-spill-{os.getuid()}"),
-    }
-
-
-def _raw(query: Query, dialect: Dialect) -> tuple[str, dict[str, Any]]:
-    sql = query.sql
-    if dialect.placeholder == "dollar":
-        import re
-
-        sql = re.sub(r"(?<![:\w]):([A-Za-z_]\w*)", r"$\1", sql)
-    return sql, dict(query.params)
 
 
 def _first_line(exc: BaseException) -> str:

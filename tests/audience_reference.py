@@ -133,7 +133,7 @@ def audience(tables: dict[str, pl.DataFrame], spec: AudienceSpec) -> pl.DataFram
     )
     until = spec.lookback.until
     target_since = (
-        datetime(1, 1, 1)
+        datetime(1900, 1, 1)
         if spec.bought_within_days is None
         else until - timedelta(days=spec.bought_within_days)
     )
