@@ -46,6 +46,8 @@ class Dialect:
     text_type: str = "VARCHAR"  # what integer ids and SKUs are cast to when text is needed
     # standard type names the engine spells its own way (templates write the standard name)
     type_names: tuple[tuple[str, str], ...] = ()
+    # whole days from one date to a later one (templates write DAYS_BETWEEN(start, end))
+    day_difference: str = "({end} - {start})"
 
 
 DUCKDB = Dialect("duckdb", placeholder="dollar")
@@ -184,6 +186,27 @@ def _reads_holdings(sql: str) -> bool:
     return re.search(rf"\b{HOLDINGS}\b", _strip_comments(sql)) is not None
 
 
+def _days_between(sql: str, dialect: Dialect) -> str:
+    """Rewrite each ``DAYS_BETWEEN(start, end)`` as the dialect counts days between dates."""
+    out, pos = [], 0
+    while (at := sql.find("DAYS_BETWEEN(", pos)) >= 0:
+        depth, i, comma = 0, at + len("DAYS_BETWEEN("), -1
+        while depth >= 0:
+            ch = sql[i]
+            if ch == "(":
+                depth += 1
+            elif ch == ")":
+                depth -= 1
+            elif ch == "," and depth == 0:
+                comma = i
+            i += 1
+        start = sql[at + len("DAYS_BETWEEN(") : comma].strip()
+        end = sql[comma + 1 : i - 1].strip()
+        out += [sql[pos:at], dialect.day_difference.format(start=start, end=end)]
+        pos = i
+    return "".join(out) + sql[pos:]
+
+
 def render(
     query: Query, dialect: Dialect, mapping: Mapping, holdings: str | None = None
 ) -> Rendered:
@@ -204,6 +227,7 @@ def render(
     missing = [n for n in _PARAM.findall(_strip_comments(sql)) if n not in params]
     if missing:
         raise InputError(f"Query {query.label or '(inline)'} needs values for {missing}.")
+    sql = _days_between(sql, dialect)
     for standard, own in dialect.type_names:
         sql = re.sub(rf"\bAS {standard}\)", f"AS {own})", sql)
     if dialect.placeholder == "dollar":

@@ -161,6 +161,14 @@ LOG_TABLES = tuple(name for name, t in CONTRACT.items() if t.owned)
 LAKE_VIEW = "reachlist_"  # prefix of the session views that present Parquet paths as tables
 
 
+def lake_view(table: str, path: str) -> str:
+    """The session view a Parquet path is read as: one per path, so two mappings in one session
+    never read each other's files."""
+    import hashlib
+
+    return f"{LAKE_VIEW}{table}_{hashlib.sha256(path.encode()).hexdigest()[:10]}"
+
+
 @dataclass(frozen=True)
 class ColumnSource:
     """Where a logical column comes from when it is not a physical column: a SQL expression over
@@ -273,9 +281,8 @@ class Mapping:
                     hint='write lake = "/path/to/lake" (one NAME.parquet per contract table)',
                 )
             for name in SOURCE_TABLES:
-                tables[name] = TableMap(
-                    name, (f"{LAKE_VIEW}{name}",), path=f"{lake.rstrip('/')}/{name}.parquet"
-                )
+                file = f"{lake.rstrip('/')}/{name}.parquet"
+                tables[name] = TableMap(name, (lake_view(name, file),), path=file)
         for key, section in raw.items():
             if key in ("schema", "lake"):
                 continue
@@ -304,7 +311,8 @@ class Mapping:
                             f"found {value!r}.",
                             hint=f'write path = "/path/to/lake/{key}.parquet"',
                         )
-                    path, physical = value.strip(), (f"{LAKE_VIEW}{key}",)
+                    path = value.strip()
+                    physical = (lake_view(key, path),)
                     continue
                 if col != "table" and col not in table.column_names:
                     raise InputError(

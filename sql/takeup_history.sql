@@ -16,7 +16,7 @@
 -- cutoffs whose window holds a day are a run k_lo .. k_hi worked out from the day's age; the few
 -- customer-SKU pairs with a return are summed window by window.
 WITH past AS (
-    SELECT customer_id, sku, quantity, :as_of - order_day AS age  -- days before as_of, >= 1
+    SELECT customer_id, sku, quantity, DAYS_BETWEEN(order_day, :as_of) AS age  -- days before as_of, >= 1
     FROM holdings
     WHERE order_day < :as_of
 ),
@@ -93,7 +93,7 @@ target AS (
     GROUP BY customer_id
 ),
 population AS (
-    SELECT customer_id, max(:as_of - CAST(ordered_at AS DATE)) AS first_age
+    SELECT customer_id, max(DAYS_BETWEEN(CAST(ordered_at AS DATE), :as_of)) AS first_age
     FROM orders
     WHERE ordered_at < :as_of AND customer_id IS NOT NULL
     GROUP BY customer_id

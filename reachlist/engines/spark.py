@@ -11,7 +11,9 @@ as Arrow. Spark has no transactions: the campaign log lives in a local ``--state
 from __future__ import annotations
 
 import contextlib
+import logging
 import os
+import warnings
 from typing import Any
 
 import polars as pl
@@ -24,7 +26,11 @@ from reachlist.schema import Mapping
 from reachlist.wording import option
 
 SPARK = Dialect(
-    "spark", placeholder="colon", text_type="STRING", type_names=(("DOUBLE PRECISION", "DOUBLE"),)
+    "spark",
+    placeholder="colon",
+    text_type="STRING",
+    type_names=(("DOUBLE PRECISION", "DOUBLE"),),
+    day_difference="datediff({end}, {start})",  # a date minus a date is an interval in Spark
 )
 
 SESSION_SETTINGS = {
@@ -53,6 +59,8 @@ class SparkEngine(Engine):
                 f"Expected pyspark to run on {target}, found it is not installed.",
                 hint="pip install 'reachlist[spark]' (Spark needs Java 17 or later)",
             ) from None
+        # pyspark's note on pandas versions: reachlist hands no pandas data to Spark
+        warnings.filterwarnings("ignore", "PySpark does not yet fully support", FutureWarning)
         builder: Any = SparkSession.builder.appName("reachlist")
         if target.startswith("sc://"):
             builder = builder.remote(target)
@@ -72,7 +80,8 @@ class SparkEngine(Engine):
         for key in ("spark.sql.session.timeZone", "spark.sql.ansi.doubleQuotedIdentifiers"):
             self.spark.conf.set(key, SESSION_SETTINGS[key])  # an existing session keeps its own
         with contextlib.suppress(Exception):
-            self.spark.sparkContext.setLogLevel("ERROR")
+            self.spark.sparkContext.setLogLevel("OFF")  # a failed query is reported as one line
+        logging.getLogger("SQLQueryContextLogger").setLevel(logging.CRITICAL)
         self.mapping = self._read_paths(mapping)
 
     def _read_paths(self, mapping: Mapping) -> Mapping:
