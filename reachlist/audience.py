@@ -37,6 +37,7 @@ __all__ = [
     "adult_born_by",
     "audience_query",
     "choose_rules",
+    "reach_at_cutoffs_query",
     "reach_query",
 ]
 
@@ -345,6 +346,33 @@ def audience_query(spec: AudienceSpec) -> Query:
     outside_channel, no_recent_order),
     plus email when ``spec.contact``; best score first."""
     return _build(spec, per_rule=False)
+
+
+def reach_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query:
+    """(cutoff, customer_id, rule_rank): who each rule of ``spec`` reaches at each cutoff (its
+    index in ``cutoffs``, from 1), the lookback window shifted to end there; one query for all
+    (the rows ``reach_query`` gives for one shifted spec, per cutoff). ``spec`` has rules."""
+    if not spec.rules or not cutoffs:
+        raise ValueError("reach_at_cutoffs_query needs rules and cutoffs")
+    length = spec.lookback.until - spec.lookback.since
+    params: dict[str, Any] = {"antecedent_items": spec.antecedent_items}
+    for c, at in enumerate(cutoffs, start=1):
+        params[f"since_{c}"] = day_of(at - length)
+        params[f"until_{c}"] = day_of(at)
+    for r in spec.rules:
+        params[f"rule_{r.rank}_items"] = list(r.antecedent)
+        params[f"rule_{r.rank}_size"] = len(r.antecedent)
+    text = template_text("reach_at_cutoffs").format(
+        level=LEVEL_COLUMN[spec.level],
+        cutoff_rows="\n    UNION ALL\n".join(
+            _PARTS["cutoff_row"].format(c=c) for c in range(1, len(cutoffs) + 1)
+        ),
+        rule_blocks=",\n".join(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
+        reached_union="\n    UNION ALL\n".join(
+            _PARTS["cutoff_reached_line"].format(k=r.rank) for r in spec.rules
+        ),
+    )
+    return Query(text, params, label="audience reach at cutoffs")
 
 
 def reach_query(spec: AudienceSpec) -> Query:

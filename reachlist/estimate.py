@@ -38,7 +38,7 @@ import numpy as np
 import polars as pl
 
 from reachlist import ids as ids_
-from reachlist.audience import AudienceSpec, reach_query
+from reachlist.audience import AudienceSpec, reach_at_cutoffs_query, reach_query
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.query import Query
 from reachlist.stats import (
@@ -329,6 +329,21 @@ def _groups_at(
     )
 
 
+def _groups_at_cutoffs(
+    wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None, ats: list[datetime]
+) -> list[pl.DataFrame]:
+    """``_groups_at`` for every cutoff, from one query."""
+    if spec is None or not spec.rules:
+        return [_groups_at(wh, spec, ids, at) for at in ats]
+    found = ids_.normalise_frame(wh.fetch(reach_at_cutoffs_query(spec, ats))).with_columns(
+        pl.col("cutoff").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
+    )
+    return [
+        found.filter(pl.col("cutoff") == c).select("customer_id", "rule_rank")
+        for c in range(1, len(ats) + 1)
+    ]
+
+
 def _mh(tables: Iterable[np.ndarray]) -> StratifiedRatio | None:
     stacked = [t for t in tables if t.size]
     if not stacked:
@@ -423,9 +438,9 @@ def _history(
         )
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
     frames = takeup_history(wh, target, as_of, horizon, len(ats))
+    groups = _groups_at_cutoffs(wh, spec, ids, ats)
     cutoffs = [
-        _snapshot(target, at, frames[k], _groups_at(wh, spec, ids, at), ranks)
-        for k, at in enumerate(ats, start=1)
+        _snapshot(target, at, frames[k], groups[k - 1], ranks) for k, at in enumerate(ats, start=1)
     ]
     return _History(cutoffs, ranks, fixed_ids=spec is None, now_people=frames[0])
 

@@ -48,3 +48,19 @@ ORDER BY b.score DESC, b.customer_id
 SELECT customer_id, rule_rank
 FROM reached
 ORDER BY rule_rank, customer_id
+
+-- part: cutoff_row
+    SELECT {c} AS cutoff, CAST(:since_{c} AS DATE) AS since, CAST(:until_{c} AS DATE) AS until
+
+-- part: cutoff_rule_block
+rule_{k} AS (
+    -- (cutoff, customer) pairs holding every antecedent item of rule {k}
+    SELECT cutoff, customer_id
+    FROM held
+    WHERE item IN (:rule_{k}_items)
+    GROUP BY cutoff, customer_id
+    HAVING count(*) = :rule_{k}_size
+)
+
+-- part: cutoff_reached_line
+    SELECT cutoff, customer_id, {k} AS rule_rank FROM rule_{k}
