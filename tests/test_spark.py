@@ -163,3 +163,13 @@ def test_the_command_line_builds_on_spark_with_a_state_file(lake: Path, tmp_path
     )
     assert built.exit_code == 0, built.output
     assert (tmp_path / "b.csv").exists() and state.exists()
+
+
+def test_nanosecond_timestamps_get_a_fix_not_a_stack(lake: Path, tmp_path: Path) -> None:
+    # pandas-made Parquet often holds nanosecond timestamps, which Spark does not read
+    nanos = tmp_path / "orders_ns.parquet"
+    orders = pl.read_parquet(lake / "orders.parquet")
+    orders.with_columns(pl.col("ordered_at").dt.cast_time_unit("ns")).write_parquet(nanos)
+    mapping = Mapping.from_dict({"lake": str(lake), "orders": {"path": str(nanos)}})
+    with pytest.raises(InputError, match="no nanosecond timestamps.*cast_time_unit"):
+        Warehouse.open(MASTER, mapping)

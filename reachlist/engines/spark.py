@@ -92,9 +92,16 @@ class SparkEngine(Engine):
             try:
                 frame = self.spark.read.parquet(tmap.path)
             except Exception as exc:
+                found = first_line(exc)
+                hint = f"fix path under [{name}] in the mapping (a Parquet file or folder)"
+                if "NANOS" in found:  # pandas writes nanosecond timestamps; Spark reads none
+                    hint = (
+                        "Spark reads no nanosecond timestamps: rewrite the file with microsecond "
+                        "ones (polars: .dt.cast_time_unit('us'); pyarrow: coerce_timestamps='us')"
+                    )
                 raise InputError(
-                    f"Expected Parquet data for {name} at {tmap.path!r}, found {first_line(exc)}.",
-                    hint=f"fix path under [{name}] in the mapping (a Parquet file or folder)",
+                    f"Expected Parquet data for {name} at {tmap.path!r}, found {found}.",
+                    hint=hint,
                 ) from None
             frame.createOrReplaceTempView(tmap.physical[-1])
         return mapping
