@@ -264,7 +264,8 @@ def check_warehouse(wh: Warehouse, *, today: date | None = None) -> CheckReport:
     today = today or datetime.now(UTC).date()
     report = CheckReport(wh.display_name, wh.dialect.name, wh.mapping.source)
     for name in SOURCE_TABLES:
-        report.tables[name] = wh.mapping.table(name).physical_name
+        tmap = wh.mapping.table(name)
+        report.tables[name] = tmap.path or tmap.physical_name  # a Parquet file: its path
     for name in LOG_TABLES:
         report.log_tables_present[name] = wh.physical_columns(name) is not None
     report.problems, report.casts = contract_problems(wh)

@@ -64,9 +64,10 @@ def duck(pristine: Path) -> Warehouse:
     wh.close()
 
 
-def test_the_lake_passes_the_contract_check(spark: Warehouse) -> None:
+def test_the_lake_passes_the_contract_check(spark: Warehouse, lake: Path) -> None:
     report = check_warehouse(spark)
     assert not report.errors, report.errors
+    assert report.tables["orders"] == f"{lake}/orders.parquet"  # the file, not the session view
 
 
 def test_rules_equal_duckdb(spark: Warehouse, duck: Warehouse) -> None:
