@@ -1,5 +1,10 @@
 """A clearance list sized to the stock: customers taken, likeliest buyers first, until the
-treatment group's expected units reach the units to clear."""
+treatment group's expected units reach the units to clear.
+
+Expected units always come from a calibrated take-up probability (``reachlist.estimate``), never
+from the rules' co-purchase rate, which overstates take-up many times over. The quick mode (no
+estimate asked for) calibrates on the ``QUICK_CUTOFFS`` newest cutoffs only; where no calibration
+is possible at all, the stock is not sized: the list is not cut and the clearance says why."""
 
 from __future__ import annotations
 
@@ -9,13 +14,16 @@ import polars as pl
 
 from reachlist.errors import InputError
 from reachlist.estimate import Calibrated
-from reachlist.planning import Plan, item_buyers, item_facts
+from reachlist.planning import Plan, item_facts
 from reachlist.warehouse import Warehouse
 from reachlist.wording import option
 
-__all__ = ["NOT_NEEDED", "Clearance", "size_to_stock"]
+__all__ = ["NOT_NEEDED", "QUICK_CUTOFFS", "Clearance", "NextStep", "size_to_stock"]
 
 NOT_NEEDED = "not_needed"  # excluded_by for customers a clearance list does not need
+# Cutoffs of the cheap calibration a clearance uses when no full estimate was asked for: two
+# backtests, one history query and one reach query, as in the full estimate but shorter.
+QUICK_CUTOFFS = 3
 
 
 @dataclass(frozen=True)
@@ -27,23 +35,44 @@ class Clearance:
     units_per_buyer: float
     buyers_seen: int
     units_from: str
-    expected_units: float  # from the treatment group of the list
+    expected_units: float | None  # from the treatment group of the list; None: not sized
     customers: int  # customers on the list (treatment and holdout)
     available: int  # customers left after the exclusions
     clears: bool
-    basis: str = "co-purchase rate"  # what expected buyers were taken from
+    basis: str  # what expected buyers were taken from, or why the stock was not sized
+    cutoffs: int = 0  # past cutoffs the take-up probability was calibrated on
+
+    @property
+    def sized(self) -> bool:
+        return self.expected_units is not None
+
+
+@dataclass(frozen=True)
+class NextStep:
+    """One change to a clearance request and what it would do to the list."""
+
+    change: str  # the options to add, as typed
+    what: str  # the change in words
+    customers: int = 0  # on the list (treatment and holdout)
+    to_contact: int = 0
+    expected_units: float | None = None  # from the treatment group; None: not evaluated
+    clears: bool = False
+    note: str | None = None  # why it could not be evaluated
 
 
 def size_to_stock(
-    wh: Warehouse, plan: Plan, frame: pl.DataFrame, cal: Calibrated | None = None
+    wh: Warehouse,
+    plan: Plan,
+    frame: pl.DataFrame,
+    cal: Calibrated | None,
+    why_not: str | None = None,
 ) -> tuple[pl.DataFrame, Clearance]:
     """Take kept customers, likeliest buyers first, until the treatment group's expected units
     reach the stock; the rest are marked ``not_needed``.
 
-    With a calibration, a customer's expected buyers are their calibrated take-up probability
-    within the horizon and units are those a new buyer took within the horizon in the past;
-    without one (``--no-estimate``), the rule's co-purchase rate and the units past holders hold,
-    and the clearance says so."""
+    A customer's expected buyers are their calibrated take-up probability within the horizon and
+    units are those a new buyer took within the horizon at the latest complete cutoff. Without a
+    calibration (``why_not`` says why) the stock is not sized and nobody is cut."""
     req = plan.request
     if req.stock is not None:
         stock, stock_from = req.stock, option("stock")
@@ -57,31 +86,31 @@ def size_to_stock(
             )
         stock, stock_from = int(on_hand), "products.stock_on_hand"
     kept = frame.filter(pl.col("excluded_by").is_null())
-    if cal is not None:
-        horizon = plan.request.horizon_days
-        latest = cal.latest.people
-        per_buyer = cal.units_per_buyer
-        buyers = int(latest["bought"].sum())
-        units_from = (
-            f"new buyers of {plan.rules_target} within {horizon} days of {cal.latest.at:%Y-%m-%d}"
+    if cal is None:
+        # No calibrated take-up: refuse to size rather than fall back to the co-purchase rate.
+        return frame, Clearance(
+            stock=stock,
+            stock_from=stock_from,
+            units_per_buyer=0.0,
+            buyers_seen=0,
+            units_from="",
+            expected_units=None,
+            customers=kept.height,
+            available=kept.height,
+            clears=False,
+            basis=f"not sized: {why_not or 'no calibrated take-up'}",
         )
-        basis = f"calibrated expected buyers within {horizon} days"
-        kept = kept.join(cal.customer_rates(), on="customer_id", how="left").with_columns(
-            pl.col("rate").fill_null(0.0).alias("likely")
-        )
-    else:
-        until = plan.spec.lookback.until
-        buyers, units = item_buyers(wh, plan.target, until)
-        units_from = str(plan.target)
-        if buyers == 0 and plan.stand_in is not None:
-            buyers, units = item_buyers(wh, plan.stand_in, until)
-            units_from = f"{plan.stand_in} (stand-in)"
-        if buyers == 0:
-            per_buyer, units_from = 1.0, "no history: 1 unit assumed"
-        else:
-            per_buyer = units / buyers
-        basis = "co-purchase rate (no take-up estimate)"
-        kept = kept.with_columns(pl.col("score").alias("likely"))
+    horizon = plan.request.horizon_days
+    per_buyer = cal.units_per_buyer
+    buyers = int(cal.latest.people["bought"].sum())
+    units_from = (
+        f"new buyers of {plan.rules_target} within {horizon} days of {cal.latest.at:%Y-%m-%d}"
+    )
+    cutoffs = len(cal.history.cutoffs)
+    basis = f"calibrated expected buyers within {horizon} days ({cutoffs} cutoffs)"
+    kept = kept.join(cal.customer_rates(), on="customer_id", how="left").with_columns(
+        pl.col("rate").fill_null(0.0).alias("likely")
+    )
     kept = kept.sort(["likely", "score", "customer_id"], descending=[True, True, False])
     expected = kept.select(
         pl.when(pl.col("contact_group") == "treatment")
@@ -116,4 +145,5 @@ def size_to_stock(
         available=kept.height,
         clears=clears,
         basis=basis,
+        cutoffs=cutoffs,
     )

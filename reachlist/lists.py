@@ -28,7 +28,7 @@ from reachlist.audience import (
     rule_rate_interval,
 )
 from reachlist.campaigns import CampaignLog, CampaignRecord
-from reachlist.clearance import NOT_NEEDED, Clearance, size_to_stock
+from reachlist.clearance import NOT_NEEDED, QUICK_CUTOFFS, Clearance, NextStep, size_to_stock
 from reachlist.delivery import (
     PROVENANCE_KEY,
     delivery_frames,
@@ -62,7 +62,15 @@ from reachlist.planning import Plan
 from reachlist.warehouse import Warehouse
 from reachlist.wording import option
 
-__all__ = ["BUILD_STAGES", "Built", "ListOutcome", "RuleReach", "build_list", "preview_list"]
+__all__ = [
+    "BUILD_STAGES",
+    "Built",
+    "ListOutcome",
+    "RuleReach",
+    "build_list",
+    "list_outcome",
+    "preview_list",
+]
 
 
 def skipped_note() -> str:
@@ -98,6 +106,8 @@ class ListOutcome:
     takeup: TakeUpReport | None = None  # expected buyers of the treatment group
     holdout_plan: HoldoutPlanning | None = None
     estimate_note: str | None = None  # why there is no take-up estimate
+    # clearance that cannot clear the stock: changes tried, with their effect (reachlist.stock_steps)
+    next_steps: tuple[NextStep, ...] = ()
 
     @property
     def reached(self) -> int:
@@ -144,6 +154,8 @@ class ListOutcome:
         }
         if self.clearance is not None:
             out["clearance"] = asdict(self.clearance)
+        if self.next_steps:
+            out["next_steps"] = [asdict(s) for s in self.next_steps]
         out["estimate"] = self.estimate_counts()
         return out
 
@@ -202,6 +214,13 @@ its file."""
 # -- computing -----------------------------------------------------------------------------------
 def _outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None) -> ListOutcome:
     frame, waterfall = _excluded(wh, plan, log)
+    return _finish(wh, plan, frame, waterfall, log)
+
+
+def list_outcome(wh: Warehouse, plan: Plan, log: CampaignLog | None = None) -> ListOutcome:
+    """The list as ``preview_list`` makes it (rules below ``min_audience`` dropped), without the
+    per-rule reach."""
+    plan, frame, waterfall, _ = _settle(wh, plan, log)
     return _finish(wh, plan, frame, waterfall, log)
 
 
@@ -321,7 +340,13 @@ def _finish(
         cal, note = _calibrate(wh, plan, frame.filter(pl.col("excluded_by").is_null()))
     clearance = None
     if req.purpose == "clear":
-        frame, clearance = size_to_stock(wh, plan, frame, cal)
+        stock_cal, why_not = cal, note
+        if not req.estimate:
+            # Stock is never sized by the co-purchase rate: a quick calibration instead.
+            quick = min(req.cutoffs, QUICK_CUTOFFS)
+            kept = frame.filter(pl.col("excluded_by").is_null())
+            stock_cal, why_not = _calibrate(wh, plan, kept, cutoffs=quick)
+        frame, clearance = size_to_stock(wh, plan, frame, stock_cal, why_not)
         waterfall.append(
             StepCount(
                 NOT_NEEDED,
@@ -359,7 +384,7 @@ def _finish(
 
 
 def _calibrate(
-    wh: Warehouse, plan: Plan, kept: pl.DataFrame
+    wh: Warehouse, plan: Plan, kept: pl.DataFrame, cutoffs: int | None = None
 ) -> tuple[Calibrated | None, str | None]:
     """Backtests for the audience definition, with the kept customers as the audience.
 
@@ -375,7 +400,7 @@ def _calibrate(
             spec=plan.spec,
             customers=kept["customer_id"],
             horizon_days=plan.request.horizon_days,
-            max_cutoffs=plan.request.cutoffs,
+            max_cutoffs=plan.request.cutoffs if cutoffs is None else cutoffs,
         )
     except ReachlistError as exc:
         return None, f"unavailable: {exc.message}"

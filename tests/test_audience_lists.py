@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import math
 import shutil
 from collections import Counter
 from datetime import datetime, timedelta
@@ -159,29 +158,39 @@ def test_frequency_cap_reads_the_campaign_log(world: Path) -> None:
     assert {s.key: s for s in late.waterfall}["contacted_recently"].removed == 0
 
 
-def test_clearance_list_is_sized_to_the_stock(world: Path) -> None:
+def test_clearance_is_sized_by_calibrated_take_up_never_by_the_rules_scores(world: Path) -> None:
     with Warehouse.open(world) as wh:
         small = preview_list(
             wh,
             plan_list(wh, request(purpose="clear", stock=1, holdout=0.0), rules=RULESET, now=NOW),
         )
+        far = preview_list(
+            wh,
+            plan_list(
+                wh,
+                request(purpose="clear", stock=1, holdout=0.0, horizon_days=1_825),
+                rules=RULESET,
+                now=NOW,
+            ),
+        )
         big = preview_list(
             wh, plan_list(wh, request(purpose="clear", holdout=0.0), rules=RULESET, now=NOW)
         )
     c = small.clearance
-    assert c is not None and c.stock_from == "stock" and c.clears
-    # T: customers 8 and 18 hold one unit each (7 returned theirs): 1 unit per buyer
-    assert (c.buyers_seen, c.units_per_buyer) == (2, 1.0)
-    # best scores first: R1 customers 1, 4 and 21 score 0.3 (7 returned the target and is
-    # excluded), 0.9 in all; one R2 customer (0.2) brings it to 1.1 >= 1 unit
-    assert c.customers == 4 and math.isclose(c.expected_units, 1.1)
-    assert small.waterfall[-1].key == "not_needed"
-    assert small.waterfall[-1].remaining == small.listed.height == 4
-    assert sorted(small.listed["score"].to_list()) == [0.2, 0.3, 0.3, 0.3]
+    assert c is not None and c.stock_from == "stock" and c.sized and c.cutoffs >= 1
+    # By the rules' scores (co-purchase rates 0.3, 0.3, 0.3, 0.2 ...) four customers would
+    # "clear" one unit. Nobody in this world became a new buyer of T within 30 days of a past
+    # cutoff, so the calibrated take-up is 0: no unit is promised and nobody is cut.
+    assert c.buyers_seen == 0 and c.expected_units == 0.0 and not c.clears
+    assert c.customers == c.available == small.listed.height
+    assert small.waterfall[-1].key == "not_needed" and small.waterfall[-1].removed == 0
+    # a horizon no past cutoff of this short history can check: the stock is not sized at all
+    f = far.clearance
+    assert f is not None and not f.sized and f.expected_units is None
+    assert f.basis.startswith("not sized:") and f.customers == far.listed.height
     b = big.clearance
     assert b is not None and b.stock == 5 and b.stock_from == "products.stock_on_hand"
     assert not b.clears and b.customers == b.available == big.listed.height
-    assert b.expected_units < 5
 
 
 def test_introducing_an_item_without_history_needs_a_stand_in(world: Path) -> None:

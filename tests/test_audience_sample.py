@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from datetime import datetime
 from pathlib import Path
@@ -11,6 +12,7 @@ import polars as pl
 import pytest
 
 from reachlist.audience import AudienceSpec, Filters, audience_query, choose_rules
+from reachlist.clearance import QUICK_CUTOFFS
 from reachlist.errors import InputError
 from reachlist.lists import preview_list
 from reachlist.planning import ListRequest, plan_list
@@ -143,25 +145,29 @@ def test_preview_is_quick_and_adds_up(wh: Warehouse, tables: dict) -> None:
 
 
 def test_clearing_the_frost_fleece_stops_at_the_stock(wh: Warehouse) -> None:
-    plan = plan_list(
-        wh,
-        ListRequest(KEY_SKUS["frost_fleece"], purpose="clear", stock=60, campaign_id="c"),
-        now=NOW,
-    )
-    out = preview_list(wh, plan)
+    fleece = KEY_SKUS["frost_fleece"]
+    plan = plan_list(wh, ListRequest(fleece, purpose="clear", stock=10, campaign_id="c"), now=NOW)
+    out = preview_list(wh, plan)  # no estimate asked for: the quick calibration sizes the stock
     c = out.clearance
-    assert c is not None and c.clears and c.customers < c.available
-    t = out.treatment.sort("score", descending=True)
-    assert t["score"].sum() * c.units_per_buyer == pytest.approx(c.expected_units)
-    assert c.expected_units >= 60 > c.expected_units - t["score"][-1] * c.units_per_buyer
-    whole = preview_list(
-        wh,
-        plan_list(
-            wh, ListRequest(KEY_SKUS["frost_fleece"], purpose="clear", campaign_id="c"), now=NOW
-        ),
+    assert c is not None and c.sized and c.cutoffs == QUICK_CUTOFFS
+    assert c.clears and c.customers < c.available and c.expected_units >= 10
+    # sized by the rules' co-purchase rates, the same customers would promise nearly twice
+    # the units (the overstatement the calibration exists to remove)
+    t = out.treatment
+    assert t["score"].sum() * c.units_per_buyer > 1.5 * c.expected_units
+    whole_request = ListRequest(fleece, purpose="clear", campaign_id="c")
+    whole = preview_list(wh, plan_list(wh, whole_request, now=NOW))
+    full = preview_list(
+        wh, plan_list(wh, dataclasses.replace(whole_request, estimate=True), now=NOW)
     )
     assert whole.clearance is not None and whole.clearance.stock == 1200
-    assert not whole.clearance.clears and whole.clearance.expected_units < 1200
+    assert not whole.clearance.clears and whole.clearance.expected_units is not None
+    # the quick figure lies inside the full estimate's 90% interval for the same customers
+    assert full.takeup is not None and full.clearance is not None
+    assert full.clearance.cutoffs > QUICK_CUTOFFS
+    _, low, high = full.takeup.expected_units
+    assert full.treatment.height == whole.treatment.height
+    assert low <= whole.clearance.expected_units <= high
 
 
 def test_the_new_planter_is_introduced_through_its_category(wh: Warehouse) -> None:

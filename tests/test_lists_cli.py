@@ -7,6 +7,7 @@ from pathlib import Path
 
 import duckdb
 import polars as pl
+import pytest
 from click.testing import CliRunner
 
 from reachlist.campaigns import CampaignLog
@@ -253,11 +254,29 @@ def test_new_item_through_a_stand_in(sample: Path) -> None:
     assert "borrowed from the stand-in category:Indoor Pots & Planters" in ok.output
 
 
-def test_clear_reports_how_far_the_list_gets(sample: Path) -> None:
-    result = run("sizes", KEY_SKUS["frost_fleece"], "-w", str(sample), "--purpose", "clear")
+def test_clear_reports_how_far_the_list_gets_and_what_to_try_next(sample: Path) -> None:
+    fleece = KEY_SKUS["frost_fleece"]
+    args = ("sizes", fleece, "-w", str(sample), "--purpose", "clear", "--no-estimate")
+    result = run(*args)
     assert result.exit_code == 0, result.output
     assert "Clearance: stock 1,200 (products.stock_on_hand)" in result.output
-    assert "of the stock" in result.output
+    assert "of the stock" in result.output and "calibrated expected buyers" in result.output
+    assert "co-purchase rate x" not in result.output
+    assert "Next steps to clear more stock" in result.output
+    report = json.loads(run(*args, "--json").output)
+    steps = report["next_steps"]
+    changes = [s["change"].split()[0] for s in steps]
+    assert sorted(changes) == ["--bought-within", "--level", "--stand-in", "--top"]
+    units = [s["expected_units"] for s in steps]
+    assert all(u is not None for u in units) and units == sorted(units, reverse=True)
+    # each proposal is what the changed request gives: --level category, run as sizes
+    level = next(s for s in steps if s["change"] == "--level category")
+    again = json.loads(run(*args, "--level", "category", "--json").output)
+    assert again["clearance"]["expected_units"] == pytest.approx(level["expected_units"])
+    assert again["listed"] == level["customers"] and again["treatment"] == level["to_contact"]
+    # the list that clears its stock proposes nothing
+    small = json.loads(run(*args, "--stock", "5", "--json").output)
+    assert small["clearance"]["clears"] and small["next_steps"] == []
 
 
 def test_bad_input_is_one_line(sample: Path, tmp_path: Path) -> None:

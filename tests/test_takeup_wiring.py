@@ -105,15 +105,19 @@ def test_clearance_is_sized_by_calibrated_buyers(pristine: Path) -> None:
             wh, ListRequest(FLEECE, purpose="clear", stock=5, estimate=True, campaign_id="c")
         )
         out = preview_list(wh, plan)
-        naive = preview_list(
+        quick = preview_list(
             wh, plan_list(wh, ListRequest(FLEECE, purpose="clear", stock=5, campaign_id="c"))
         )
     c = out.clearance
     assert c is not None and c.clears and c.basis.startswith("calibrated expected buyers")
     assert out.takeup is not None and out.takeup.audience == out.treatment.height
-    assert naive.clearance is not None and naive.clearance.basis.startswith("co-purchase rate")
-    # confidence overstates take-up, so the honest list needs more customers for the same stock
-    assert c.customers > naive.clearance.customers
+    # without the estimate the stock is still sized by a calibration, a shorter one
+    q = quick.clearance
+    assert q is not None and q.clears and q.basis.endswith("(3 cutoffs)") and quick.takeup is None
+    # confidence overstates take-up: by the rules' co-purchase rates both lists would promise
+    # far more than the stock
+    for outcome in (out, quick):
+        assert outcome.treatment["score"].sum() > 1.5 * 5
     cli = run("sizes", FLEECE, "-w", str(pristine), "--purpose", "clear", "--stock", "5")
     assert "at calibrated expected buyers within 30 days" in cli.output
 

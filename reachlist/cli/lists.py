@@ -204,7 +204,7 @@ def estimate_options(fn: Callable[..., Any]) -> Callable[..., Any]:
         "--no-estimate",
         is_flag=True,
         help="Skip the take-up estimate (a quicker preview; a clearance is then "
-        "sized by the co-purchase rate).",
+        "sized by a quick calibration on the 3 newest cutoffs).",
     )(fn)
     fn = click.option(
         "--cutoffs",
@@ -350,6 +350,11 @@ def sizes(wh: Warehouse, target: str, state: str | None, as_json: bool, **opts: 
                 "Sizing the audience" + ("" if opts["no_estimate"] else " and backtesting take-up")
             )
             outcome = preview_list(wh, plan, log)
+            c = outcome.clearance
+            if c is not None and c.expected_units is not None and not c.clears:
+                from reachlist.stock_steps import propose_next_steps
+
+                outcome.next_steps = propose_next_steps(wh, outcome.plan, log, progress)
     finally:
         if log is not None:
             log.close()

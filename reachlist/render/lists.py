@@ -125,7 +125,15 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
     )
     render_takeup(outcome, console)
     c = outcome.clearance
-    if c is not None:
+    units = None if c is None else c.expected_units
+    if c is not None and units is None:
+        console.print(
+            f"[bold yellow]Clearance:[/] stock {c.stock:,} ({c.stock_from}) {escape(c.basis)}; "
+            f"the list keeps all {c.available:,} customers. reachlist sizes stock only by a "
+            "calibrated take-up rate, never by the co-purchase rate.",
+            soft_wrap=False,
+        )
+    elif c is not None and units is not None:
         basis = (
             f"{c.basis} x {c.units_per_buyer:.2f} units per buyer ({escape(c.units_from)}, "
             f"{c.buyers_seen:,} buyers)"
@@ -133,17 +141,43 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
         if c.clears:
             console.print(
                 f"[bold]Clearance:[/] stock {c.stock:,} ({c.stock_from}); the first "
-                f"{c.customers:,} of {c.available:,} customers, likeliest buyers first, are "
-                f"expected to take {c.expected_units:,.0f} units at {basis}.",
+                f"{c.customers:,} of {c.available:,} customers, likeliest buyers first "
+                f"({outcome.treatment.height:,} to contact), are expected to take "
+                f"{units:,.0f} units at {basis}.",
                 soft_wrap=False,
             )
         else:
             console.print(
                 f"[bold yellow]Clearance:[/] stock {c.stock:,} ({c.stock_from}); all "
-                f"{c.available:,} customers are expected to take only {c.expected_units:,.0f} "
-                f"units ({c.expected_units / c.stock:.0%} of the stock) at {basis}.",
+                f"{c.available:,} customers ({outcome.treatment.height:,} to contact) are "
+                f"expected to take only {units:,.0f} units "
+                f"({units / c.stock:.0%} of the stock) at {basis}.",
                 soft_wrap=False,
             )
+            render_next_steps(outcome, console)
+
+
+def render_next_steps(outcome: ListOutcome, console: Console) -> None:
+    """The changes tried for a clearance that cannot clear the stock, most units first."""
+    c = outcome.clearance
+    if c is None or not outcome.next_steps:
+        return
+    console.print(
+        "[bold]Next steps to clear more stock[/] (each tried alone on this list's exclusions and "
+        "holdout; expected units of those contacted at a quick calibrated rate):",
+        soft_wrap=False,
+    )
+    for s in outcome.next_steps:
+        if s.expected_units is None:
+            effect = f"not possible: {escape(s.note or 'no estimate')}"
+        else:
+            share = s.expected_units / c.stock
+            effect = (
+                f"{s.customers:,} customers ({s.to_contact:,} to contact), "
+                f"{s.expected_units:,.0f} units ({share:.0%} of the stock)"
+                + ("; clears it" if s.clears else "")
+            )
+        console.print(f"  {escape(s.change)}: {escape(s.what)}: {effect}.", soft_wrap=False)
 
 
 def render_takeup(outcome: ListOutcome, console: Console) -> None:
@@ -351,6 +385,7 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
         "estimate_note": outcome.estimate_note,
         "holdout_power": None if outcome.holdout_plan is None else outcome.holdout_plan.as_dict(),
         "clearance": None if outcome.clearance is None else dataclasses.asdict(outcome.clearance),
+        "next_steps": [dataclasses.asdict(s) for s in outcome.next_steps],
         "notes": list(plan.notes),
         "overrides": list(plan.overrides),
     }
