@@ -41,6 +41,9 @@ class Clearance:
     clears: bool
     basis: str  # what expected buyers were taken from, or why the stock was not sized
     cutoffs: int = 0  # past cutoffs the take-up probability was calibrated on
+    # listed customers who already hold what the estimate learns from (a stand-in, or the target
+    # with a repurchase window): no take-up is estimated for them, so they count for no units
+    unestimated: int = 0
 
     @property
     def sized(self) -> bool:
@@ -109,7 +112,8 @@ def size_to_stock(
     cutoffs = len(cal.history.cutoffs)
     basis = f"calibrated expected buyers within {horizon} days ({cutoffs} cutoffs)"
     kept = kept.join(cal.customer_rates(), on="customer_id", how="left").with_columns(
-        pl.col("rate").fill_null(0.0).alias("likely")
+        pl.col("rate").is_null().alias("unestimated"),
+        pl.col("rate").fill_null(0.0).alias("likely"),
     )
     kept = kept.sort(["likely", "score", "customer_id"], descending=[True, True, False])
     expected = kept.select(
@@ -146,4 +150,5 @@ def size_to_stock(
         clears=clears,
         basis=basis,
         cutoffs=cutoffs,
+        unestimated=int(kept.head(take)["unestimated"].sum()),
     )

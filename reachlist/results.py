@@ -21,7 +21,7 @@ from reachlist import ids
 from reachlist.audience import AudienceSpec, ChosenRule
 from reachlist.campaigns import CampaignLog
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
-from reachlist.estimate import DEFAULT_HORIZON, TakeUpReport, estimate_takeup
+from reachlist.estimate import COMBINED, DEFAULT_HORIZON, TakeUpReport, calibrate_audience
 from reachlist.query import Query
 from reachlist.stats import (
     DetectableUplift,
@@ -74,6 +74,11 @@ class CampaignResults:
     detectable: DetectableUplift | None  # what this split could detect at the holdout's rate
     predicted: TakeUpReport | None  # the calibrated estimate for the treatment group
     prediction_note: str
+    # One denominator: the estimate is about treated customers who lacked what it learns from
+    # (the target, or the stand-in) at as-of; observed buyers among those same customers.
+    observed_about: int | None = None
+    # What build logged (counts.estimate): the promise made when the list was built
+    promised: dict[str, Any] | None = None
 
     def sentence(self) -> str:
         """A plain sentence on whether the holdout was big enough to tell."""
@@ -131,7 +136,10 @@ class CampaignResults:
             else self.detectable.relative,
             "predicted_buyers": None if p is None else p.expected.expected,
             "predicted_interval": None if p is None else [p.expected.low, p.expected.high],
+            "predicted_for": None if p is None else p.audience,
+            "observed_among_predicted": self.observed_about,
             "prediction_note": self.prediction_note,
+            "promised_at_build": self.promised,
             "verdict": self.sentence(),
         }
 
@@ -229,24 +237,52 @@ def campaign_results(
         except ReachlistError:
             detectable = None
 
-    predicted, note = None, ""
+    predicted, note, observed_about = None, "", None
     if predict and t.customers:
         spec = _spec_from_record(record, target)
+        stand_in = (record.get("parameters") or {}).get("stand_in")
+        learnt_from = target
         as_of = datetime(first_sent.year, first_sent.month, first_sent.day)
         if spec is not None:
             as_of = min(as_of, spec.lookback.until)
-        treated_ids = joined.filter(pl.col("contact_group") == "treatment")["customer_id"]
+        treatment = joined.filter(pl.col("contact_group") == "treatment")
+        treated_ids = treatment["customer_id"]
         try:
-            predicted = estimate_takeup(
-                wh, target, spec=spec, customers=treated_ids, horizon_days=horizon_days, as_of=as_of
+            # a stand-in campaign's estimate is learnt from the stand-in, as build did
+            learnt_from = parse_target(str(stand_in)) if stand_in else target
+            cal = calibrate_audience(
+                wh,
+                learnt_from,
+                spec=spec,
+                customers=treated_ids,
+                horizon_days=horizon_days,
+                as_of=as_of,
+            ).for_customers(treated_ids)
+            predicted = cal.report(COMBINED, given=treated_ids.n_unique())
+            about = cal.members(COMBINED)["customer_id"]
+            about = about.cast(treated_ids.dtype, strict=False)
+            observed_about = int(
+                treatment.filter(pl.col("customer_id").is_in(about.implode()))["units"]
+                .is_not_null()
+                .sum()
             )
             note = (
-                f"estimated as of {as_of:%Y-%m-%d} for the treatment group, from "
+                f"estimated as of {as_of:%Y-%m-%d} for the {predicted.audience:,} treated "
+                f"customers who lacked {learnt_from} then, from "
                 f"{predicted.expected.n_backtests} backtests; it forecasts take-up without "
                 "the offer, so the holdout's rate is its fair comparison"
             )
+            if learnt_from != target:
+                note += (
+                    f"; learnt from buyers of the stand-in {learnt_from}, while the observed "
+                    f"buyers are of {target}"
+                )
         except ReachlistError as exc:
             note = f"no estimate: {exc.message}"
+    promised = None
+    logged = (record.get("counts") or {}).get("estimate")
+    if isinstance(logged, dict) and logged.get("expected") is not None:
+        promised = logged
     return CampaignResults(
         campaign_id,
         target,
@@ -260,4 +296,6 @@ def campaign_results(
         detectable,
         predicted,
         note,
+        observed_about,
+        promised,
     )

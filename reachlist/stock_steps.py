@@ -80,7 +80,8 @@ def _candidates(wh: Warehouse, plan: Plan) -> list[tuple[str, str, ListRequest, 
             out.append(
                 (
                     f"{option('stand_in')} category:{quote_option(name)}",
-                    f"the rules of its category {name} (its buyers stand in for the target's)",
+                    f"the rules of its category {name} (estimates then describe buyers of the "
+                    "whole category)",
                     dataclasses.replace(quick, stand_in=f"category:{name}"),
                     None,
                 )

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import polars as pl
 from click.testing import CliRunner
 
 from reachlist.campaigns import CampaignLog
@@ -129,3 +130,111 @@ def test_cutoffs_option_limits_the_backtests(pristine: Path) -> None:
     assert "2 cutoffs" in result.output
     bad = CliRunner().invoke(main, ["sizes", "GP20-101", "-w", str(path), "--cutoffs", "0"])
     assert bad.exit_code == 2
+
+
+def test_a_stand_in_list_speaks_of_one_set_of_customers(sample: Path, tmp_path: Path) -> None:
+    """The estimate covers only treated customers who lack the stand-in; the screen says how
+    many that is of those contacted and names the rest, and results compares the prediction with
+    buyers among the same customers, learnt from the stand-in as build did."""
+    import json
+
+    planter, pots = KEY_SKUS["self_watering_planter"], "category:Indoor Pots & Planters"
+    common = ("-w", str(sample), "--stand-in", pots, "--until", "2026-07-01")
+    preview = json.loads(run("sizes", planter, *common, "--json").output)
+    b = preview["baseline_buyers"]
+    assert b["audience"] + b["already_hold"] == preview["treatment"] and b["already_hold"] > 0
+    screen = " ".join(run("sizes", planter, *common).output.split())
+    assert (
+        f"of the {b['audience']:,} of {preview['treatment']:,} contacted customers who lack "
+        f"{pots}" in screen
+    )
+    assert f"Not estimated: the other {b['already_hold']:,} contacted customers" in screen
+    state = str(tmp_path / "state.duckdb")
+    out = str(tmp_path / "planter.csv")
+    built = run(
+        "build",
+        planter,
+        *common,
+        "--send-date",
+        "2026-07-01",
+        "--campaign",
+        "pl",
+        "--out",
+        out,
+        "--state",
+        state,
+    )
+    assert built.exit_code == 0, built.output
+    res = json.loads(run("results", "pl", "-w", str(sample), "--state", state, "--json").output)
+    promised = res["promised_at_build"]
+    assert promised["for_target"] == pots and promised["n_backtests"] > 0
+    # the same customers and the same model as at build: the same prediction
+    assert res["predicted_for"] == promised["audience"]
+    assert res["predicted_buyers"] == promised["expected"]
+    assert "stand-in" in res["prediction_note"]
+    assert 0 <= res["observed_among_predicted"] <= res["treatment"]["buyers"]
+    assert res["observed_among_predicted"] == 0  # the planter is sold only later
+
+
+def test_results_count_buyers_among_the_customers_the_prediction_covers(
+    sample: Path, tmp_path: Path
+) -> None:
+    """With a repurchase window the list holds past buyers the estimate does not cover; results
+    compares the prediction with buyers among the customers it covers, counted here directly on
+    the contract tables (plain SQL, no reachlist code)."""
+    import json
+
+    import duckdb
+
+    state = str(tmp_path / "state.duckdb")
+    day = "2026-08-15"
+    built = run(
+        "build",
+        FLEECE,
+        "-w",
+        str(sample),
+        "--bought-within",
+        "90",
+        "--until",
+        day,
+        "--send-date",
+        day,
+        "--campaign",
+        "fl",
+        "--out",
+        str(tmp_path / "fl.csv"),
+        "--state",
+        state,
+    )
+    assert built.exit_code == 0, built.output
+    res = json.loads(run("results", "fl", "-w", str(sample), "--state", state, "--json").output)
+    assert res["complete"] and res["predicted_for"] < res["treatment"]["customers"]
+    with Warehouse.open(sample, read_only=True) as wh, CampaignLog.open(wh, state) as log:
+        treated = log.contacts("fl").filter(pl.col("contact_group") == "treatment")
+    con = duckdb.connect(str(sample), read_only=True)
+    con.register("treated", treated.select("customer_id").to_arrow())
+    covered, bought = con.execute(
+        """
+        WITH lines AS (
+            SELECT o.customer_id, l.sku, l.quantity, CAST(o.ordered_at AS DATE) AS day
+            FROM orders o JOIN order_lines l USING (order_id)
+            WHERE l.sku = $sku
+        ),
+        held AS (  -- a positive net quantity of the target before the send day
+            SELECT customer_id FROM lines WHERE day < CAST($day AS DATE)
+            GROUP BY customer_id HAVING sum(quantity) > 0
+        ),
+        bought AS (  -- a positive net quantity within 30 days of it
+            SELECT customer_id FROM lines
+            WHERE day >= CAST($day AS DATE) AND day < CAST($day AS DATE) + 30
+            GROUP BY customer_id HAVING sum(quantity) > 0
+        )
+        SELECT count(*), count(b.customer_id)
+        FROM treated t LEFT JOIN bought b USING (customer_id)
+        WHERE t.customer_id NOT IN (SELECT customer_id FROM held)
+        """,
+        {"sku": FLEECE, "day": day},
+    ).fetchone()
+    con.close()
+    assert res["predicted_for"] == covered
+    assert res["observed_among_predicted"] == bought > 0

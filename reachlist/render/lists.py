@@ -136,8 +136,13 @@ def render_outcome_totals(outcome: ListOutcome, console: Console) -> None:
     elif c is not None and units is not None:
         basis = (
             f"{c.basis} x {c.units_per_buyer:.2f} units per buyer ({escape(c.units_from)}, "
-            f"{c.buyers_seen:,} buyers)"
+            f"{c.buyers_seen:,} {'buyer' if c.buyers_seen == 1 else 'buyers'})"
         )
+        if c.unestimated:
+            basis += (
+                f"; {c.unestimated:,} listed customers who already hold "
+                f"{escape(str(outcome.plan.rules_target))} count for no units"
+            )
         if c.clears:
             console.print(
                 f"[bold]Clearance:[/] stock {c.stock:,} ({c.stock_from}); the first "
@@ -186,14 +191,27 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
     r = outcome.takeup
     if r is not None:
         e = r.expected
+        contacted = outcome.treatment.height
+        who = f"of {r.audience:,} contacted customers"
+        if r.audience != contacted:
+            who = f"of the {r.audience:,} of {contacted:,} contacted customers who lack {r.target}"
         console.print(
             f"[bold]Baseline buyers within {r.horizon_days} days[/] (expected without the offer): "
             f"{e.expected:,.0f} "
-            f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) of {r.audience:,} contacted "
-            f"customers ({100 * r.rate:.2f}%), from {e.n_backtests} backtests "
+            f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) {escape(who)} "
+            f"({100 * r.rate:.2f}%), from {e.n_backtests} backtests "
             f"({escape(e.method)}).",
             soft_wrap=False,
         )
+        if r.audience != contacted:
+            console.print(
+                f"[yellow]Not estimated:[/] the other {contacted - r.audience:,} contacted "
+                f"customers already hold {escape(str(r.target))} (a "
+                f"{'stand-in' if outcome.plan.stand_in is not None else 'repurchase window'} "
+                "lets them in); the history measures new buyers, not how holders take up the "
+                "offer, so their buyers and units are not in the figures above.",
+                soft_wrap=False,
+            )
         for line in estimate_lines(r)[1:]:
             console.print(line, soft_wrap=False)
         if outcome.plan.stand_in is not None:

@@ -184,6 +184,10 @@ def _group_row(t: Table, g: GroupTakeUp) -> None:
     )
 
 
+def _num0(x: object) -> str:
+    return f"{float(x):,.0f}" if isinstance(x, int | float) else "?"
+
+
 def render_results(r: CampaignResults, console: Console) -> None:
     t = Table(
         title=f"Campaign {escape(r.campaign_id)}: {escape(str(r.target))}, sent "
@@ -211,12 +215,27 @@ def render_results(r: CampaignResults, console: Console) -> None:
         )
     if r.predicted is not None:
         p = r.predicted.expected
+        n = r.predicted.audience
+        who = (
+            "in the treatment group"
+            if n == r.treatment.customers
+            else f"among the {n:,} of {r.treatment.customers:,} treated customers it covers"
+        )
+        observed = r.treatment.buyers if r.observed_about is None else r.observed_about
         console.print(
-            f"Predicted buyers in the treatment group without the offer: {p.expected:,.0f} "
-            f"({p.level:.0%} interval {p.low:,.0f}-{p.high:,.0f}); observed {r.treatment.buyers:,}"
-            f" treated, and {r.holdout.buyers:,} of {r.holdout.customers:,} held out "
-            f"(scaled to the treatment group: "
-            f"{r.holdout.rate.estimate * r.treatment.customers:,.0f}).",
+            f"Predicted buyers {who} without the offer: {p.expected:,.0f} "
+            f"({p.level:.0%} interval {p.low:,.0f}-{p.high:,.0f}); observed {observed:,} of "
+            f"those {n:,}, and {r.holdout.buyers:,} of {r.holdout.customers:,} held out "
+            f"(at the holdout's rate: {r.holdout.rate.estimate * n:,.0f} of {n:,}).",
+            soft_wrap=False,
+        )
+    if r.promised is not None:
+        b = r.promised
+        console.print(
+            f"At build: {_num0(b.get('expected'))} ({_num0(b.get('low'))}-"
+            f"{_num0(b.get('high'))}) baseline buyers expected of {_num0(b.get('audience'))} "
+            f"customers, from {_num0(b.get('n_backtests'))} backtests "
+            f"(learnt from {escape(str(b.get('for_target', '?')))}; campaign log).",
             soft_wrap=False,
         )
     if r.prediction_note:
