@@ -458,7 +458,9 @@ def _calibrated(history: _History) -> tuple[Calibration, RuleWeight, pl.DataFram
             dtype=pl.Float64,
         )
     )
-    cal = calibrate(bt["predicted"].to_numpy(), bt["observed"].to_numpy())
+    cal = calibrate(
+        bt["predicted"].to_numpy(), bt["observed"].to_numpy(), cutoffs=bt["cutoff"].to_numpy()
+    )
     return cal, weight, bt
 
 

@@ -15,10 +15,62 @@ from reachlist.errors import InputError
 from reachlist.stats import DEFAULT_DISPERSION, calibrate, rule_weight
 
 
-def test_factor_is_the_ratio_of_sums() -> None:
-    cal = calibrate([40, 60, 100], [10, 20, 20])
-    assert cal.factor == pytest.approx(50 / 200)
-    assert cal.n_backtests == 3
+def _kept_share(pred: np.ndarray, obs: np.ndarray, labels: np.ndarray) -> float:
+    """The shrinking weight worked out here step by step: per-cutoff mean log errors against
+    the raw factor, their variance over the cutoffs (assumed 0.5^2 below 3), a N(0, 0.5^2) prior
+    on the log bias (the conjugate normal update; from memory)."""
+    raw = obs.sum() / pred.sum()
+    e = np.log((obs + 0.5) / (raw * pred + 0.5))
+    cuts = sorted(set(labels.tolist()))
+    means = np.array([e[labels == c].mean() for c in cuts])
+    s2 = means.var(ddof=1) if len(cuts) >= 3 else 0.25
+    return 0.25 / (0.25 + s2 / len(cuts))
+
+
+def test_factor_is_the_ratio_of_sums_shrunk_toward_one() -> None:
+    pred, obs = np.array([40.0, 60, 100]), np.array([10, 20, 20])
+    cal = calibrate(pred, obs)
+    assert cal.raw_factor == pytest.approx(50 / 200)
+    w = _kept_share(pred, obs, np.arange(3))
+    assert 0.8 < w < 1 and cal.factor == pytest.approx((50 / 200) ** w)
+    assert cal.n_backtests == 3 == cal.n_independent
+    # the same three backtests at one cutoff are one piece of evidence: half the log bias kept
+    one = calibrate(pred, obs, cutoffs=["m", "m", "m"])
+    assert one.n_independent == 1
+    assert one.factor == pytest.approx((50 / 200) ** 0.5)
+    assert one.raw_factor == cal.raw_factor and cal.factor < one.factor < 1
+    # a dozen cutoffs with the same bias keep it whole
+    steady = calibrate(np.full(12, 100.0), np.full(12, 20), cutoffs=np.arange(12))
+    assert steady.factor == pytest.approx(0.2)
+
+
+def test_backtests_sharing_a_cutoff_count_once() -> None:
+    # 60 backtests, five audiences at each of 12 cutoffs: the interval is the 12-cutoff one
+    rng = np.random.default_rng(3)
+    pred = rng.uniform(30, 300, 60)
+    obs = rng.poisson(pred * 0.3 * rng.lognormal(0, 0.3, 60))
+    labels = np.repeat(np.arange(12), 5)
+    clustered = calibrate(pred, obs, cutoffs=labels)
+    assert (clustered.n_backtests, clustered.n_independent) == (60, 12)
+    est = clustered.predict(20_000.0, level=0.9)  # large, so the Poisson floor does not bind
+    assert est.method == "log-normal from 60 backtests at 12 cutoffs"
+    assert (est.n_backtests, est.n_cutoffs) == (60, 12) and not est.rests_on_few
+    e = np.asarray(clustered.log_errors)
+    # Source: the normal prediction interval for one new observation (Hahn & Meeker, 1991,
+    # section 4.7; from memory), with the degrees of freedom of 12 independent cutoffs
+    half = t.ppf(0.95, 11) * e.std(ddof=1) * math.sqrt(1 + 1 / 12)
+    x = 20_000.0 * clustered.factor
+    assert est.low == pytest.approx((x + 0.5) * math.exp(e.mean() - half) - 0.5)
+    assert est.high == pytest.approx((x + 0.5) * math.exp(e.mean() + half) - 0.5)
+    # counted as 60 independent backtests they would give the narrower empirical interval
+    naive = calibrate(pred, obs).predict(20_000.0, level=0.9)
+    assert naive.method == "empirical quantiles of 60 backtests"
+    # few cutoffs: the wide overdispersed Poisson interval, and the estimate says so
+    few = calibrate(pred[:15], obs[:15], cutoffs=labels[:15]).predict(100.0)
+    assert few.method.startswith("overdispersed Poisson") and "at 3 cutoffs" in few.method
+    assert few.rests_on_few
+    with pytest.raises(InputError, match="one label per backtest"):
+        calibrate(pred, obs, cutoffs=labels[:5])
 
 
 def test_no_backtests_is_uncalibrated_and_wide() -> None:
@@ -48,7 +100,7 @@ def test_log_normal_interval_between_5_and_18_backtests() -> None:
     cal = calibrate(pred, obs)
     est = cal.predict(5000.0, level=0.9)  # large, so the Poisson floor does not bind
     assert est.method == "log-normal from 8 backtests"
-    f = obs.sum() / pred.sum()
+    f = (obs.sum() / pred.sum()) ** _kept_share(pred, obs, np.arange(8))
     e = np.log((obs + 0.5) / (f * pred + 0.5))
     # Source: the normal prediction interval for one new observation, mean +- t * s * sqrt(1+1/n)
     # (e.g. Hahn & Meeker, Statistical Intervals, 1991, section 4.7; from memory), t from scipy.
@@ -102,7 +154,7 @@ def test_interval_never_narrower_than_poisson_noise() -> None:
 
 def test_zero_observed_buyers() -> None:
     cal = calibrate([20, 30, 25, 10, 15], [0, 0, 0, 0, 0])
-    assert cal.factor == pytest.approx(0.5 / 100)
+    assert cal.raw_factor == pytest.approx(0.5 / 100)
     est = cal.predict(40.0)
     assert est.low < 1e-3 and est.high >= est.expected > 0
 

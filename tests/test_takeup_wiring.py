@@ -238,3 +238,11 @@ def test_results_count_buyers_among_the_customers_the_prediction_covers(
     con.close()
     assert res["predicted_for"] == covered
     assert res["observed_among_predicted"] == bought > 0
+
+
+def test_an_estimate_on_few_cutoffs_says_so(pristine: Path) -> None:
+    few = " ".join(run("sizes", MAT, "-w", str(pristine), "--cutoffs", "3").output.split())
+    assert "overdispersed Poisson" in few and "at 2 cutoffs" in few
+    assert "Rests on few: 2 past cutoffs" in few
+    many = " ".join(run("sizes", MAT, "-w", str(pristine)).output.split())
+    assert "at 12 cutoffs" in many and "Rests on few" not in many

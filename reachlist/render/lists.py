@@ -12,7 +12,7 @@ from reachlist.planning import Plan
 from reachlist.query import Dialect, Rendered, literal
 from reachlist.query import inline as inline_values
 from reachlist.render import CAUTION, fmt_count
-from reachlist.render.takeup import estimate_lines, render_holdout_planning
+from reachlist.render.takeup import estimate_lines, few_cutoffs_line, render_holdout_planning
 
 SENSITIVE_WARNING = (
     "Warning: this list uses items of a sensitive category ({items}). Inferring health or "
@@ -199,10 +199,11 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
             f"[bold]Baseline buyers within {r.horizon_days} days[/] (expected without the offer): "
             f"{e.expected:,.0f} "
             f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) {escape(who)} "
-            f"({100 * r.rate:.2f}%), from {e.n_backtests} backtests "
-            f"({escape(e.method)}).",
+            f"({100 * r.rate:.2f}%), {escape(e.method)}.",
             soft_wrap=False,
         )
+        if e.rests_on_few:
+            console.print(few_cutoffs_line(e), soft_wrap=False)
         if r.audience != contacted:
             console.print(
                 f"[yellow]Not estimated:[/] the other {contacted - r.audience:,} contacted "

@@ -21,6 +21,7 @@ from reachlist.backtest import Backtest
 from reachlist.errors import InputError
 from reachlist.estimate import HoldoutPlanning, TakeUpReport
 from reachlist.results import CampaignResults, GroupTakeUp
+from reachlist.stats.calibration import TakeUpEstimate
 
 __all__ = [
     "gains_chart_text",
@@ -72,9 +73,21 @@ def estimate_lines(r: TakeUpReport) -> list[str]:
     return lines
 
 
+def few_cutoffs_line(e: TakeUpEstimate) -> str:
+    """Said whenever an estimate rests on fewer than FEW_CUTOFFS independent cutoffs."""
+    m = e.n_cutoffs or e.n_backtests
+    return (
+        f"[yellow]Rests on few:[/] {m} past cutoff{'s' if m != 1 else ''} (backtests at one "
+        "cutoff count once), so the interval is the wide one and the calibration factor is "
+        "pulled toward 1; a longer history or a shorter horizon gives more."
+    )
+
+
 def render_estimate(r: TakeUpReport, console: Console) -> None:
     for line in estimate_lines(r):
         console.print(line, soft_wrap=False)
+    if r.expected.rests_on_few:
+        console.print(few_cutoffs_line(r.expected), soft_wrap=False)
     if r.already_hold:
         console.print(
             f"[dim]{r.already_hold:,} given customers already hold the target and "

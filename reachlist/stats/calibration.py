@@ -5,19 +5,28 @@ A backtest builds an audience at an earlier cutoff, predicts its buyers (for exa
 the horizon. Given several, :func:`calibrate` learns
 
 - a multiplicative factor, the ratio of sums ``sum(observed) / sum(predicted)``: it weighs
-  backtests by size, so one tiny audience cannot swing it;
+  backtests by size, so one tiny audience cannot swing it. It is then shrunk toward 1 on the log
+  scale, ``factor ** w``, ``w = tau^2 / (tau^2 + s^2 / m)``: a normal prior on the log bias with
+  standard deviation ``tau`` = ``FACTOR_PRIOR_SD`` around no bias, against the mean of ``m``
+  cutoffs' log errors whose spread is ``s`` (measured from 3 cutoffs on, else
+  ``DEFAULT_CUTOFF_SD``). One month's bias is weak evidence of next month's (``w`` = 0.5 from one
+  cutoff); a dozen consistent months keep nearly all of it;
 - the spread of the errors ``e = log((observed + 0.5) / (factor * predicted + 0.5))``: the half
   keeps audiences with no buyers in play.
 
-:meth:`Calibration.predict` then turns a new raw prediction into expected buyers with an interval,
-choosing the method by how many backtests there are (the ``method`` string says which):
+Backtests at the same cutoff (a list and its rules' audiences share most customers and one
+month's season) are not independent: the evidence is counted in cutoffs, ``m``, not in backtests.
 
-1. ``empirical``: enough backtests for distribution-free order statistics. With n errors sorted,
+:meth:`Calibration.predict` then turns a new raw prediction into expected buyers with an interval,
+choosing the method by how many cutoffs there are (the ``method`` string says which):
+
+1. ``empirical``: enough cutoffs for distribution-free order statistics. With n errors sorted,
    ``[e_(j), e_(k)]``, ``j = floor((n+1)(1-level)/2)``, ``k = n+1-j``, covers a new exchangeable
-   error with probability at least ``level``. Needs ``n >= 2/(1-level) - 1`` (19 at 90%).
-2. ``log-normal``: at least 5 backtests but too few for (1): the normal prediction interval
-   ``mean(e) +- t(n-1) * sd(e) * sqrt(1 + 1/n)`` on the log scale.
-3. ``overdispersed Poisson``: fewer than 5 backtests, where a spread cannot be estimated. Garwood's
+   error with probability at least ``level``. Needs ``m >= 2/(1-level) - 1`` (19 at 90%).
+2. ``log-normal``: at least 5 cutoffs but too few for (1): the normal prediction interval
+   ``mean(e) +- t(m-1) * sd(e) * sqrt(1 + 1/m)`` on the log scale (the estimate's own
+   uncertainty, from ``m`` cutoffs, widens it).
+3. ``overdispersed Poisson``: fewer than 5 cutoffs, where a spread cannot be estimated. Garwood's
    exact Poisson limits on the effective count ``expected / phi``, scaled back by ``phi``: a
    Poisson interval made ``sqrt(phi)`` times wider. ``phi`` is the larger of
    :data:`DEFAULT_DISPERSION` and the Pearson dispersion of the backtests (from 2 on). Binomial
@@ -30,7 +39,7 @@ the expected count (the errors of a few large backtests can sit on one side of t
 >>> cal = calibrate(predicted=[40, 55, 30, 62, 48, 35], observed=[31, 50, 19, 47, 41, 22])
 >>> est = cal.predict(50.0, level=0.9)
 >>> round(est.expected, 1), round(est.low, 1), round(est.high, 1), est.n_backtests, est.method
-(38.9, 27.1, 52.2, 6, 'log-normal from 6 backtests')
+(39.0, 27.1, 52.2, 6, 'log-normal from 6 backtests')
 """
 
 from __future__ import annotations
@@ -47,6 +56,9 @@ from reachlist.stats import _check
 
 __all__ = [
     "DEFAULT_DISPERSION",
+    "DEFAULT_CUTOFF_SD",
+    "FACTOR_PRIOR_SD",
+    "FEW_CUTOFFS",
     "MIN_BACKTESTS_FOR_RULE",
     "MIN_BACKTESTS_FOR_SPREAD",
     "Calibration",
@@ -54,12 +66,19 @@ __all__ = [
     "TakeUpEstimate",
     "calibrate",
     "rule_weight",
+    "shrink_weight",
 ]
 
 # Overdispersion assumed when backtests cannot measure it: Poisson intervals twice as wide.
 # Campaign take-up varies with season and stock far more than coin-flip noise does.
 DEFAULT_DISPERSION = 4.0
-MIN_BACKTESTS_FOR_SPREAD = 5
+MIN_BACKTESTS_FOR_SPREAD = 5  # independent backtests (cutoffs) for a spread
+# Shrinking the factor: a prior standard deviation of the log bias around none (a factor
+# between 0.37 and 2.7 is within two of them), and the spread of one cutoff's log bias assumed
+# when fewer than 3 cutoffs cannot measure it.
+FACTOR_PRIOR_SD = 0.5
+DEFAULT_CUTOFF_SD = 0.5
+FEW_CUTOFFS = 5  # below this the estimate rests on few cutoffs, and the screen says so
 MIN_BACKTESTS_FOR_RULE = 4
 _HALF = 0.5  # continuity half-buyer in log errors: an audience with no buyers has a finite error
 
@@ -75,6 +94,11 @@ class TakeUpEstimate:
     n_backtests: int
     method: str
     factor: float
+    n_cutoffs: int = 0  # independent backtests: distinct cutoffs (0: not known)
+
+    @property
+    def rests_on_few(self) -> bool:
+        return (self.n_cutoffs or self.n_backtests) < FEW_CUTOFFS
 
 
 @dataclass(frozen=True)
@@ -84,10 +108,22 @@ class Calibration:
     factor: float
     log_errors: tuple[float, ...]
     dispersion: float
+    n_cutoffs: int | None = None  # distinct cutoffs among the backtests (None: each its own)
+    raw_factor: float | None = None  # before shrinking toward 1
 
     @property
     def n_backtests(self) -> int:
         return len(self.log_errors)
+
+    @property
+    def n_independent(self) -> int:
+        return self.n_backtests if self.n_cutoffs is None else self.n_cutoffs
+
+    def _runs_on(self) -> str:
+        n, m = self.n_backtests, self.n_independent
+        if m == n:
+            return f"{n} backtests"
+        return f"{n} backtests at {m} cutoff{'s' if m != 1 else ''}"
 
     def predict(self, predicted: float, level: float = 0.9) -> TakeUpEstimate:
         """Calibrated expected buyers for a new raw prediction, with an interval.
@@ -101,27 +137,29 @@ class Calibration:
         if not (math.isfinite(predicted) and predicted >= 0):
             raise InputError(f"predicted: expected buyers >= 0, got {predicted!r}.")
         expected = self.factor * predicted
-        n = self.n_backtests
+        n, m = self.n_backtests, self.n_independent
         alpha = 1.0 - level
         e = np.sort(np.asarray(self.log_errors))
-        if n >= _min_empirical(level):
+        if m >= _min_empirical(level):
             j = math.floor((n + 1) * alpha / 2 + 1e-9)  # 1 - 0.9 is a hair under 0.1 in binary
             lo_e, hi_e = float(e[j - 1]), float(e[n - j])
-            method = f"empirical quantiles of {n} backtests"
-        elif n >= MIN_BACKTESTS_FOR_SPREAD:
-            half = float(t.ppf(1 - alpha / 2, n - 1)) * float(e.std(ddof=1)) * math.sqrt(1 + 1 / n)
+            method = f"empirical quantiles of {self._runs_on()}"
+        elif m >= MIN_BACKTESTS_FOR_SPREAD and n >= 2:
+            half = float(t.ppf(1 - alpha / 2, m - 1)) * float(e.std(ddof=1)) * math.sqrt(1 + 1 / m)
             lo_e, hi_e = float(e.mean()) - half, float(e.mean()) + half
-            method = f"log-normal from {n} backtests"
+            method = f"log-normal from {self._runs_on()}"
         else:
             low, high = _garwood(expected, self.dispersion, level)
-            ran = f"{n} backtest{'s' if n != 1 else ''}" if n else "no backtests"
+            ran = self._runs_on() if n else "no backtests"
+            if n == 1:
+                ran = "1 backtest"
             method = f"overdispersed Poisson (phi {self.dispersion:.1f}, {ran})"
-            return TakeUpEstimate(expected, low, high, level, n, method, self.factor)
+            return TakeUpEstimate(expected, low, high, level, n, method, self.factor, m)
         low = max((expected + _HALF) * math.exp(lo_e) - _HALF, 0.0)
         high = (expected + _HALF) * math.exp(hi_e) - _HALF
         p_low, p_high = _garwood(expected, 1.0, level)
         low, high = min(low, p_low, expected), max(high, p_high, expected)
-        return TakeUpEstimate(expected, low, high, level, n, method, self.factor)
+        return TakeUpEstimate(expected, low, high, level, n, method, self.factor, m)
 
 
 def _min_empirical(level: float) -> int:
@@ -138,35 +176,72 @@ def _garwood(expected: float, phi: float, level: float) -> tuple[float, float]:
     return phi * low, phi * high
 
 
-def calibrate(predicted: npt.ArrayLike, observed: npt.ArrayLike) -> Calibration:
+def calibrate(
+    predicted: npt.ArrayLike,
+    observed: npt.ArrayLike,
+    cutoffs: npt.ArrayLike | None = None,
+) -> Calibration:
     """Learn the factor and error spread of a predictor from past backtests (one per audience).
 
     ``predicted``: expected buyers the method gave at each backtest cutoff; ``observed``: buyers
-    seen within the horizon. No backtests at all is allowed: factor 1, assumed dispersion.
+    seen within the horizon; ``cutoffs``: each backtest's cutoff (any labels), so that backtests
+    sharing one count once; without it every backtest is its own cutoff. No backtests at all is
+    allowed: factor 1, assumed dispersion.
 
-    >>> cal = calibrate([100.0, 80.0], [25, 20])
-    >>> cal.factor, cal.n_backtests
-    (0.25, 2)
+    >>> cal = calibrate([100.0, 80.0], [25, 20], cutoffs=[1, 1])
+    >>> round(cal.raw_factor, 3), round(cal.factor, 3), cal.n_backtests, cal.n_independent
+    (0.25, 0.5, 2, 1)
     """
     pred = _check.counts("predicted", predicted, allow_empty=True)
     obs = _check.counts("observed", observed, allow_empty=True)
     _check.same_length(predicted=pred, observed=obs)
+    m: int | None = None
+    if cutoffs is not None:
+        labels = np.asarray(cutoffs)
+        if labels.shape != pred.shape:
+            raise InputError(
+                f"cutoffs: expected one label per backtest ({pred.size}), got {labels.size}."
+            )
+        m = len(set(labels.tolist()))
     if pred.size == 0:
-        return Calibration(1.0, (), DEFAULT_DISPERSION)
+        return Calibration(1.0, (), DEFAULT_DISPERSION, m, 1.0)
     if np.any(pred <= 0):
         raise InputError(
             "predicted: expected more than 0 buyers in every backtest, got 0.",
             hint="leave out backtests whose audience was empty.",
         )
     # At least half a buyer in total, so a run of backtests without buyers does not predict 0.
-    factor = max(float(obs.sum()), _HALF) / float(pred.sum())
+    raw = max(float(obs.sum()), _HALF) / float(pred.sum())
+    labels = np.arange(pred.size) if cutoffs is None else np.asarray(cutoffs)
+    factor = raw ** shrink_weight(np.log((obs + _HALF) / (raw * pred + _HALF)), labels)
     fitted = factor * pred
+    # errors against the shrunk factor: their mean carries the bias the shrinking left, so the
+    # log-normal interval is centred where the evidence is while the point estimate is cautious
     errors = np.log((obs + _HALF) / (fitted + _HALF))
     dispersion = DEFAULT_DISPERSION
-    if pred.size >= 2:
-        pearson = float(np.sum((obs - fitted) ** 2 / fitted)) / (pred.size - 1)
+    if pred.size >= 2:  # the scatter around the data's own fit
+        pearson = float(np.sum((obs - raw * pred) ** 2 / (raw * pred))) / (pred.size - 1)
         dispersion = max(dispersion, pearson)
-    return Calibration(factor, tuple(float(x) for x in errors), dispersion)
+    return Calibration(factor, tuple(float(x) for x in errors), dispersion, m, raw)
+
+
+def shrink_weight(log_errors: npt.ArrayLike, cutoffs: npt.ArrayLike) -> float:
+    """How much of the learnt log bias to keep: ``tau^2 / (tau^2 + s^2 / m)`` over the ``m``
+    cutoffs' mean log errors (see the module's docstring).
+
+    >>> round(shrink_weight([0.4, 0.2, 0.6], ["a", "a", "a"]), 3)  # one cutoff
+    0.5
+    """
+    e = np.asarray(log_errors, dtype=float)
+    labels = np.asarray(cutoffs)
+    _, which = np.unique(labels, return_inverse=True)
+    m = int(which.max()) + 1 if e.size else 0
+    if m == 0:
+        return 0.0
+    means = np.bincount(which, weights=e, minlength=m) / np.bincount(which, minlength=m)
+    s2 = float(means.var(ddof=1)) if m >= 3 else DEFAULT_CUTOFF_SD**2
+    tau2 = FACTOR_PRIOR_SD**2
+    return tau2 / (tau2 + s2 / m)
 
 
 @dataclass(frozen=True)
