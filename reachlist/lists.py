@@ -59,6 +59,7 @@ from reachlist.holdout import (
     global_holdout,
 )
 from reachlist.planning import Plan
+from reachlist.uplift import LearntUplift, learn_uplift
 from reachlist.warehouse import Warehouse
 from reachlist.wording import option
 
@@ -108,6 +109,8 @@ class ListOutcome:
     estimate_note: str | None = None  # why there is no take-up estimate
     # clearance that cannot clear the stock: changes tried, with their effect (reachlist.stock_steps)
     next_steps: tuple[NextStep, ...] = ()
+    # what offers of this purpose did in finished campaigns with holdouts (reachlist.uplift)
+    uplift: LearntUplift | None = None
 
     @property
     def reached(self) -> int:
@@ -183,6 +186,7 @@ class ListOutcome:
             "base_rate": num(r.base_rate),
             "breadth_matched_rate": num(r.breadth_matched_rate),
             "added_value": None if r.added_value is None else num(r.added_value.estimate),
+            "uplift": None if self.uplift is None else self.uplift.as_dict(),
         }
 
 
@@ -373,6 +377,8 @@ def _finish(
             outcome.estimate_note = f"unavailable: {exc.message}"
     elif cal is not None:
         outcome.estimate_note = "nobody left to contact"
+    if outcome.takeup is not None and log is not None:
+        outcome.uplift = learn_uplift(wh, log, req.purpose, as_of=plan.now)
     if outcome.takeup is not None:
         listed = outcome.listed.height
         outcome.holdout_plan = holdout_planning(

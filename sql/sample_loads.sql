@@ -25,5 +25,8 @@ SELECT * FROM src
 -- part: sample_planted
 SELECT rule_id, customer_id, CAST(antecedent_held_at AS TIMESTAMP), CAST(target_bought_at AS TIMESTAMP), target_sku, source, target_purchases, target_full_returns FROM src
 
+-- part: sample_planted_campaigns
+SELECT campaign_id, rule_id, target, purpose, CAST(sent_at AS TIMESTAMP), horizon_days, holdout_share, planted_ratio, customers, buyers FROM src
+
 -- part: sample_meta
 SELECT * FROM src

@@ -26,3 +26,8 @@ CREATE TABLE sample_planted (
     rule_id VARCHAR NOT NULL, customer_id BIGINT NOT NULL, antecedent_held_at TIMESTAMP,
     target_bought_at TIMESTAMP, target_sku VARCHAR, source VARCHAR NOT NULL,
     target_purchases INTEGER NOT NULL, target_full_returns INTEGER NOT NULL);
+CREATE TABLE sample_planted_campaigns (
+    campaign_id VARCHAR NOT NULL, rule_id VARCHAR NOT NULL, target VARCHAR NOT NULL,
+    purpose VARCHAR NOT NULL, sent_at TIMESTAMP NOT NULL, horizon_days INTEGER NOT NULL,
+    holdout_share DOUBLE NOT NULL, planted_ratio DOUBLE NOT NULL, customers BIGINT NOT NULL,
+    buyers BIGINT NOT NULL);

@@ -71,6 +71,18 @@ def sample(pristine: Path, tmp_path: Path) -> Path:
     return path
 
 
+@pytest.fixture
+def unlogged(sample: Path) -> Path:
+    """The sample without its campaign history: a warehouse whose campaign log is not there yet."""
+    import duckdb
+
+    con = duckdb.connect(str(sample))
+    con.execute("DROP TABLE campaign_contacts")
+    con.execute("DROP TABLE campaigns")
+    con.close()
+    return sample
+
+
 HOUSEHOLDS = 150  # households of the Complete Journey slice
 
 

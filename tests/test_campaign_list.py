@@ -42,10 +42,10 @@ def _build(sample: Path, out: Path, target: str, campaign: str, *extra: str) -> 
     assert result.exit_code == 0, result.output
 
 
-def test_the_listing_counts_what_the_log_holds(sample: Path, tmp_path: Path) -> None:
-    _build(sample, tmp_path / "a.csv", MAT, "mat-dec")
-    _build(sample, tmp_path / "b.csv", FLEECE, "fleece-dec", "--horizon", "10")
-    with Warehouse.open(sample, read_only=True) as wh, CampaignLog.open(wh) as log:
+def test_the_listing_counts_what_the_log_holds(unlogged: Path, tmp_path: Path) -> None:
+    _build(unlogged, tmp_path / "a.csv", MAT, "mat-dec")
+    _build(unlogged, tmp_path / "b.csv", FLEECE, "fleece-dec", "--horizon", "10")
+    with Warehouse.open(unlogged, read_only=True) as wh, CampaignLog.open(wh) as log:
         today = date.today()
         listing = list_campaigns(log, today=today)
         contacts = {c: log.contacts(c) for c in ("mat-dec", "fleece-dec")}
@@ -68,10 +68,10 @@ def test_the_listing_counts_what_the_log_holds(sample: Path, tmp_path: Path) -> 
     assert first.narrowed and first.total == 2
 
 
-def test_the_screen_fits_80_columns_and_json_has_numbers(sample: Path, tmp_path: Path) -> None:
+def test_the_screen_fits_80_columns_and_json_has_numbers(unlogged: Path, tmp_path: Path) -> None:
     long_id = "winter-heated-mat-reintroduction-north"
-    _build(sample, tmp_path / "a.csv", MAT, long_id)
-    with Warehouse.open(sample, read_only=True) as wh, CampaignLog.open(wh) as log:
+    _build(unlogged, tmp_path / "a.csv", MAT, long_id)
+    with Warehouse.open(unlogged, read_only=True) as wh, CampaignLog.open(wh) as log:
         listing = list_campaigns(log, today=date.today())
     buf = io.StringIO()
     render_campaigns(Console(file=buf, width=80, highlight=False), listing)
@@ -81,31 +81,31 @@ def test_the_screen_fits_80_columns_and_json_has_numbers(sample: Path, tmp_path:
     assert long_id in "".join(first_cells)  # folded over lines, not cut
     treatment = listing.campaigns["treatment"][0]
     assert f"{treatment:,}" in screen
-    payload = json.loads(run("campaigns", "-w", str(sample), "--json").output)
+    payload = json.loads(run("campaigns", "-w", str(unlogged), "--json").output)
     assert payload["schema_version"] == 1
     (row,) = payload["campaigns"]
     assert row["campaign_id"] == long_id and row["treatment"] == treatment
     assert isinstance(row["holdout"], int) and isinstance(row["results_ready"], bool)
 
 
-def test_state_file_and_warehouse_logs_are_both_listed(sample: Path, tmp_path: Path) -> None:
+def test_state_file_and_warehouse_logs_are_both_listed(unlogged: Path, tmp_path: Path) -> None:
     state = tmp_path / "state.duckdb"
-    _build(sample, tmp_path / "a.csv", MAT, "in-warehouse")
-    _build(sample, tmp_path / "b.csv", FLEECE, "in-state", "--state", str(state))
+    _build(unlogged, tmp_path / "a.csv", MAT, "in-warehouse")
+    _build(unlogged, tmp_path / "b.csv", FLEECE, "in-state", "--state", str(state))
     payload = json.loads(
-        run("campaigns", "-w", str(sample), "--state", str(state), "--json").output
+        run("campaigns", "-w", str(unlogged), "--state", str(state), "--json").output
     )
     where = {r["campaign_id"]: r["log"] for r in payload["campaigns"]}
     assert Path(where["in-state"]).name == "state.duckdb"
-    assert Path(where["in-warehouse"]).name == sample.name
+    assert Path(where["in-warehouse"]).name == unlogged.name
     assert payload["total"] == 2
 
 
-def test_no_log_yet_is_an_empty_listing_not_an_error(sample: Path) -> None:
-    result = run("campaigns", "-w", str(sample))
+def test_no_log_yet_is_an_empty_listing_not_an_error(unlogged: Path) -> None:
+    result = run("campaigns", "-w", str(unlogged))
     assert result.exit_code == 0, result.output
     assert "0 campaign(s)" in result.output
-    with Warehouse.open(sample, read_only=True) as wh, CampaignLog.open(wh) as log:
+    with Warehouse.open(unlogged, read_only=True) as wh, CampaignLog.open(wh) as log:
         assert list_campaigns(log, today=date.today()).campaigns.schema["built"] == pl.Datetime(
             "us"
         )

@@ -185,6 +185,35 @@ def render_next_steps(outcome: ListOutcome, console: Console) -> None:
         console.print(f"  {escape(s.change)}: {escape(s.what)}: {effect}.", soft_wrap=False)
 
 
+def render_response(outcome: ListOutcome, console: Console) -> None:
+    """Response with the offer and incremental buyers, from the uplift of past campaigns."""
+    r, u = outcome.takeup, outcome.uplift
+    if r is None or u is None:
+        return
+    e = r.expected
+    if not u.learnt:
+        console.print(
+            f"[yellow]Response with the offer: not learnt[/] ({escape(u.note)}); the figures "
+            "above are take-up without the offer. Keep a holdout and run `reachlist results` "
+            "after the horizon: later lists learn the offer's effect from it.",
+            soft_wrap=False,
+        )
+        return
+    resp, low, high = u.with_offer(e.expected, e.low, e.high)
+    inc, inc_low, inc_high = u.incremental(e.expected)
+    console.print(
+        f"[bold]Response with the offer:[/] {resp:,.0f} ({low:,.0f}-{high:,.0f}) buyers of "
+        f"{r.audience:,}: the baseline x{u.ratio:.2f} ({u.low:.2f}-{u.high:.2f}, "
+        f"{u.level:.0%}), the uplift {escape(u.note)}.",
+        soft_wrap=False,
+    )
+    console.print(
+        f"[bold]Incremental buyers[/] (the offer's own): {inc:,.0f} ({inc_low:,.0f} to "
+        f"{inc_high:,.0f}) at the expected baseline.",
+        soft_wrap=False,
+    )
+
+
 def render_takeup(outcome: ListOutcome, console: Console) -> None:
     """Expected buyers of the contacted customers, with the interval and what it rests on;
     then the historical co-purchase rate, labelled as that."""
@@ -221,6 +250,7 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
                 f"{escape(str(outcome.plan.stand_in))}, learnt from its past buyers.",
                 soft_wrap=False,
             )
+        render_response(outcome, console)
     else:
         why = outcome.estimate_note or "no estimate"
         tail = (
@@ -343,6 +373,22 @@ def render_overlap(report: OverlapReport, console: Console, *, show_all: bool = 
 OUTCOME_SCHEMA = 1
 
 
+def _uplift_json(outcome: ListOutcome) -> dict[str, object]:
+    u = outcome.uplift
+    assert u is not None
+    out: dict[str, object] = u.as_dict()
+    r = outcome.takeup
+    if r is not None and u.learnt:
+        e = r.expected
+        resp = u.with_offer(e.expected, e.low, e.high)
+        inc = u.incremental(e.expected)
+        out["response_buyers"] = resp[0]
+        out["response_interval"] = [resp[1], resp[2]]
+        out["incremental_buyers"] = inc[0]
+        out["incremental_interval"] = [inc[1], inc[2]]
+    return out
+
+
 def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
     """`sizes --json` / `build --json`: the preview as numbers (and, after a build, its files)."""
     import dataclasses
@@ -401,6 +447,7 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
         "treatment": outcome.treatment.height,
         "holdout": outcome.holdout.height,
         "baseline_buyers": None if outcome.takeup is None else outcome.takeup.as_dict(),
+        "uplift": None if outcome.uplift is None else _uplift_json(outcome),
         "estimate_note": outcome.estimate_note,
         "holdout_power": None if outcome.holdout_plan is None else outcome.holdout_plan.as_dict(),
         "clearance": None if outcome.clearance is None else dataclasses.asdict(outcome.clearance),

@@ -7,8 +7,10 @@ import time
 from dataclasses import dataclass
 from datetime import date, datetime
 from pathlib import Path
+from typing import Any
 
 import numpy as np
+import polars as pl
 import pyarrow as pa
 import pyarrow.compute as pc
 
@@ -23,6 +25,7 @@ from reachlist.sample.generator import (
     generate_chunk,
     order_day_cdf,
 )
+from reachlist.sample.past_campaigns import past_campaigns
 from reachlist.sample.period import (
     CHUNK,
     EPOCH,
@@ -224,13 +227,19 @@ def _assemble(chunks: list[Chunk], cat: Catalogue) -> dict[str, pa.Table]:
     }
 
 
-def _write(tmp: Path, tables: dict[str, pa.Table]) -> None:
+def _write(
+    tmp: Path, tables: dict[str, pa.Table], history: list[tuple[dict[str, Any], pl.DataFrame]]
+) -> None:
+    from reachlist.campaigns import CampaignLog, CampaignRecord
     from reachlist.warehouse import Warehouse
 
     with Warehouse.open(tmp, create=True) as wh:
         wh.run_statement(template_text("sample_tables"))
         for name, sql in template_parts("sample_loads").items():
             wh.insert_arrow(name, tables[name], sql)
+        log = CampaignLog(wh)
+        for record, contacts in history:  # the campaign log, as build writes it
+            log.record(CampaignRecord(**record), contacts)
         wh.run_statement("CHECKPOINT")
 
 
@@ -313,12 +322,15 @@ def build_sample(
         **{f"quirk.{k}": str(v) for k, v in quirks.items()},
     }
     tables["sample_meta"] = pa.table({"key": list(meta), "value": list(meta.values())})
+    history, tables["sample_planted_campaigns"] = past_campaigns(
+        tables["sample_planted"], tables["sample_rules"], tables["customers"], int(seed)
+    )
 
     tmp = target.with_name(f".{target.name}.tmp-{os.getpid()}")
     for leftover in (tmp, Path(f"{tmp}.wal")):
         leftover.unlink(missing_ok=True)
     try:
-        _write(tmp, tables)
+        _write(tmp, tables, history)
         # a WAL left next to an earlier file at this path would be replayed into the new one
         Path(f"{target}.wal").unlink(missing_ok=True)
         os.replace(tmp, target)

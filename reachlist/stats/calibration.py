@@ -171,7 +171,8 @@ def _garwood(expected: float, phi: float, level: float) -> tuple[float, float]:
     """Exact Poisson limits for an effective count ``expected / phi``, scaled back by ``phi``."""
     k = expected / phi
     alpha = 1 - level
-    low = float(chi2.ppf(alpha / 2, 2 * k)) / 2 if k > 0 else 0.0
+    # (an effective count below 1e-9 buyers has a lower limit of 0: the quantile underflows)
+    low = float(chi2.ppf(alpha / 2, 2 * k)) / 2 if k > 1e-9 else 0.0
     high = float(chi2.ppf(1 - alpha / 2, 2 * k + 2)) / 2
     return phi * low, phi * high
 
