@@ -36,6 +36,7 @@ from reachlist.delivery import (
     provenance_json,
     sidecar_path,
 )
+from reachlist.economics import OfferEconomics, offer_economics
 from reachlist.errors import EmptyResultError, ReachlistError
 from reachlist.estimate import (
     Calibrated,
@@ -111,6 +112,7 @@ class ListOutcome:
     next_steps: tuple[NextStep, ...] = ()
     # what offers of this purpose did in finished campaigns with holdouts (reachlist.uplift)
     uplift: LearntUplift | None = None
+    economics: OfferEconomics | None = None  # with a discount (reachlist.economics)
 
     @property
     def reached(self) -> int:
@@ -187,6 +189,7 @@ class ListOutcome:
             "breadth_matched_rate": num(r.breadth_matched_rate),
             "added_value": None if r.added_value is None else num(r.added_value.estimate),
             "uplift": None if self.uplift is None else self.uplift.as_dict(),
+            "economics": None if self.economics is None else self.economics.as_dict(),
         }
 
 
@@ -379,6 +382,19 @@ def _finish(
         outcome.estimate_note = "nobody left to contact"
     if outcome.takeup is not None and log is not None:
         outcome.uplift = learn_uplift(wh, log, req.purpose, as_of=plan.now)
+    if outcome.takeup is not None and req.discount is not None:
+        u = outcome.uplift
+        outcome.economics = offer_economics(
+            wh,
+            plan.target,
+            plan.now,
+            discount_pct=req.discount,
+            margin_pct=req.margin,
+            price=req.price,
+            baseline_buyers=outcome.takeup.expected.expected,
+            units_per_buyer=outcome.takeup.units_per_buyer,
+            ratio=(u.ratio, u.low, u.high) if u is not None and u.learnt else None,
+        )
     if outcome.takeup is not None:
         listed = outcome.listed.height
         outcome.holdout_plan = holdout_planning(

@@ -26,6 +26,7 @@ from reachlist.audience import (
     skipped_below_breadth,
 )
 from reachlist.campaigns import check_campaign_id
+from reachlist.economics import check_offer_terms
 from reachlist.errors import ContractError, InputError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
@@ -120,6 +121,12 @@ class ListRequest:
     # Rules whose own audience after exclusions is smaller are not proposed (0: no minimum;
     # the CLI's --min-audience defaults to DEFAULT_MIN_AUDIENCE).
     min_audience: int = 0
+    # The offer's economics (reachlist.economics), with the estimate: a discount and a gross
+    # margin as percentages of the net price, and a price per unit (default: the target's net
+    # price per unit over the year before the as-of day).
+    discount: float | None = None
+    margin: float | None = None
+    price: float | None = None
 
     def parameters(self) -> dict[str, Any]:
         """The request as plain values, for the campaign log."""
@@ -215,6 +222,7 @@ def plan_list(
             f"Expected {option('stock')} of at least 1 unit, found {request.stock}.",
             hint="leave it out to use products.stock_on_hand",
         )
+    check_offer_terms(request.discount, request.margin, request.price)
     if request.offer_code is not None and not OFFER_CODE.fullmatch(request.offer_code):
         raise InputError(
             f"Expected {option('offer_code')} of 1 to 64 letters, digits or - _ . / (a coupon or promotion "

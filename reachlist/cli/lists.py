@@ -201,6 +201,29 @@ def estimate_options(fn: Callable[..., Any]) -> Callable[..., Any]:
         "smaller; 0 for no minimum.",
     )(fn)
     fn = click.option(
+        "--price",
+        default=None,
+        type=float,
+        metavar="AMOUNT",
+        help="Net price per unit for the offer's economics [default: the target's over the "
+        "last year].",
+    )(fn)
+    fn = click.option(
+        "--margin",
+        default=None,
+        type=float,
+        metavar="PCT",
+        help="Gross margin, % of the net price: adds net margin to the economics.",
+    )(fn)
+    fn = click.option(
+        "--discount",
+        default=None,
+        type=float,
+        metavar="PCT",
+        help="The offer's discount, % of the net price: shows incremental units and revenue "
+        "and the coupon cost.",
+    )(fn)
+    fn = click.option(
         "--no-estimate",
         is_flag=True,
         help="Skip the take-up estimate (a quicker preview; a clearance is then "
@@ -258,6 +281,9 @@ def _request(target: str, opts: dict[str, Any], *, contact: bool = False) -> Lis
         estimate="no_estimate" in opts and not opts["no_estimate"],
         horizon_days=opts.get("horizon_days", DEFAULT_HORIZON),
         cutoffs=opts.get("cutoffs", MAX_CUTOFFS),
+        discount=opts.get("discount"),
+        margin=opts.get("margin"),
+        price=opts.get("price"),
     )
 
 

@@ -13,6 +13,7 @@ from reachlist.query import Dialect, Rendered, literal
 from reachlist.query import inline as inline_values
 from reachlist.render import CAUTION, fmt_count
 from reachlist.render.takeup import estimate_lines, few_cutoffs_line, render_holdout_planning
+from reachlist.wording import option
 
 SENSITIVE_WARNING = (
     "Warning: this list uses items of a sensitive category ({items}). Inferring health or "
@@ -214,6 +215,35 @@ def render_response(outcome: ListOutcome, console: Console) -> None:
     )
 
 
+def render_economics(outcome: ListOutcome, console: Console) -> None:
+    """The offer's money: incremental units and revenue, coupon cost, net margin."""
+    x = outcome.economics
+    if x is None:
+        return
+
+    def rng(t: tuple[float, float, float], digits: int = 0) -> str:
+        return f"{t[0]:,.{digits}f} ({t[1]:,.{digits}f} to {t[2]:,.{digits}f})"
+
+    margin = "" if x.margin is None else f", margin {x.margin:.0%}"
+    head = (
+        f"[bold]Offer economics[/] at {x.discount:.0%} off (net price {x.price:,.2f} from "
+        f"{escape(x.price_from)}{margin}; at the expected baseline, the uplift's interval): "
+    )
+    if not x.learnt:
+        head += "no uplift is learnt yet, so the offer is counted as adding no buyers: "
+    console.print(
+        head + f"incremental units {rng(x.incremental_units)}, incremental revenue "
+        f"{rng(x.incremental_revenue)}; coupon cost {rng(x.coupon_cost)}, of which "
+        f"{x.anyway_cost:,.0f} goes to buyers who would have bought at full price anyway"
+        + (
+            f"; net margin {rng(x.net_margin)}."
+            if x.net_margin is not None
+            else f"; pass {option('margin')} PCT for the net margin."
+        ),
+        soft_wrap=False,
+    )
+
+
 def render_takeup(outcome: ListOutcome, console: Console) -> None:
     """Expected buyers of the contacted customers, with the interval and what it rests on;
     then the historical co-purchase rate, labelled as that."""
@@ -251,6 +281,7 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
                 soft_wrap=False,
             )
         render_response(outcome, console)
+        render_economics(outcome, console)
     else:
         why = outcome.estimate_note or "no estimate"
         tail = (
@@ -448,6 +479,7 @@ def outcome_json(outcome: ListOutcome, built: Built | None = None) -> str:
         "holdout": outcome.holdout.height,
         "baseline_buyers": None if outcome.takeup is None else outcome.takeup.as_dict(),
         "uplift": None if outcome.uplift is None else _uplift_json(outcome),
+        "economics": None if outcome.economics is None else outcome.economics.as_dict(),
         "estimate_note": outcome.estimate_note,
         "holdout_power": None if outcome.holdout_plan is None else outcome.holdout_plan.as_dict(),
         "clearance": None if outcome.clearance is None else dataclasses.asdict(outcome.clearance),
