@@ -182,6 +182,11 @@ class _Cutoff:
     at: datetime
     people: pl.DataFrame  # customer_id, breadth, bought, units, decile, g0, g1, ...
     edges: np.ndarray
+    # tables() per group: the estimate asks each cutoff for the same group's tables once per
+    # later cutoff (added value since each backtest), so they are counted once and kept
+    _tables: dict[int, np.ndarray] = dataclasses.field(
+        default_factory=dict, init=False, compare=False, repr=False
+    )
 
     def counts(self) -> tuple[np.ndarray, np.ndarray]:
         k = len(self.edges) + 1
@@ -192,17 +197,19 @@ class _Cutoff:
 
     def tables(self, group: int) -> np.ndarray:
         """One 2x2 per decile: [[members bought, not], [others bought, not]]."""
+        kept = self._tables.get(group)
+        if kept is not None:
+            return kept
         k = len(self.edges) + 1
-        d = self.people["decile"].to_numpy()
+        d = self.people["decile"].to_numpy().astype(np.int64)
         y = self.people["bought"].to_numpy().astype(bool)
         m = self.people[f"g{group}"].to_numpy().astype(bool)
-        cells = [
-            np.bincount(d[m & y], minlength=k),
-            np.bincount(d[m & ~y], minlength=k),
-            np.bincount(d[~m & y], minlength=k),
-            np.bincount(d[~m & ~y], minlength=k),
-        ]
-        return np.stack(cells, axis=1).reshape(k, 2, 2).astype(float)
+        # cell 0: member bought, 1: member not, 2: other bought, 3: other not
+        cell = (~m).astype(np.int64) * 2 + (~y).astype(np.int64)
+        counts = np.bincount(d * 4 + cell, minlength=4 * k).astype(float)
+        out = counts.reshape(k, 2, 2)
+        self._tables[group] = out
+        return out
 
 
 @dataclass(frozen=True)
