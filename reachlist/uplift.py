@@ -130,6 +130,13 @@ def shrink_log_ratio(
     return math.exp(mean), math.exp(mean - z * sd), math.exp(mean + z * sd), kept
 
 
+def _unlearnt(
+    purpose: str, campaigns: tuple[PastCampaign, ...], level: float, why: str
+) -> LearntUplift:
+    """No effect measured: ratio 1 with no interval, and why."""
+    return LearntUplift(purpose, campaigns, None, 1.0, 1.0, 1.0, level, 0.0, why)
+
+
 def learn_uplift(
     wh: Warehouse,
     log: CampaignLog,
@@ -169,16 +176,8 @@ def learn_uplift(
         )
     campaigns = tuple(found)
     if not campaigns:
-        return LearntUplift(
-            purpose,
-            (),
-            None,
-            1.0,
-            1.0,
-            1.0,
-            level,
-            0.0,
-            f"no finished {purpose} campaign with a holdout in the campaign log",
+        return _unlearnt(
+            purpose, (), level, f"no finished {purpose} campaign with a holdout in the campaign log"
         )
     tables = np.array(
         [
@@ -193,17 +192,8 @@ def learn_uplift(
     try:
         measured = mantel_haenszel_risk_ratio(tables)
     except ReachlistError:
-        return LearntUplift(
-            purpose,
-            campaigns,
-            None,
-            1.0,
-            1.0,
-            1.0,
-            level,
-            0.0,
-            f"{len(campaigns)} finished {purpose} campaign(s) without buyers on one side",
-        )
+        why = f"{len(campaigns)} finished {purpose} campaign(s) without buyers on one side"
+        return _unlearnt(purpose, campaigns, level, why)
     ratio, low, high, kept = shrink_log_ratio(math.log(measured.estimate), measured.se_log, level)
     held = sum(c.held for c in campaigns)
     n = len(campaigns)
