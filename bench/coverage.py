@@ -60,7 +60,7 @@ def run_cases(label: str, wh_args: tuple, targets: list[str], cutoffs: tuple[str
     from reachlist.warehouse import Warehouse
 
     combined_in = rules_in = combined_n = rules_n = 0
-    pred = obs = 0.0
+    pred = obs = naive = rules_pred = rules_obs = rules_naive = 0.0
     outside: list[str] = []
     started = time.perf_counter()
     cases = [(t, c) for t in targets for c in cutoffs]
@@ -82,6 +82,7 @@ def run_cases(label: str, wh_args: tuple, targets: list[str], cutoffs: tuple[str
             combined_in += c.covered
             pred += c.predicted
             obs += c.observed
+            naive += c.naive
             if not c.covered:
                 outside.append(
                     f"{target} {cutoff}: {c.predicted:.1f} ({e.low:.1f}-{e.high:.1f}) against "
@@ -90,6 +91,9 @@ def run_cases(label: str, wh_args: tuple, targets: list[str], cutoffs: tuple[str
             for row in bt.rows[:-1]:
                 rules_n += 1
                 rules_in += row.covered
+                rules_pred += row.predicted
+                rules_obs += row.observed
+                rules_naive += row.naive
     took = time.perf_counter() - started
     print(f"{label}: {combined_n} combined lists, {took:.0f} s")
     if combined_n:
@@ -99,6 +103,13 @@ def run_cases(label: str, wh_args: tuple, targets: list[str], cutoffs: tuple[str
             f"({rules_in / max(rules_n, 1):.0%})"
         )
         print(f"  pooled predicted / observed: {pred:,.1f} / {obs:,.0f} = {pred / max(obs, 1):.2f}")
+        print(
+            f"  naive confidence / observed: {naive:,.0f} / {obs:,.0f} = {naive / max(obs, 1):.2f}"
+        )
+        print(
+            f"  single-rule audiences: predicted {rules_pred:,.0f}, naive {rules_naive:,.0f}, "
+            f"observed {rules_obs:,.0f}"
+        )
     for line in outside:
         print(f"  outside: {line}")
 
