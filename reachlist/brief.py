@@ -91,6 +91,23 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
             k: estimate.get(k)
             for k in ("expected", "low", "high", "level", "n_backtests", "horizon_days")
         }
+    response = None
+    uplift = estimate.get("uplift")
+    if (
+        expected is not None
+        and isinstance(expected["expected"], float | int)
+        and isinstance(uplift, dict)
+        and uplift.get("measured_ratio") is not None
+    ):
+        baseline, (low, high) = float(expected["expected"]), uplift["interval"]
+        response = {
+            "ratio": uplift["ratio"],
+            "ratio_interval": [low, high],
+            "response_buyers": baseline * uplift["ratio"],
+            "incremental_buyers": baseline * (uplift["ratio"] - 1),
+            "incremental_interval": [baseline * (low - 1), baseline * (high - 1)],
+            "note": uplift.get("note"),
+        }
     power = None
     listed = treatment + holdout
     if treatment and holdout:
@@ -138,6 +155,7 @@ def brief_data(wh: Warehouse, log: CampaignLog, campaign_id: str) -> dict[str, A
         ],
         "rules": rules,
         "expected_buyers": expected,
+        "with_the_offer": response,  # from the uplift learnt from past campaigns, when any
         "estimate_skipped": estimate.get("skipped"),
         "holdout_power": power,
         "overrides": record.get("overrides"),

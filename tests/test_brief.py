@@ -26,6 +26,11 @@ def run(*args: str):
     return CliRunner().invoke(main, list(args), catch_exceptions=False)
 
 
+def shown_number(x: float) -> str:
+    """How the page writes a count: whole from 10 on, one decimal below."""
+    return f"{x:,.0f}" if abs(x) >= 10 else f"{x:,.1f}"
+
+
 @pytest.fixture(scope="module")
 def built(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, dict]:
     folder = tmp_path_factory.mktemp("brief")
@@ -101,6 +106,11 @@ def test_the_page_in_a_real_browser_shows_the_json_numbers(
         assert field["expected"] == f"{exp['expected']:,.0f}"
         assert field["expected_low"] == f"{exp['low']:,.0f}"
         assert field["expected_high"] == f"{exp['high']:,.0f}"
+        # the sample's campaign history gives an uplift, so the page shows what the offer adds
+        offer = data["with_the_offer"]
+        assert offer is not None
+        assert field["incremental"] == shown_number(offer["incremental_buyers"])
+        assert field["incremental_low"] == shown_number(offer["incremental_interval"][0])
         shown = [
             int(el.text.replace(",", ""))
             for el in driver.find_elements(By.CSS_SELECTOR, "[data-rule-treatment]")

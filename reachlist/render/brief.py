@@ -118,6 +118,17 @@ def brief_html(data: dict[str, Any]) -> str:
         ("Reached by the rules", f'<span data-field="reached">{_n(data["reached"])}</span>'),
         ("Expected buyers (baseline)", expected),
     ]
+    offer = data.get("with_the_offer")
+    if offer is not None:
+        low, high = offer["incremental_interval"]
+        key.append(
+            (
+                "Incremental buyers (the offer's own)",
+                f'<span data-field="incremental">{_n(offer["incremental_buyers"])}</span> '
+                f'(<span data-field="incremental_low">{_n(low)}</span> to '
+                f'<span data-field="incremental_high">{_n(high)}</span>)',
+            )
+        )
     key_html = "".join(f"<div><dt>{e(k)}</dt><dd>{v}</dd></div>" for k, v in key)
     rows = "".join(
         f"<tr><td>{e(s['step'])}</td><td class='n' data-step-removed>"
