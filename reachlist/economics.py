@@ -14,7 +14,8 @@ buyer ``u``, net price ``p``, discount ``d``, margin ``m`` (shares of ``p``) and
 Each is given at the ratio's interval ends (the baseline's own interval is the list's; these
 are at its expected value). Without a learnt uplift ``r`` = 1: the offer only gives the discount
 away, and the screen says so. The price is the net amount per unit of the target's purchase
-lines in the 12 months before the as-of day, unless one is given.
+lines in the year before the end of the mining window (the history the rules read, which ends
+at the last order by default; "today" may lie long after an old history), unless one is given.
 """
 
 from __future__ import annotations

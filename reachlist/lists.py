@@ -387,7 +387,7 @@ def _finish(
         outcome.economics = offer_economics(
             wh,
             plan.target,
-            plan.now,
+            plan.spec.lookback.until,  # the year of history the rules read, not "today"
             discount_pct=req.discount,
             margin_pct=req.margin,
             price=req.price,

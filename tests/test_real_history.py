@@ -103,3 +103,30 @@ def test_rules_toward_every_consequent_stay_bounded_on_dense_real_data(slice_db)
     # at the asked floor (1% of households) the same count is far over the budget
     asked = _pair_counts(baskets, 2)
     assert asked is not None and _nodes_from_pairs(*asked, 2) > EXPLORE_BUDGET
+
+
+def test_the_offer_price_is_the_data_own_net_price(slice_db) -> None:
+    """The economics' price on real data read through a mapping: net amount over units of the
+    purchase lines in the year before the window's end, counted here with polars on the slice."""
+    from datetime import datetime
+
+    from reachlist.economics import item_price
+    from reachlist.targets import Target
+
+    db, mapping, lines = slice_db
+    until = datetime(2018, 1, 1)
+    bought = lines.filter(
+        (pl.col("quantity") > 0)
+        & (pl.col("basket_time") >= datetime(2017, 1, 1))
+        & (pl.col("basket_time") < until)
+    ).unique(["basket_id", "product_id", "quantity", "sales_value"])
+    top = (
+        bought.group_by("product_id")
+        .agg(pl.col("quantity").sum())
+        .sort(["quantity", "product_id"], descending=[True, False])["product_id"][0]
+    )
+    mine = bought.filter(pl.col("product_id") == top)
+    expected = mine["sales_value"].sum() / mine["quantity"].sum()
+    with Warehouse.open(db, mapping, read_only=True) as wh:
+        price, units = item_price(wh, Target("sku", str(top)), until)
+    assert units == mine["quantity"].sum() and price == pytest.approx(expected)

@@ -221,8 +221,13 @@ def render_economics(outcome: ListOutcome, console: Console) -> None:
     if x is None:
         return
 
-    def rng(t: tuple[float, float, float], digits: int = 0) -> str:
-        return f"{t[0]:,.{digits}f} ({t[1]:,.{digits}f} to {t[2]:,.{digits}f})"
+    def num(v: float, money: bool) -> str:
+        digits = 2 if money and abs(v) < 100 else 0
+        text = f"{v:,.{digits}f}"
+        return text[1:] if text.startswith("-") and float(text.replace(",", "")) == 0 else text
+
+    def rng(t: tuple[float, float, float], money: bool = True) -> str:
+        return f"{num(t[0], money)} ({num(t[1], money)} to {num(t[2], money)})"
 
     margin = "" if x.margin is None else f", margin {x.margin:.0%}"
     head = (
@@ -232,9 +237,9 @@ def render_economics(outcome: ListOutcome, console: Console) -> None:
     if not x.learnt:
         head += "no uplift is learnt yet, so the offer is counted as adding no buyers: "
     console.print(
-        head + f"incremental units {rng(x.incremental_units)}, incremental revenue "
+        head + f"incremental units {rng(x.incremental_units, money=False)}, incremental revenue "
         f"{rng(x.incremental_revenue)}; coupon cost {rng(x.coupon_cost)}, of which "
-        f"{x.anyway_cost:,.0f} goes to buyers who would have bought at full price anyway"
+        f"{num(x.anyway_cost, True)} goes to buyers who would have bought at full price anyway"
         + (
             f"; net margin {rng(x.net_margin)}."
             if x.net_margin is not None
