@@ -1,9 +1,10 @@
-"""reachlist on a standalone Spark cluster (``spark://HOST:PORT``), not only in local mode: a master
-and one worker are started on this machine with pyspark's own launcher (``bin/spark-class``), the
-sample is read from Parquet by an executor on that worker, and the rules equal DuckDB's.
+"""reachlist on Spark beyond local mode: a standalone cluster (``spark://HOST:PORT``: a master and
+one worker started on this machine with pyspark's own launcher, ``bin/spark-class``; the sample is
+read from Parquet by an executor on that worker) and a Spark Connect server (``sc://HOST:PORT``:
+started with ``bin/spark-submit``). The rules equal DuckDB's.
 
-The command runs in its own process (a fresh JVM: the local-mode session of test_spark.py may
-still live in this one). The cluster takes about a minute to start and serve one command.
+Each command runs in its own process (a fresh JVM: the local-mode session of test_spark.py may
+still live in this one). Each server takes under a minute to start and serve one command.
 """
 
 from __future__ import annotations
@@ -121,9 +122,7 @@ def cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
                 proc.kill()
 
 
-def test_rules_on_a_standalone_cluster_equal_duckdb(
-    cluster: str, pristine: Path, tmp_path: Path
-) -> None:
+def _rules_equal_duckdb(url: str, pristine: Path, tmp_path: Path) -> None:
     lake = tmp_path / "lake"
     lake.mkdir()
     with duckdb.connect(str(pristine), read_only=True) as con:
@@ -139,7 +138,7 @@ def test_rules_on_a_standalone_cluster_equal_duckdb(
             "rules",
             MAT,
             "-w",
-            cluster,
+            url,
             "-m",
             str(mapping),
             "--json",
@@ -149,12 +148,65 @@ def test_rules_on_a_standalone_cluster_equal_duckdb(
         timeout=600,
     )
     assert ran.returncode == 0, ran.stderr[-2000:]
-    on_cluster = json.loads(ran.stdout)
+    assert "Warning" not in ran.stderr, ran.stderr[-2000:]
+    remote = json.loads(ran.stdout)
     local = json.loads(
         CliRunner().invoke(main, ["rules", MAT, "-w", str(pristine), "--json"]).output
     )
-    assert on_cluster["n_baskets"] == local["n_baskets"]
+    assert remote["n_baskets"] == local["n_baskets"]
     key = ("rule_id", "n_antecedent", "n_both", "significant")
-    assert [tuple(r[k] for k in key) for r in on_cluster["rules"]] == [
+    assert [tuple(r[k] for k in key) for r in remote["rules"]] == [
         tuple(r[k] for k in key) for r in local["rules"]
     ]
+
+
+def test_rules_on_a_standalone_cluster_equal_duckdb(
+    cluster: str, pristine: Path, tmp_path: Path
+) -> None:
+    _rules_equal_duckdb(cluster, pristine, tmp_path)
+
+
+@pytest.fixture(scope="module")
+def connect_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
+    if importlib.util.find_spec("grpc") is None:
+        pytest.skip("Spark Connect needs pyspark's connect extra (pip install -e '.[test]')")
+    import pyspark
+
+    home = Path(pyspark.__file__).parent
+    folder = tmp_path_factory.mktemp("connect")
+    port = _free_port()
+    log = folder / "server.log"
+    env = {**os.environ, "SPARK_HOME": str(home)}
+    with log.open("wb") as out:
+        server = subprocess.Popen(
+            [
+                str(home / "bin" / "spark-submit"),
+                "--class",
+                "org.apache.spark.sql.connect.service.SparkConnectServer",
+                "--master",
+                "local[1]",
+                "--conf",
+                f"spark.connect.grpc.binding.port={port}",
+                "--conf",
+                "spark.ui.enabled=false",
+            ],
+            stdout=out,
+            stderr=subprocess.STDOUT,
+            env=env,
+        )
+    try:
+        if not _wait_for(log, "Spark Connect server started", server):
+            pytest.fail(f"the Spark Connect server did not start: {log.read_text()[-1500:]}")
+        yield f"sc://127.0.0.1:{port}"
+    finally:
+        server.terminate()
+        try:
+            server.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            server.kill()
+
+
+def test_rules_through_spark_connect_equal_duckdb(
+    connect_server: str, pristine: Path, tmp_path: Path
+) -> None:
+    _rules_equal_duckdb(connect_server, pristine, tmp_path)

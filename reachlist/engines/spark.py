@@ -68,6 +68,9 @@ class SparkEngine(Engine):
             master = target.removeprefix("spark://")
             builder = builder.master(master if master.startswith("local") else target)
         for key, value in SESSION_SETTINGS.items():
+            # a Spark Connect server owns its JVM: only the session's SQL settings are ours
+            if target.startswith("sc://") and not key.startswith("spark.sql."):
+                continue
             builder = builder.config(key, value)
         try:
             self.spark = builder.getOrCreate()
