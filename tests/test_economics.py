@@ -97,3 +97,9 @@ def test_a_new_item_needs_a_price(pristine: Path) -> None:
     )
     assert priced.exit_code == 0, priced.output
     assert json.loads(priced.output)["economics"]["price"] == 19.99
+
+
+def test_a_discount_without_the_estimate_says_why_there_are_no_economics(pristine: Path) -> None:
+    args = ["sizes", MAT, "-w", str(pristine), "--discount", "15", "--no-estimate"]
+    text = " ".join(CliRunner().invoke(main, args).output.split())
+    assert "Offer economics: not computed (skipped with --no-estimate)" in text

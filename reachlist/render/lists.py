@@ -219,6 +219,13 @@ def render_economics(outcome: ListOutcome, console: Console) -> None:
     """The offer's money: incremental units and revenue, coupon cost, net margin."""
     x = outcome.economics
     if x is None:
+        if outcome.plan.request.discount is not None:
+            why = outcome.estimate_note or "no baseline estimate"
+            console.print(
+                f"[yellow]Offer economics: not computed[/] ({escape(why)}); they rest on the "
+                f"baseline estimate, so run without {option('estimate=False')}.",
+                soft_wrap=False,
+            )
         return
 
     def num(v: float, money: bool) -> str:
@@ -297,6 +304,7 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
         console.print(
             f"[yellow]Baseline buyers: not estimated[/] ({escape(why)}){tail}.", soft_wrap=False
         )
+        render_economics(outcome, console)
     if outcome.holdout_plan is not None:
         render_holdout_planning(outcome.holdout_plan, console)
     rate = outcome.co_purchase_rate()
