@@ -19,7 +19,7 @@ so a one-item rule is productive iff its lift is > 1.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Any
@@ -41,6 +41,7 @@ from reachlist.measures import (
 __all__ = [
     "ITEMSET_COLUMNS",
     "RULE_COLUMNS",
+    "conditional_rules",
     "frequent_itemsets",
     "rules_from_counts",
     "rules_from_itemsets",
@@ -645,7 +646,8 @@ _EXACT_ITEMS = 3_000
 
 
 def plan_search(
-    baskets: Baskets,
+    n: int,
+    item_counts: np.ndarray,
     y: int,
     cond_counts: np.ndarray,
     others: np.ndarray,
@@ -665,8 +667,7 @@ def plan_search(
     fewer than tau * n / (1 - P(y)) co-purchases can be among the best ``keep_top``, and the search
     skips them. If that is not enough (or another measure ranks), it narrows heuristically: a
     shallower antecedent, then a higher floor, and says so."""
-    n = baskets.n_baskets
-    n_y = int(baskets.item_counts[y])
+    n_y = int(item_counts[y])
     p_y = n_y / max(n, 1)
 
     def over(floor: int, depth: int) -> bool:
@@ -687,7 +688,7 @@ def plan_search(
     if rank_by == "leverage" and p_y < 1:
         eligible = cond_counts >= min_count
         n_xy = cond_counts[eligible].astype(np.float64)
-        n_x = baskets.item_counts[others[eligible]].astype(np.float64)
+        n_x = item_counts[others[eligible]].astype(np.float64)
         lev = n_xy / n - (n_x / n) * p_y
         if lev.size >= keep_top:
             tau = float(np.partition(lev, lev.size - keep_top)[lev.size - keep_top])
@@ -748,23 +749,152 @@ def target_rules(
     narrowed (:func:`plan_search`) and one line saying how is appended to ``notes``.
     ``budget=None`` searches everything (tests comparing with exhaustive references).
     """
-    _check_common(min_confidence, min_lift, alpha, correction)
     n = baskets.n_baskets
+    y = baskets.item_index(target)
+    n_y = int(baskets.item_counts[y])
+    holding = baskets.baskets_holding(y)
+
+    def count_x(found: _Found, n_xy: np.ndarray) -> np.ndarray:
+        # on all baskets, or as n(X+y) + n(X without y) when fewer baskets lack y than hold it
+        if 2 * n_y <= n:
+            return _count_groups(baskets, found, None)
+        lacking_mask = np.ones(n, dtype=bool)
+        lacking_mask[holding] = False
+        return np.asarray(n_xy + _count_groups(baskets, found, np.flatnonzero(lacking_mask)))
+
+    return _rules_toward(
+        baskets,
+        holding,
+        y,
+        n,
+        baskets.item_counts,
+        count_x,
+        min_count=min_count,
+        min_support=min_support,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        max_antecedent=max_antecedent,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        rank_by=rank_by,
+        budget=budget,
+        keep_top=keep_top,
+        rule_budget=rule_budget,
+        notes=notes,
+    )
+
+
+ItemsetCounter = Callable[[list[list[str]]], Any]
+"""n(X) over all baskets for each itemset X (a list of item labels), in the order given."""
+
+
+def conditional_rules(
+    held: Baskets,
+    target: str,
+    n_baskets: int,
+    item_counts: np.ndarray,
+    count_itemsets: ItemsetCounter,
+    *,
+    min_count: int | None = None,
+    min_support: float | None = None,
+    min_confidence: float = 0.0,
+    min_lift: float = 0.0,
+    max_antecedent: int = 3,
+    keep_unproductive: bool = False,
+    correction: str = "holm",
+    alpha: float = 0.05,
+    rank_by: str = "lift",
+    budget: int | None = SEARCH_BUDGET,
+    keep_top: int = KEEP_TOP,
+    rule_budget: int = RULE_BUDGET,
+    notes: list[str] | None = None,
+) -> pl.DataFrame:
+    """The rules of :func:`target_rules` from only the baskets that hold the target.
+
+    ``held`` holds those baskets (every count found in them is n(X+target)); ``n_baskets`` and
+    ``item_counts`` (n(i) by ``held``'s item index) describe all baskets (they steer the search
+    and its budget), and ``count_itemsets`` counts n(X) over all baskets for every antecedent the
+    search finds, for example in the warehouse engine where the order lines are. Same rules,
+    same order."""
+    y = held.item_index(target)
+    counts = np.asarray(item_counts, dtype=np.int64)
+    if counts.shape != (held.n_items,) or int(counts[y]) != held.n_baskets:
+        raise InputError(
+            f"Expected one count per item with the target's equal to the {held.n_baskets:,} "
+            f"baskets given, found {counts.size:,} counts and {int(counts[y]):,} for the target.",
+            hint="pass n(i) over all baskets for every item label of the held baskets",
+        )
+
+    def count_x(found: _Found, n_xy: np.ndarray) -> np.ndarray:
+        ante, size, _ = found.matrix(held.n_items)
+        labels = held.labels
+        sets = [[str(labels[i]) for i in ante[r, : size[r]]] for r in range(size.size)]
+        return np.asarray(count_itemsets(sets), dtype=np.int64).reshape(size.size)
+
+    return _rules_toward(
+        held,
+        None,
+        y,
+        int(n_baskets),
+        counts,
+        count_x,
+        min_count=min_count,
+        min_support=min_support,
+        min_confidence=min_confidence,
+        min_lift=min_lift,
+        max_antecedent=max_antecedent,
+        keep_unproductive=keep_unproductive,
+        correction=correction,
+        alpha=alpha,
+        rank_by=rank_by,
+        budget=budget,
+        keep_top=keep_top,
+        rule_budget=rule_budget,
+        notes=notes,
+    )
+
+
+def _rules_toward(
+    baskets: Baskets,
+    holding: np.ndarray | None,
+    y: int,
+    n: int,
+    item_counts: np.ndarray,
+    count_x: Callable[[_Found, np.ndarray], np.ndarray],
+    *,
+    min_count: int | None,
+    min_support: float | None,
+    min_confidence: float,
+    min_lift: float,
+    max_antecedent: int,
+    keep_unproductive: bool,
+    correction: str,
+    alpha: float,
+    rank_by: str,
+    budget: int | None,
+    keep_top: int,
+    rule_budget: int,
+    notes: list[str] | None,
+) -> pl.DataFrame:
+    """The search below y inside ``baskets`` (``holding``: the rows that hold y; None: all of
+    them do); ``n`` and ``item_counts`` describe all baskets, ``count_x`` counts n(X)."""
+    _check_common(min_confidence, min_lift, alpha, correction)
     min_count = _resolve_min_count(n, min_count, min_support)
     if int(max_antecedent) < 1:
         raise InputError(f"max_antecedent must be at least 1, got {max_antecedent}.")
-    y = baskets.item_index(target)
-    n_y = int(baskets.item_counts[y])
+    n_y = int(item_counts[y])
     if n_y < min_count:
         return _empty_rules()
     others = np.flatnonzero(np.arange(baskets.n_items) != y)
-    others = others[baskets.item_counts[others] >= min_count]
-    holding = baskets.baskets_holding(y)
-    cond_bits, cond_counts = project(baskets, holding, others)
+    others = others[item_counts[others] >= min_count]
+    rows = np.arange(baskets.n_baskets, dtype=np.int64) if holding is None else holding
+    cond_bits, cond_counts = project(baskets, rows, others)
     depth = int(max_antecedent)
     if budget is not None:
         plan = plan_search(
-            baskets,
+            n,
+            item_counts,
             y,
             cond_counts,
             others,
@@ -813,14 +943,7 @@ def target_rules(
             else:
                 notes.append(f"narrowed: {line}; the correction counts the rules examined")
     ante, size, n_xy = found.matrix(baskets.n_items)
-    # n(X): on all baskets, or as n(X+y) + n(X without y) when fewer baskets lack y than hold it
-    if 2 * n_y <= n:
-        n_x = _count_groups(baskets, found, None)
-    else:
-        lacking_mask = np.ones(n, dtype=bool)
-        lacking_mask[holding] = False
-        lacking = np.flatnonzero(lacking_mask)
-        n_x = n_xy + _count_groups(baskets, found, lacking)
+    n_x = count_x(found, n_xy)
     m = ante.shape[0]
     return _assemble(
         ante,

@@ -112,6 +112,11 @@ def template_parts(name: str) -> dict[str, str]:
     return {k: "\n".join(v).rstrip("\n") for k, v in parts.items()}
 
 
+def with_parts(ctes: Sequence[str], final: str) -> str:
+    """One statement from common table expressions (``name AS (...)`` each) and a final one."""
+    return ("WITH " + ",\n".join(ctes) + "\n" if ctes else "") + final
+
+
 def _expand_lists(sql: str, params: dict[str, Any]) -> tuple[str, dict[str, Any]]:
     out: dict[str, Any] = {}
     for key, value in params.items():

@@ -12,6 +12,7 @@ in SQL (see the README's benchmark section).
 
 from __future__ import annotations
 
+import contextlib
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -22,10 +23,15 @@ import polars as pl
 
 from reachlist import mining
 from reachlist.baskets import Baskets
+from reachlist.engine_mining import EngineCounts
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.measures import MEASURES
 from reachlist.query import Query
-from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
+from reachlist.stats import (
+    assign_decile,
+    breadth_deciles,
+    mantel_haenszel_risk_ratio,
+)
 from reachlist.targets import (
     BasketKind,
     Level,
@@ -126,8 +132,12 @@ def mine_rules(
     correction: str = "holm",
     rank_by: str = "leverage",
     progress: Progress | None = None,
+    counting: str | None = None,
 ) -> RuleSet:
     """Every rule X -> target (1..max_antecedent items at ``level``) meeting the thresholds.
+
+    ``counting`` says where itemsets are counted (``COUNTING``; None: in the engine on Spark,
+    in memory elsewhere); both give the same rules.
 
     Raises ``InputError`` for an unknown target (with the closest names) and
     ``EmptyResultError`` naming the threshold to relax when no rule is found.
@@ -136,67 +146,134 @@ def mine_rules(
     tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
     lvl, kind = check_level(level), check_basket(basket)
     window = mining_window(wh, since, until)
-    say(f"Reading {kind} baskets for {window}")
-    baskets = load_baskets(wh, tgt, lvl, kind, window)
     label = target_label(tgt, lvl)
-    if baskets.n_baskets == 0 or label not in set(baskets.labels.tolist()):
-        raise EmptyResultError(
-            f"No {kind} basket in {window} holds the target {str(tgt)!r}, so no rule can point "
-            "to it.",
-            hint=f"widen the window with {option('since')}, or target a new item through {option('stand_in')}",
-        )
-    say(f"Counting itemsets in {baskets.n_baskets:,} baskets")
     if rank_by == BREADTH_LIFT and kind != "customer":
         raise InputError(
             f"Expected {option('basket')} customer to rank by {BREADTH_LIFT}, found {option('basket')} {kind}: "
             "shopping breadth is a property of a customer, not of one order.",
             hint=f"pass {option('basket')} customer, or rank by lift",
         )
+    in_engine = _counts_in_engine(wh, counting, kind)
+    stack = contextlib.ExitStack()  # what the engine keeps while counting, dropped at the end
     options = dict(
         min_support=min_support,
         max_antecedent=max_antecedent,
         correction=correction,
         rank_by="lift" if rank_by == BREADTH_LIFT else rank_by,
     )
-    notes: list[str] = []
-    frame = mining.target_rules(
-        baskets,
-        label,
-        min_confidence=min_confidence,
-        min_lift=min_lift,
-        keep_unproductive=keep_unproductive,
-        notes=notes,
-        **options,  # type: ignore[arg-type]
-    )
-    note = "The search " + notes[0] + "." if notes else ""
-    if frame.height == 0:
-        raise EmptyResultError(
-            _why_empty(
-                baskets, label, min_support, min_confidence, min_lift, keep_unproductive, options
-            ),
-            hint="relax the threshold named, or widen the window",
+    with stack:
+        rules_with: Callable[..., pl.DataFrame]
+        tables_for: Callable[[list[list[str]]], list[np.ndarray]]
+        if in_engine:
+            say(f"Counting {kind} baskets for {window} in the engine ({wh.display_name})")
+            counts = stack.enter_context(
+                EngineCounts(wh, tgt, lvl, window, label, sorted(_related_items(wh, tgt, lvl)))
+            )
+            held = counts.held_by_target()
+            n, n_y = held.n_baskets, held.held.n_baskets
+
+            def rules_with(**kw: object) -> pl.DataFrame:
+                return mining.conditional_rules(
+                    held.held,
+                    label,
+                    n,
+                    held.item_counts,
+                    counts.itemset_counts,
+                    **kw,  # type: ignore[arg-type]
+                )
+
+            def tables_for(antecedents: list[list[str]]) -> list[np.ndarray]:
+                return counts.breadth_tables(antecedents)
+
+        else:
+            say(f"Reading {kind} baskets for {window}")
+            baskets = load_baskets(wh, tgt, lvl, kind, window)
+            n = baskets.n_baskets
+            n_y = (
+                int(baskets.item_counts[baskets.item_index(label)])
+                if label in set(baskets.labels.tolist())
+                else 0
+            )
+
+            def rules_with(**kw: object) -> pl.DataFrame:
+                return mining.target_rules(baskets, label, **kw)  # type: ignore[arg-type]
+
+            def tables_for(antecedents: list[list[str]]) -> list[np.ndarray]:
+                breadth = basket_breadth(wh, baskets, tgt, lvl, window)
+                return breadth_tables(baskets, breadth, label, antecedents)
+
+        if n == 0 or n_y == 0:
+            raise EmptyResultError(
+                f"No {kind} basket in {window} holds the target {str(tgt)!r}, so no rule can point "
+                "to it.",
+                hint=f"widen the window with {option('since')}, or target a new item through {option('stand_in')}",
+            )
+        say(f"Counting itemsets toward the target in {n_y:,} of {n:,} baskets")
+        notes: list[str] = []
+        frame = rules_with(
+            min_confidence=min_confidence,
+            min_lift=min_lift,
+            keep_unproductive=keep_unproductive,
+            notes=notes,
+            **options,
         )
-    values: list[float | None] = [None] * frame.height
-    highs: list[float | None] = [None] * frame.height
-    if kind == "customer":
-        # breadth-matched lift for the rules that can be shown or used: the best BREADTH_ROWS
-        # by the ranking measure and the significant ones among the next (others stay empty)
-        shown = np.arange(frame.height) < BREADTH_ROWS
-        used = frame["significant"].to_numpy() & (np.arange(frame.height) < 4 * BREADTH_ROWS)
-        rows = np.flatnonzero(shown | used)
-        say(f"Matching {rows.size:,} rules on shopping breadth")
-        breadth = basket_breadth(wh, baskets, tgt, lvl, window)
-        antecedents = frame["antecedent"].to_list()
-        lifts = breadth_lift_intervals(baskets, breadth, label, [antecedents[i] for i in rows])
-        for i, (v, high) in zip(rows.tolist(), lifts, strict=True):
-            values[i], highs[i] = v, high
-    frame = frame.with_columns(
-        pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
-        pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
-    )
+        note = "The search " + notes[0] + "." if notes else ""
+        if frame.height == 0:
+            raise EmptyResultError(
+                _why_empty(
+                    n,
+                    n_y,
+                    label,
+                    min_support,
+                    min_confidence,
+                    min_lift,
+                    keep_unproductive,
+                    rules_with,
+                    options,
+                ),
+                hint="relax the threshold named, or widen the window",
+            )
+        values: list[float | None] = [None] * frame.height
+        highs: list[float | None] = [None] * frame.height
+        if kind == "customer":
+            # breadth-matched lift for the rules that can be shown or used: the best BREADTH_ROWS
+            # by the ranking measure and the significant ones among the next (others stay empty)
+            shown = np.arange(frame.height) < BREADTH_ROWS
+            used = frame["significant"].to_numpy() & (np.arange(frame.height) < 4 * BREADTH_ROWS)
+            rows = np.flatnonzero(shown | used)
+            say(f"Matching {rows.size:,} rules on shopping breadth")
+            antecedents = frame["antecedent"].to_list()
+            lifts = lift_intervals(tables_for([antecedents[i] for i in rows]))
+            for i, (v, high) in zip(rows.tolist(), lifts, strict=True):
+                values[i], highs[i] = v, high
+        frame = frame.with_columns(
+            pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
+            pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
+        )
     if rank_by == BREADTH_LIFT:
         frame = sort_by_breadth_lift(frame)
-    return RuleSet(tgt, lvl, kind, window, baskets.n_baskets, correction, frame, note)
+    return RuleSet(tgt, lvl, kind, window, n, correction, frame, note)
+
+
+COUNTING = ("memory", "engine")
+"""Where mining counts: ``memory`` (the pairs come to reachlist; the default off Spark) or
+``engine`` (only counts come back; the default on Spark)."""
+
+
+def _counts_in_engine(wh: Warehouse, counting: str | None, kind: BasketKind) -> bool:
+    if counting is None:
+        return wh.counts_in_engine and kind == "customer"
+    if counting not in COUNTING:
+        raise InputError(
+            f"Expected counting to be one of {', '.join(COUNTING)}, found {counting!r}.",
+            hint="pass counting='memory' or counting='engine', or leave it out",
+        )
+    if counting == "engine" and kind != "customer":
+        raise InputError(
+            f"Expected customer baskets to count in the engine, found {option('basket')} {kind}.",
+            hint="count order baskets in memory (counting='memory')",
+        )
+    return counting == "engine"
 
 
 def sort_by_breadth_lift(frame: pl.DataFrame) -> pl.DataFrame:
@@ -315,10 +392,16 @@ def breadth_lift_intervals(
     """Each rule's breadth-matched lift and the upper end of its 95% interval (NaN where it
     cannot be measured): a rule whose interval lies below 1 is one whose holders buy the target
     less often than customers who shop as broadly."""
+    return lift_intervals(breadth_tables(baskets, breadth, target, antecedents))
+
+
+def lift_intervals(tables: list[np.ndarray]) -> list[tuple[float, float]]:
+    """Breadth-matched lift and the upper end of its 95% interval from each rule's
+    per-decile tables (NaN where it cannot be measured)."""
     out = []
-    for tables in breadth_tables(baskets, breadth, target, antecedents):
+    for table in tables:
         try:
-            r = mantel_haenszel_risk_ratio(tables)
+            r = mantel_haenszel_risk_ratio(table)
             out.append((r.estimate, r.high))
         except ReachlistError:
             out.append((math.nan, math.nan))
@@ -346,29 +429,27 @@ def breadth_lifts(
 
 
 def _why_empty(
-    baskets: Baskets,
+    n: int,
+    n_y: int,
     label: str,
     min_support: float,
     min_confidence: float,
     min_lift: float,
     keep_unproductive: bool,
+    rules_with: Callable[..., pl.DataFrame],
     options: dict[str, object],
 ) -> str:
-    n = baskets.n_baskets
-    n_y = int(baskets.item_counts[baskets.item_index(label)])
     if n_y / n < min_support:
         return (
             f"No rule toward {label!r}: the target is held by {n_y:,} of {n:,} baskets "
             f"({n_y / n:.3%}), below {option('min_support')} {min_support:.3%}; lower {option('min_support')} below "
             f"{n_y / n:.3%}"
         )
-    every = mining.target_rules(
-        baskets,
-        label,
+    every = rules_with(
         min_confidence=0.0,
         min_lift=0.0,
         keep_unproductive=True,
-        **options,  # type: ignore[arg-type]
+        **options,
     )
     if every.height == 0:
         return (

@@ -192,6 +192,15 @@ def create_as(table: str, select_sql: str) -> str:
     return f"CREATE TABLE {quote_ident(table)} AS {select_sql}"
 
 
+def create_temp_as(table: str, select_sql: str) -> str:
+    """A connection's own table holding a query's rows (gone when the connection closes)."""
+    return f"CREATE OR REPLACE TEMP TABLE {quote_ident(table)} AS {select_sql}"
+
+
+def drop_temp(table: str) -> str:
+    return f"DROP TABLE IF EXISTS {quote_ident(table)}"
+
+
 # -- DuckDB session and attached files -------------------------------------------------------
 def set_option(name: str, value: str) -> str:
     """SET one of reachlist's DuckDB settings (``name`` is reachlist's own, never user text)."""

@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Any
 import polars as pl
 
 from reachlist import statements
-from reachlist.errors import ContractError, InputError, WarehouseError
+from reachlist.errors import ContractError, InputError, ReachlistError, WarehouseError
 from reachlist.query import DUCKDB, Dialect, Query, Rendered, raw_sql, render
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
 
@@ -196,6 +196,45 @@ class Warehouse:
             self.engine.executemany(r.sql, rows)
         except Exception as exc:
             raise self._translate(exc, Query(sql)) from None
+
+    @property
+    def counts_in_engine(self) -> bool:
+        """Whether mining counts in the engine (a cluster) rather than in reachlist's memory."""
+        return self.engine.counts_in_engine
+
+    @contextlib.contextmanager
+    def temporary_table(self, name: str, frame: pl.DataFrame) -> Iterator[None]:
+        """``frame`` readable as the table ``name`` by the queries run inside the block."""
+        try:
+            self.engine.register_frame(name, frame)
+        except Exception as exc:
+            if isinstance(exc, ReachlistError):
+                raise
+            raise WarehouseError(
+                f"Could not hand {frame.height:,} rows to {self.display_name} as {name}: "
+                f"{_first_line(exc)}.",
+                hint="count in reachlist's memory instead (the default off Spark)",
+            ) from None
+        try:
+            yield
+        finally:
+            self.engine.unregister_frame(name)
+
+    @contextlib.contextmanager
+    def kept(self, name: str, query: Query) -> Iterator[None]:
+        """The rows of ``query`` computed once and readable as the table ``name`` inside the
+        block (engines that can keep them: DuckDB, Spark)."""
+        r = self.render(query)
+        try:
+            self.engine.keep_rows(name, r.sql, r.params)
+        except Exception as exc:
+            if isinstance(exc, ReachlistError):
+                raise
+            raise self._translate(exc, query) from None
+        try:
+            yield
+        finally:
+            self.engine.forget_rows(name)
 
     @contextlib.contextmanager
     def transaction(self) -> Iterator[Warehouse]:

@@ -111,7 +111,8 @@ def test_a_catalogue_of_90k_items_counts_only_what_can_pass() -> None:
         baskets, "TARGET", min_count=5, max_antecedent=3, rank_by="leverage", notes=notes
     )
     plan = plan_search(
-        baskets,
+        baskets.n_baskets,
+        baskets.item_counts,
         baskets.item_index("TARGET"),
         _cond_counts(baskets),
         _others(baskets),

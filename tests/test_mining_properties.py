@@ -116,6 +116,31 @@ def test_target_rules_counts_and_bounds(
 
 
 @SETTINGS
+@given(baskets_st, st.integers(1, 4), st.integers(1, 3), st.sampled_from([0, 50]), st.data())
+def test_conditional_rules_equal_target_rules(transactions, min_count, max_ante, empty, data):
+    # only the target's baskets in memory, n(i) and n(X) counted elsewhere (here by brute
+    # force): the same rule table, row for row
+    b = Baskets.from_transactions(transactions, n_baskets=len(transactions) + empty)
+    if b.n_items == 0:
+        return
+    target = data.draw(st.sampled_from(list(b.labels)))
+    held_lists = [t for t in transactions if target in t]
+    held = Baskets.from_transactions(held_lists)
+    counts = [n_holding(transactions, [x]) for x in held.labels]
+    asked: list[list[str]] = []
+
+    def count_itemsets(sets: list[list[str]]) -> list[int]:
+        asked.extend(sets)
+        return [n_holding(transactions, x) for x in sets]
+
+    options = dict(min_count=min_count, max_antecedent=max_ante, keep_unproductive=True)
+    want = target_rules(b, target, **options)
+    got = mining.conditional_rules(held, target, b.n_baskets, counts, count_itemsets, **options)
+    assert got.equals(want)
+    assert all(target not in x for x in asked)
+
+
+@SETTINGS
 @given(baskets_st, st.integers(1, 4), knobs_st)
 def test_lift_is_symmetric_for_single_items(transactions, min_count, knobs) -> None:
     with engine(knobs):

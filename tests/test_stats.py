@@ -25,6 +25,7 @@ def test_public_api_is_pinned() -> None:
         "TakeUpEstimate",
         "assign_decile",
         "breadth_deciles",
+        "breadth_deciles_counted",
         "breadth_matched_expectation",
         "calibrate",
         "cohens_h",

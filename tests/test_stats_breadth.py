@@ -13,6 +13,7 @@ from reachlist.errors import InputError
 from reachlist.stats import (
     assign_decile,
     breadth_deciles,
+    breadth_deciles_counted,
     breadth_matched_expectation,
     decile_rates,
 )
@@ -123,3 +124,24 @@ def test_bad_edges_and_breadth() -> None:
         breadth_deciles([])
     with pytest.raises(InputError, match="finite"):
         breadth_deciles([1.0, float("nan")])
+
+
+@given(
+    st.lists(st.tuples(st.integers(0, 60), st.integers(0, 4000)), min_size=1, max_size=15),
+    st.integers(1, 12),
+)
+def test_deciles_from_a_histogram_equal_numpy_on_the_expanded_data(pairs, groups) -> None:
+    # reference: numpy's inverted-CDF quantile on the data the histogram stands for (what an
+    # engine returns instead of one breadth per customer)
+    values = np.array([v for v, _ in pairs])
+    counts = np.array([c for _, c in pairs])
+    if counts.sum() == 0:
+        with pytest.raises(InputError, match="counts"):
+            breadth_deciles_counted(values, counts, groups)
+        return
+    expanded = np.repeat(values, counts)
+    want = np.unique(np.quantile(expanded, np.arange(1, groups) / groups, method="inverted_cdf"))
+    want = want[want < expanded.max()]
+    got = breadth_deciles_counted(values, counts, groups)
+    assert got.tolist() == want.astype(float).tolist()
+    assert got.tolist() == breadth_deciles(expanded, groups).tolist()

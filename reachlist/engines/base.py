@@ -57,6 +57,23 @@ class Engine:
         """(name, type) of each column of a physical table, or None when it is missing."""
         raise NotImplementedError
 
+    # -- small driver-side tables a query joins (mining's itemsets to count) -------------------
+    counts_in_engine = False  # whether mining should count where the data is (a cluster)
+
+    def register_frame(self, name: str, frame: pl.DataFrame) -> None:
+        """Make ``frame`` readable as the table ``name`` for this connection's queries."""
+        self.unsupported("temporary tables from reachlist's own data")
+
+    def unregister_frame(self, name: str) -> None:
+        """Forget a frame registered under ``name``; never raises."""
+
+    def keep_rows(self, name: str, sql: str, params: dict[str, Any]) -> None:
+        """Compute a query once and keep its rows in the engine as the table ``name``."""
+        self.unsupported("keeping a query's rows for the next queries")
+
+    def forget_rows(self, name: str) -> None:
+        """Drop what ``keep_rows`` kept under ``name``; never raises."""
+
     # -- DuckDB-only capabilities (the holdings file, the sample) -------------------------------
     def from_arrow(self, statement: str, data: Any) -> None:
         self.unsupported("writing Arrow data")

@@ -83,6 +83,20 @@ class EmbeddedEngine(Engine):
         finally:
             self.conn.unregister("_reachlist_frame")
 
+    def register_frame(self, name: str, frame: pl.DataFrame) -> None:
+        self.conn.register(name, frame.to_arrow())
+
+    def unregister_frame(self, name: str) -> None:
+        with contextlib.suppress(Exception):
+            self.conn.unregister(name)
+
+    def keep_rows(self, name: str, sql: str, params: dict[str, Any]) -> None:
+        self.conn.execute(statements.create_temp_as(name, sql), params)
+
+    def forget_rows(self, name: str) -> None:
+        with contextlib.suppress(Exception):
+            self.conn.execute(statements.drop_temp(name))
+
     def begin(self) -> None:
         self.conn.execute("BEGIN TRANSACTION")
 

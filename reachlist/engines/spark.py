@@ -49,6 +49,7 @@ REACHLIST_SPARK_PARTITIONS and REACHLIST_SPARK_MEMORY)."""
 class SparkEngine(Engine):
     dialect = SPARK
     transactional = False
+    counts_in_engine = True  # the pairs stay in the cluster; mining's counts come back
 
     def __init__(self, target: str, mapping: Mapping) -> None:
         self.display_name = target
@@ -124,6 +125,24 @@ class SparkEngine(Engine):
 
     def run(self, statement: str) -> None:
         self.spark.sql(statement).collect()
+
+    def register_frame(self, name: str, frame: pl.DataFrame) -> None:
+        self.spark.createDataFrame(frame.to_arrow()).createOrReplaceTempView(name)
+
+    def unregister_frame(self, name: str) -> None:
+        with contextlib.suppress(Exception):
+            self.spark.catalog.dropTempView(name)
+
+    def keep_rows(self, name: str, sql: str, params: dict[str, Any]) -> None:
+        frame = self.spark.sql(sql, args=params or None).cache()
+        frame.count()  # computed once now, read from the cluster's memory afterwards
+        frame.createOrReplaceTempView(name)
+
+    def forget_rows(self, name: str) -> None:
+        with contextlib.suppress(Exception):
+            self.spark.table(name).unpersist()
+        with contextlib.suppress(Exception):
+            self.spark.catalog.dropTempView(name)
 
     def append_frame(
         self, physical: tuple[str, ...], columns: list[str], frame: pl.DataFrame

@@ -20,6 +20,7 @@ from reachlist.stats.breadth import (
     BreadthExpectation,
     assign_decile,
     breadth_deciles,
+    breadth_deciles_counted,
     breadth_matched_expectation,
     decile_rates,
 )
@@ -64,6 +65,7 @@ __all__ = [
     "TakeUpEstimate",
     "assign_decile",
     "breadth_deciles",
+    "breadth_deciles_counted",
     "breadth_matched_expectation",
     "calibrate",
     "cohens_h",

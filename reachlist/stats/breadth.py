@@ -35,6 +35,7 @@ __all__ = [
     "BreadthExpectation",
     "assign_decile",
     "breadth_deciles",
+    "breadth_deciles_counted",
     "breadth_matched_expectation",
     "decile_rates",
 ]
@@ -58,6 +59,40 @@ def breadth_deciles(breadth: npt.ArrayLike, n_groups: int = 10) -> npt.NDArray[n
     probs = np.arange(1, n_groups) / n_groups
     cuts = np.unique(np.quantile(b, probs, method="inverted_cdf"))
     edges: npt.NDArray[np.float64] = cuts[cuts < b.max()].astype(np.float64)
+    return edges
+
+
+def breadth_deciles_counted(
+    values: npt.ArrayLike, counts: npt.ArrayLike, n_groups: int = 10
+) -> npt.NDArray[np.float64]:
+    """:func:`breadth_deciles` of the data holding ``counts[k]`` times ``values[k]`` (a
+    histogram, as an engine returns it), without expanding it: the same cut points.
+
+    >>> breadth_deciles_counted([1, 2, 3, 4, 5, 8, 13], [3, 2, 1, 1, 1, 1, 1]).tolist()
+    [1.0, 2.0, 3.0, 4.0, 5.0, 8.0]
+    """
+    v = _check.values("values", values)
+    c = np.asarray(counts, dtype=np.int64)
+    if c.shape != v.shape or np.any(c < 0) or int(c.sum()) == 0:
+        raise InputError(
+            f"counts: expected one positive count per value, got {c.size} counts for "
+            f"{v.size} values.",
+            hint="pass the histogram an engine returned (value, count) unchanged",
+        )
+    if n_groups < 1:
+        raise InputError(f"n_groups: expected 1 or more, got {n_groups}.")
+    order = np.argsort(v, kind="stable")
+    v, c = v[order], c[order]
+    n = int(c.sum())
+    probs = np.arange(1, n_groups) / n_groups
+    # numpy's inverted-CDF position, in the same floating-point steps: n * p - 1 rounded up
+    virtual = n * probs - 1
+    below = np.floor(virtual)
+    pos = np.where(virtual - below > 0, below + 1, below).astype(np.int64)
+    pos = np.clip(pos, 0, n - 1)
+    at = np.searchsorted(np.cumsum(c), pos, side="right")
+    cuts = np.unique(v[at])
+    edges: npt.NDArray[np.float64] = cuts[cuts < v[c > 0].max()].astype(np.float64)
     return edges
 
 
