@@ -77,9 +77,10 @@ class EngineCounts:
         self._stack.enter_context(
             self.wh.kept(PAIRS, self._query(pairs, "same_level" if same else "other_level"))
         )
-        groups = ["held_skus"] if self.level == "department" else []
-        groups.append(f"groups_{self.level}")
-        self._stack.enter_context(self.wh.kept(BREADTH, self._query(groups, "breadth")))
+        groups = ["held_skus", "groups_department"] if self.level == "department" else []
+        self._stack.enter_context(
+            self.wh.kept(BREADTH, self._query(groups, f"breadth_{self.level}"))
+        )
         return self
 
     def __exit__(

@@ -33,26 +33,28 @@ SELECT basket, item FROM level_pairs
 SELECT basket, item FROM level_pairs{without_related}
 UNION ALL
 SELECT basket, item FROM target_pairs
--- part: groups_sku
-breadth_groups AS (
-    SELECT h.basket, p.category AS grp
-    FROM reachlist_pairs AS h
-    JOIN (SELECT DISTINCT sku, category FROM products) AS p ON p.sku = h.item
-    WHERE h.item <> :target_label
-)
--- part: groups_category
-breadth_groups AS (
-    SELECT basket, item AS grp
-    FROM reachlist_pairs
-    WHERE item <> :target_label
-)
+-- part: breadth_sku
+-- breadth: distinct categories held, the target's own item left out; has_y: holds the target
+SELECT h.basket,
+       count(DISTINCT CASE WHEN h.item <> :target_label THEN p.category END) AS breadth,
+       max(CASE WHEN h.item = :target_label THEN 1 ELSE 0 END) AS has_y
+FROM reachlist_pairs AS h
+LEFT JOIN (SELECT DISTINCT sku, category FROM products) AS p ON p.sku = h.item
+GROUP BY h.basket
+-- part: breadth_category
+SELECT basket,
+       count(DISTINCT CASE WHEN item <> :target_label THEN item END) AS breadth,
+       max(CASE WHEN item = :target_label THEN 1 ELSE 0 END) AS has_y
+FROM reachlist_pairs
+GROUP BY basket
 -- part: groups_department
 breadth_groups AS (
     SELECT DISTINCT h.basket, p.category AS grp
     FROM held_skus AS h
     JOIN products AS p ON p.sku = h.sku{without_target_category}
 )
--- part: breadth
+-- part: breadth_department
+-- at department level breadth still counts categories (of every SKU held)
 SELECT b.basket, coalesce(g.breadth, 0) AS breadth, b.has_y
 FROM (
     SELECT basket, max(CASE WHEN item = :target_label THEN 1 ELSE 0 END) AS has_y

@@ -71,13 +71,14 @@ def test_the_lake_passes_the_contract_check(spark: Warehouse, lake: Path) -> Non
 
 
 def test_rules_equal_duckdb(spark: Warehouse, duck: Warehouse) -> None:
-    # on Spark the itemsets are counted in the engine by default (only counts come back); on
-    # DuckDB in memory: two different paths, one answer
-    assert spark.counts_in_engine and not duck.counts_in_engine
-    on_spark = mine_rules(spark, MAT).frame.sort("rule_id")
     on_duck = mine_rules(duck, MAT).frame.sort("rule_id")
-    assert on_spark.height > 0
-    assert_frame_equal(on_spark, on_duck, check_exact=False, rel_tol=1e-9)
+    # local mode counts the pairs in the driver's memory by default; a cluster counts in the
+    # engine (only counts come back): both paths, one answer
+    assert not spark.counts_in_engine
+    for counting in ("memory", "engine"):
+        on_spark = mine_rules(spark, MAT, counting=counting).frame.sort("rule_id")
+        assert on_spark.height > 0
+        assert_frame_equal(on_spark, on_duck, check_exact=False, rel_tol=1e-9)
 
 
 def test_list_waterfall_and_estimate_equal_duckdb(spark: Warehouse, duck: Warehouse) -> None:

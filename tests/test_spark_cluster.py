@@ -123,6 +123,8 @@ def cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
 
 
 def _rules_equal_duckdb(url: str, pristine: Path, tmp_path: Path) -> None:
+    # through a cluster mining counts in the engine (only counts reach the driver), on DuckDB
+    # in memory: the same rules
     lake = tmp_path / "lake"
     lake.mkdir()
     with duckdb.connect(str(pristine), read_only=True) as con:
