@@ -167,7 +167,7 @@ def mine_rules(
         if in_engine:
             say(f"Counting {kind} baskets for {window} in the engine ({wh.display_name})")
             counts = stack.enter_context(
-                EngineCounts(wh, tgt, lvl, window, label, sorted(_related_items(wh, tgt, lvl)))
+                EngineCounts(wh, tgt, lvl, window, label, sorted(_related_items(wh, tgt, lvl)), say)
             )
             held = counts.held_by_target()
             n, n_y = held.n_baskets, held.held.n_baskets

@@ -103,3 +103,19 @@ def test_engine_counts_give_the_same_rules_on_real_history(slice_db, target, lev
     db, mapping, _ = slice_db
     with Warehouse.open(db, mapping, read_only=True) as wh:
         both_ways(wh, target, level=level)
+
+
+def test_counting_runs_in_bounded_batches(garden: Warehouse, monkeypatch) -> None:
+    # a small budget of holder rows per query: many queries, each within it, same rules
+    from reachlist import engine_mining
+
+    monkeypatch.setattr(engine_mining, "HOLDER_ROWS", 20_000)
+    said: list[str] = []
+    memory = mine_rules(garden, MAT, counting="memory")
+    engine = mine_rules(garden, MAT, counting="engine", progress=said.append)
+    assert_frame_equal(engine.frame, memory.frame)
+    batches = [m for m in said if m.startswith("Counting holders in the engine: batch")]
+    # one series (the breadth tables of the rules shown come from the same counts)
+    assert len(batches) > 3
+    assert batches[-1].startswith(f"Counting holders in the engine: batch {len(batches)} of ")
+    assert batches[-1].split(" of ")[1].startswith(f"{len(batches)} (")

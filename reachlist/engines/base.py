@@ -59,6 +59,9 @@ class Engine:
 
     # -- small driver-side tables a query joins (mining's itemsets to count) -------------------
     counts_in_engine = False  # whether mining should count where the data is (a cluster)
+    # whether a large counting join is cut into batches (an engine whose hash tables must fit
+    # its memory); Spark spills its shuffles to disk and pays a fixed cost per query instead
+    batches_joins = True
 
     def register_frame(self, name: str, frame: pl.DataFrame) -> None:
         """Make ``frame`` readable as the table ``name`` for this connection's queries."""
