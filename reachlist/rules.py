@@ -3,7 +3,8 @@
 The warehouse does the heavy, data-sized work (de-duplicating lines, netting returns, joining the
 product hierarchy) and hands back basket -> item pairs; itemsets are counted in memory on
 vertical bitmaps (``reachlist.mining``), which measured faster than counting candidate itemsets
-in SQL (see the README's benchmark section).
+in SQL (see the README's benchmark section). On a Spark cluster the pairs stay in the cluster
+and only counts come back (``reachlist.engine_mining``, ``counting="engine"``): same rules.
 
 >>> with Warehouse.open("garden.duckdb") as wh:                       # doctest: +SKIP
 ...     rs = mine_rules(wh, "PRP-HM-01")
