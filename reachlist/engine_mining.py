@@ -10,7 +10,7 @@ path, row for row (``mining.conditional_rules``; the tests compare the two on Du
 Spark). SQL: sql/engine_counts.sql.
 
 >>> with EngineCounts(wh, target, "sku", window, label, related=()) as counts:  # doctest: +SKIP
-...     held = counts.held_by_target()
+...     held = counts.held_by_target(min_support=0.002)
 """
 
 from __future__ import annotations
@@ -25,6 +25,7 @@ import numpy as np
 import polars as pl
 
 from reachlist.baskets import Baskets
+from reachlist.mining import support_count
 from reachlist.query import Query, template_parts, with_parts
 from reachlist.stats import breadth_deciles_counted
 from reachlist.targets import LEVEL_COLUMN, Level, Target, Window, day_of
@@ -33,6 +34,10 @@ from reachlist.warehouse import Warehouse
 PAIRS = "reachlist_pairs"  # customer -> item pairs of the window, kept in the engine
 BREADTH = "reachlist_breadth"  # each customer's breadth and whether they hold the target
 ITEMSETS = "reachlist_itemsets"  # the itemsets to count: itemset, item, position, size
+TABLE_ITEMSETS = 2_000
+"""Up to this many itemsets, n(X) comes back as per-decile tables (one query for the counts and
+the breadth-matched lift); beyond, one row per itemset, then the tables of the rules shown or
+used (rules.BREADTH_ROWS best and the significant among the next: at most 4x that)."""
 HOLDER_ROWS = 4_000_000
 """Holder rows (n of each itemset's rarest item times its size, summed) one counting query may
 join: larger sets of itemsets are counted in batches. On the Complete Journey data, 100,000
@@ -74,6 +79,7 @@ class EngineCounts:
         self._cuts: np.ndarray | None = None
         self._totals = np.zeros((1, 2), dtype=np.int64)  # baskets per (decile, has_y)
         self._tables: dict[tuple[str, ...], np.ndarray] = {}  # holders per (decile, has_y)
+        self._n: dict[tuple[str, ...], int] = {}  # n(X)
 
     def __enter__(self) -> EngineCounts:
         same = self.target.level == self.level
@@ -124,8 +130,10 @@ class EngineCounts:
             text, {k: v for k, v in params.items() if k in used}, label=f"engine_counts:{final}"
         )
 
-    def held_by_target(self) -> HeldByTarget:
-        """N, n(i) per item and the target holders' items (two queries)."""
+    def held_by_target(self, min_support: float) -> HeldByTarget:
+        """N, n(i) per item and the target holders' items (two queries). Items fewer than
+        ``min_support`` of all baskets hold together with the target stay in the engine (no
+        rule can use them)."""
         counts = self.wh.fetch(self._query([], "item_counts"))
         total = counts.filter(pl.col("total") == 1)["n"]
         n = int(total[0]) if total.len() and total[0] is not None else 0
@@ -137,7 +145,8 @@ class EngineCounts:
                 strict=True,
             )
         )
-        pairs = self.wh.fetch(self._query([], "held_by_target"))
+        floor = support_count(n, min_support) if n else 1
+        pairs = self.wh.fetch(self._query(["held_by_target"], "held_items", min_count=floor))
         labels = pairs["item"].cast(pl.String).unique().sort()
         codes = pairs["item"].cast(pl.String).cast(pl.Enum(labels.to_list())).to_physical()
         held = Baskets.from_arrays(
@@ -164,17 +173,19 @@ class EngineCounts:
             return run()
 
     def itemset_counts(self, itemsets: list[list[str]]) -> np.ndarray:
-        """n(X) over all baskets for each itemset, in the order given. The same query counts
-        each itemset's holders per breadth decile (kept for ``breadth_tables``: one query for
-        both)."""
-        self._count_tables([x for x in itemsets if self._key(x) not in self._tables])
-        return np.array([int(self._tables[self._key(x)].sum()) for x in itemsets], dtype=np.int64)
+        """n(X) over all baskets for each itemset, in the order given. Up to TABLE_ITEMSETS
+        itemsets, the same query counts each one's holders per breadth decile (kept for
+        ``breadth_tables``); beyond, one count per itemset comes back and the tables are
+        counted later for the rules shown or used only."""
+        missing = [x for x in itemsets if self._key(x) not in self._n]
+        self._count(missing, tables=len(itemsets) <= TABLE_ITEMSETS)
+        return np.array([self._n[self._key(x)] for x in itemsets], dtype=np.int64)
 
     def breadth_tables(self, itemsets: list[list[str]]) -> list[np.ndarray]:
         """One ``(deciles, 2, 2)`` array per itemset, as ``rules.breadth_tables`` builds them
         in memory: within each breadth decile,
         ``[[holders with y, holders without], [others with y, others without]]``."""
-        self._count_tables([x for x in itemsets if self._key(x) not in self._tables])
+        self._count([x for x in itemsets if self._key(x) not in self._tables], tables=True)
         total = self._totals
         out = []
         for items in itemsets:
@@ -202,8 +213,9 @@ class EngineCounts:
             )
         return self._cuts
 
-    def _count_tables(self, itemsets: list[list[str]]) -> None:
-        """Holders of each itemset per breadth decile and target holding: one query per batch
+    def _count(self, itemsets: list[list[str]], *, tables: bool) -> None:
+        """Holders of each itemset (per breadth decile and target holding with ``tables``):
+        one query per batch
         of itemsets whose rarest items' holders add up to at most ``HOLDER_ROWS`` (the rows
         the engine's join works through), so no query grows without bound; on Spark, which
         spills its joins to disk and pays a fixed cost per query, in one query."""
@@ -223,9 +235,17 @@ class EngineCounts:
                     f"Counting holders in the engine: batch {k} of {len(batches)} "
                     f"({len(batch):,} itemsets)"
                 )
-            self._count_batch(batch)
+            if tables:
+                self._count_tables(batch)
+            else:
+                got = self._with_itemsets(
+                    batch, lambda: self.wh.fetch(self._query(["hits"], "itemset_counts"))
+                )
+                n = np.zeros(len(batch), dtype=np.int64)
+                n[got["itemset"].to_numpy().astype(np.int64)] = got["n"].to_numpy()
+                self._n.update(zip(map(self._key, batch), n.tolist(), strict=True))
 
-    def _count_batch(self, itemsets: list[list[str]]) -> None:
+    def _count_tables(self, itemsets: list[list[str]]) -> None:
         edges = self._edges()
         k = len(edges) + 1
         term = template_parts("engine_counts")["decile_term"]
@@ -247,3 +267,4 @@ class EngineCounts:
         self._totals = cells[0]
         for items, held in zip(itemsets, cells[1:], strict=True):
             self._tables[self._key(items)] = held
+            self._n[self._key(items)] = int(held.sum())

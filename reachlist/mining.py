@@ -429,6 +429,11 @@ def _empty_rules() -> pl.DataFrame:
     return pl.DataFrame(schema=RULE_COLUMNS)
 
 
+def support_count(n: int, min_support: float) -> int:
+    """The baskets (of ``n``) a share ``min_support`` of them means, rounded up, at least 1."""
+    return _resolve_min_count(n, None, min_support)
+
+
 def _resolve_min_count(n: int, min_count: int | None, min_support: float | None) -> int:
     if (min_count is None) == (min_support is None):
         raise InputError(

@@ -170,7 +170,7 @@ def mine_rules(
             counts = stack.enter_context(
                 EngineCounts(wh, tgt, lvl, window, label, sorted(_related_items(wh, tgt, lvl)), say)
             )
-            held = counts.held_by_target()
+            held = counts.held_by_target(min_support)
             n, n_y = held.n_baskets, held.held.n_baskets
 
             def rules_with(**kw: object) -> pl.DataFrame:

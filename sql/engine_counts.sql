@@ -74,9 +74,20 @@ UNION ALL
 SELECT 1 AS total, NULL AS item, count(DISTINCT basket) AS n
 FROM reachlist_pairs
 -- part: held_by_target
+-- the target holders' items, less those fewer than :min_count of them hold (no rule can use
+-- such an item: a rule needs that many co-purchases); the target itself always
+held AS (
+    SELECT basket, item
+    FROM reachlist_pairs
+    WHERE basket IN (SELECT basket FROM reachlist_pairs WHERE item = :target_label)
+),
+kept AS (
+    SELECT item FROM held GROUP BY item HAVING count(*) >= :min_count
+)
+-- part: held_items
 SELECT basket, item
-FROM reachlist_pairs
-WHERE basket IN (SELECT basket FROM reachlist_pairs WHERE item = :target_label)
+FROM held
+WHERE item IN (SELECT item FROM kept) OR item = :target_label
 -- part: hits
 -- the baskets holding each itemset: those of its rarest item (position 0) that hold the
 -- others too

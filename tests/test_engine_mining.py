@@ -115,7 +115,37 @@ def test_counting_runs_in_bounded_batches(garden: Warehouse, monkeypatch) -> Non
     engine = mine_rules(garden, MAT, counting="engine", progress=said.append)
     assert_frame_equal(engine.frame, memory.frame)
     batches = [m for m in said if m.startswith("Counting holders in the engine: batch")]
-    # one series (the breadth tables of the rules shown come from the same counts)
+    # each series of batches (counts, then the tables of the rules shown) runs 1..m
+    series: list[tuple[int, int]] = []
+    for m in batches:
+        k, of = m.split("batch ")[1].split(" (")[0].split(" of ")
+        series.append((int(k), int(of)))
     assert len(batches) > 3
-    assert batches[-1].startswith(f"Counting holders in the engine: batch {len(batches)} of ")
-    assert batches[-1].split(" of ")[1].startswith(f"{len(batches)} (")
+    for (k, of), (k2, of2) in zip(series, series[1:], strict=False):
+        assert (k2, of2) == (k + 1, of) or (k == of and k2 == 1)
+    assert series[-1][0] == series[-1][1]
+
+
+def test_many_itemsets_send_one_count_each_then_the_tables_of_the_rules_shown(
+    garden: Warehouse, monkeypatch
+) -> None:
+    # beyond TABLE_ITEMSETS the counts come back one row per itemset and the breadth tables
+    # only for the rules shown or used: the same rules and breadth-matched lifts
+    from reachlist import engine_mining
+
+    monkeypatch.setattr(engine_mining, "TABLE_ITEMSETS", 10)
+    tabled: list[int] = []
+    original = engine_mining.EngineCounts._count_tables
+
+    def spy(self, itemsets):  # type: ignore[no-untyped-def]
+        tabled.append(len(itemsets))
+        return original(self, itemsets)
+
+    monkeypatch.setattr(engine_mining.EngineCounts, "_count_tables", spy)
+    engine = mine_rules(garden, MAT, counting="engine", max_antecedent=2)
+    memory = mine_rules(garden, MAT, counting="memory", max_antecedent=2)
+    assert_frame_equal(engine.frame, memory.frame)
+    tested = int(engine.frame["n_tested"][0])
+    shown = int(engine.frame["breadth_lift"].is_not_null().sum())
+    assert tested > 10 and sum(tabled) < tested
+    assert sum(tabled) >= shown > 0
