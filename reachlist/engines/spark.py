@@ -63,8 +63,8 @@ class SparkEngine(Engine):
         # pyspark's note on pandas versions: reachlist hands no pandas data to Spark
         warnings.filterwarnings("ignore", "PySpark does not yet fully support", FutureWarning)
         # On a cluster mining counts where the data is and only counts come back; in local mode
-        # the driver is the same machine and counting the pairs in memory measured 7x faster
-        # (bench/spark_mining.py), so the pairs come to the driver there.
+        # the driver is the same machine and counting the pairs in memory measured faster
+        # (bench/spark_mining.py: 6x), so the pairs come to the driver there.
         self.counts_in_engine = not target.removeprefix("spark://").startswith("local")
         builder: Any = SparkSession.builder.appName("reachlist")
         if target.startswith("sc://"):
