@@ -106,6 +106,7 @@ class EngineCounts:
     def _query(self, ctes: Sequence[str], final: str, decile: str = "0", **extra: object) -> Query:
         """sql/engine_counts.sql: the parts ``ctes`` as a WITH list, then the part ``final``."""
         parts = template_parts("engine_counts")
+        parts["held_skus"] = template_parts("held_items")["held_skus"]  # one netting rule
         params: dict[str, object] = {
             "since": day_of(self.window.since),
             "until": day_of(self.window.until),

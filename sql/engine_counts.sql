@@ -5,15 +5,7 @@
 -- days, with the target added under its own label when it sits at another level than the
 -- antecedents) are kept once in the engine as reachlist_pairs, each customer's breadth and
 -- whether they hold the target as reachlist_breadth; the counting queries read those two.
--- part: held_skus
-held_skus AS (
-    SELECT customer_id AS basket, sku
-    FROM holdings
-    WHERE order_day >= :since
-      AND order_day < :until
-    GROUP BY customer_id, sku
-    HAVING sum(quantity) > 0
-)
+-- held_skus (which SKUs a customer holds over the window's days) is held_items.sql's own part.
 -- part: level_pairs
 level_pairs AS (
     SELECT DISTINCT h.basket, p.{level} AS item

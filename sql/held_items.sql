@@ -3,7 +3,9 @@
 -- returns cancel purchases, and the holdings (holdings.sql) already count exact duplicate lines
 -- once and ignore orders without a customer. SKUs missing from products are left out.
 -- At category or department level, a customer holds the group when they hold any SKU in it.
-WITH held_skus AS (
+WITH
+-- part: held_skus
+held_skus AS (
     SELECT customer_id AS basket, sku
     FROM holdings
     WHERE order_day >= :since
@@ -11,6 +13,7 @@ WITH held_skus AS (
     GROUP BY customer_id, sku
     HAVING sum(quantity) > 0
 )
+-- part: held_pairs
 SELECT DISTINCT h.basket, p.{level} AS item
 FROM held_skus AS h
 JOIN products AS p ON p.sku = h.sku{only_item}
