@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import polars as pl
 
 from reachlist.errors import EmptyResultError, InputError
-from reachlist.query import Query, template_parts, template_text
+from reachlist.query import Query, template_parts, template_text, with_parts
 from reachlist.targets import LEVEL_COLUMN, Level, Target, Window, day_of
 from reachlist.wording import option
 
@@ -37,6 +37,7 @@ __all__ = [
     "adult_born_by",
     "audience_query",
     "choose_rules",
+    "reach_at_cutoffs_parts",
     "reach_at_cutoffs_query",
     "reach_query",
 ]
@@ -348,10 +349,12 @@ def audience_query(spec: AudienceSpec) -> Query:
     return _build(spec, per_rule=False)
 
 
-def reach_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query:
-    """(cutoff, customer_id, rule_rank): who each rule of ``spec`` reaches at each cutoff (its
-    index in ``cutoffs``, from 1), the lookback window shifted to end there; one query for all
-    (the rows ``reach_query`` gives for one shifted spec, per cutoff). ``spec`` has rules."""
+def reach_at_cutoffs_parts(
+    spec: AudienceSpec, cutoffs: list[datetime]
+) -> tuple[list[str], dict[str, Any]]:
+    """The common table expressions of :func:`reach_at_cutoffs_query`, ending with ``reached``
+    (cutoff, customer_id, rule_rank), and their values: for a query that joins who the rules
+    reach into something else (estimate.takeup_cells)."""
     if not spec.rules or not cutoffs:
         raise ValueError("reach_at_cutoffs_query needs rules and cutoffs")
     length = spec.lookback.until - spec.lookback.since
@@ -362,17 +365,33 @@ def reach_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query
     for r in spec.rules:
         params[f"rule_{r.rank}_items"] = list(r.antecedent)
         params[f"rule_{r.rank}_size"] = len(r.antecedent)
-    text = template_text("reach_at_cutoffs").format(
-        level=LEVEL_COLUMN[spec.level],
-        cutoff_rows="\n    UNION ALL\n".join(
-            _PARTS["cutoff_row"].format(c=c) for c in range(1, len(cutoffs) + 1)
+    parts = template_parts("reach_at_cutoffs")
+    ctes = [
+        parts["ctes"].format(
+            level=LEVEL_COLUMN[spec.level],
+            cutoff_rows="\n    UNION ALL\n".join(
+                _PARTS["cutoff_row"].format(c=c) for c in range(1, len(cutoffs) + 1)
+            ),
         ),
-        rule_blocks=",\n".join(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
-        reached_union="\n    UNION ALL\n".join(
-            _PARTS["cutoff_reached_line"].format(k=r.rank) for r in spec.rules
-        ),
+        *(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
+        parts["reached_cte"].format(reached_union=_reached_union(spec)),
+    ]
+    return ctes, params
+
+
+def _reached_union(spec: AudienceSpec) -> str:
+    return "\n    UNION ALL\n".join(
+        _PARTS["cutoff_reached_line"].format(k=r.rank) for r in spec.rules
     )
-    return Query(text, params, label="audience reach at cutoffs")
+
+
+def reach_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query:
+    """(cutoff, customer_id, rule_rank): who each rule of ``spec`` reaches at each cutoff (its
+    index in ``cutoffs``, from 1), the lookback window shifted to end there; one query for all
+    (the rows ``reach_query`` gives for one shifted spec, per cutoff). ``spec`` has rules."""
+    ctes, params = reach_at_cutoffs_parts(spec, cutoffs)
+    final = template_parts("reach_at_cutoffs")["select"].format(reached_union=_reached_union(spec))
+    return Query(with_parts(ctes[:-1], final), params, label="audience reach at cutoffs")
 
 
 def reach_query(spec: AudienceSpec) -> Query:

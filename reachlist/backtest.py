@@ -168,7 +168,7 @@ def backtest(
     outcome = ids.normalise_frame(
         wh.fetch(forward_query(tgt, at, at + timedelta(days=horizon_days)))
     ).select("customer_id", pl.col("bought").cast(pl.Int64))
-    people = cal.now.people.drop("bought").join(outcome, on="customer_id", how="left")
+    people = cal.now.people.join(outcome, on="customer_id", how="left")
     people = people.with_columns(pl.col("bought").fill_null(0))
 
     rows = []
@@ -210,6 +210,7 @@ def backtest(
         if scores["bought"].sum() > 0
         else pl.DataFrame()
     )
-    outside = people.filter(~pl.col(f"g{COMBINED}"))
+    # everyone lacking the target at the cutoff (the estimate brought only the audience)
+    outside = outcome.filter(~pl.col("customer_id").is_in(members["customer_id"].implode()))
     base = float(outside["bought"].mean()) if outside.height else float("nan")  # type: ignore[arg-type]
     return Backtest(tgt, at, horizon_days, window, rows, gains, base, cal)

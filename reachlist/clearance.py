@@ -105,7 +105,7 @@ def size_to_stock(
         )
     horizon = plan.request.horizon_days
     per_buyer = cal.units_per_buyer
-    buyers = int(cal.latest.people["bought"].sum())
+    buyers = cal.latest.buyers()
     units_from = (
         f"new buyers of {plan.rules_target} within {horizon} days of {cal.latest.at:%Y-%m-%d}"
     )

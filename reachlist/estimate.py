@@ -38,9 +38,9 @@ import numpy as np
 import polars as pl
 
 from reachlist import ids as ids_
-from reachlist.audience import AudienceSpec, reach_at_cutoffs_query, reach_query
+from reachlist.audience import AudienceSpec, reach_at_cutoffs_parts, reach_query
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
-from reachlist.query import Query
+from reachlist.query import Query, template_parts, with_parts
 from reachlist.stats import (
     Calibration,
     DetectableUplift,
@@ -49,7 +49,7 @@ from reachlist.stats import (
     StratifiedRatio,
     TakeUpEstimate,
     assign_decile,
-    breadth_deciles,
+    breadth_deciles_counted,
     breadth_matched_expectation,
     calibrate,
     decile_rates,
@@ -112,36 +112,46 @@ def forward_query(target: Target, cutoff: datetime, outcome_until: datetime) -> 
 MOST_CUTOFFS = 60  # cutoffs one history query follows (one bit each in a 64-bit integer)
 
 
-def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: int) -> Query:
-    """Breadth and forward take-up at cutoffs ``as_of - k * horizon`` for k = 0 .. ``last``, in
-    one query (sql/takeup_history.sql); reads nothing at or after ``as_of``."""
+def _history_slots(
+    target: Target, as_of: datetime, horizon: int, last: int
+) -> tuple[dict[str, Any], dict[str, str]]:
+    """Values and generated fragments shared by the two shapes of sql/takeup_history.sql."""
     if not 0 <= last <= MOST_CUTOFFS:
         raise InputError(
             f"Expected at most {MOST_CUTOFFS} cutoffs, found {last}.",
             hint=f"pass {option('cutoffs')} 13",
         )
     ks = range(last + 1)
-    numbers = "(VALUES " + ", ".join(f"({k})" for k in ks) + ")"
-    return Query.from_template(
-        "takeup_history",
-        {
-            "target": target.name,
-            "as_of": day_of(as_of),
-            "horizon": horizon,
-            "breadth_days": BREADTH_DAYS,
-            "last": last,
-        },
-        target_level=LEVEL_COLUMN[target.level],
-        cutoff_numbers=numbers,
-        breadth_columns=",\n".join(
+    params: dict[str, Any] = {
+        "target": target.name,
+        "as_of": day_of(as_of),
+        "horizon": horizon,
+        "breadth_days": BREADTH_DAYS,
+        "last": last,
+    }
+    slots = {
+        "target_level": LEVEL_COLUMN[target.level],
+        "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
+        "breadth_columns": ",\n".join(
             f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
         ),
-        target_columns=",\n".join(
+        "target_columns": ",\n".join(
             f"           max(CASE WHEN k = {k} THEN {col} END) AS {col}_{k}"
             for k in ks
             for col in ("had", "bought", "units")
         ),
-        # small types: a million customers at 14 cutoffs is 56 million values
+    }
+    return params, slots
+
+
+def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: int) -> Query:
+    """Breadth and forward take-up at cutoffs ``as_of - k * horizon`` for k = 0 .. ``last``, in
+    one query (sql/takeup_history.sql); reads nothing at or after ``as_of``."""
+    params, slots = _history_slots(target, as_of, horizon, last)
+    parts = template_parts("takeup_history")
+    ks = range(last + 1)
+    # small types: a million customers at 14 cutoffs is 56 million values
+    final = parts["wide"].format(
         final_columns=",\n".join(
             f"       CAST(coalesce({src}.{col}_{k}, 0) AS {to}) AS {col}_{k}"
             for k in ks
@@ -151,8 +161,9 @@ def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: in
                 ("t", "bought", "SMALLINT"),
                 ("t", "units", "DOUBLE PRECISION"),
             )
-        ),
+        )
     )
+    return Query(with_parts([parts["ctes"].format(**slots)], final), params, label="takeup_history")
 
 
 def takeup_history(
@@ -175,12 +186,114 @@ def takeup_history(
     return out
 
 
+EVERYONE = -1  # the cells' group of every customer lacking the target at a cutoff
+
+
+def takeup_cells_query(
+    target: Target,
+    as_of: datetime,
+    horizon: int,
+    last: int,
+    spec: AudienceSpec | None = None,
+    one_by_one: int = 0,
+) -> Query:
+    """The take-up history at cutoffs k = 1 .. ``last`` counted in the warehouse, plus the
+    customers lacking the target at k = 0 .. ``one_by_one`` one row each (sql/takeup_history.sql,
+    "cells"). A cell is (k, grp, breadth, bought) with its customers and their net units of the
+    target; ``grp`` is ``EVERYONE``, or with ``spec``'s rules a rule's rank (who it reaches at
+    cutoff k, the lookback window shifted to end there) or ``COMBINED`` (who any rule reaches)."""
+    if not 1 <= last <= MOST_CUTOFFS or not 0 <= one_by_one <= last:
+        raise InputError(
+            f"Expected 1 to {MOST_CUTOFFS} past cutoffs, found {last} (customers one by one "
+            f"up to {one_by_one}).",
+            hint=f"pass {option('cutoffs')} 13",
+        )
+    params, slots = _history_slots(target, as_of, horizon, last)
+    params["one_by_one"] = one_by_one
+    slots["breadth_cases"] = " ".join(f"WHEN {k} THEN b.breadth_{k}" for k in range(last + 1))
+    parts = template_parts("takeup_history")
+    ctes = [parts["ctes"].format(**slots), parts["people_at"].format(**slots)]
+    member_cells, one_by_one_rows = "", parts["one_by_one"]
+    if spec is not None and spec.rules:
+        if one_by_one:
+            raise InputError("Expected customers one by one at as_of only, with rules.")
+        # as_of itself is the first cutoff of the reach (k = 0)
+        ats = [as_of - timedelta(days=horizon * k) for k in range(last + 1)]
+        reach_ctes, reach_params = reach_at_cutoffs_parts(spec, ats)
+        ctes += [*reach_ctes, parts["members"]]
+        params.update(reach_params)
+        member_cells = "\n" + parts["member_cells"]
+        one_by_one_rows = parts["one_by_one_reached"]
+        del params["one_by_one"]  # only the customers reached at as_of come one by one
+    final = parts["cells"].format(member_cells=member_cells, one_by_one_rows=one_by_one_rows)
+    return Query(with_parts(ctes, final), params, label="takeup cells")
+
+
+@dataclass(frozen=True)
+class TakeUpCells:
+    """What ``takeup_cells`` returns: per past cutoff k = 1 .. last its cells (grp, breadth,
+    bought, customers, units); per k = 0 .. one_by_one the customers lacking the target there one
+    row each (customer_id, breadth, bought, units), with rules only those a rule reaches at
+    as_of; and then who each rule reaches at as_of among them (customer_id, rule_rank)."""
+
+    cells: list[pl.DataFrame]
+    people: list[pl.DataFrame]
+    reached: pl.DataFrame | None
+
+
+def takeup_cells(
+    wh: Warehouse,
+    target: Target,
+    as_of: datetime,
+    horizon: int,
+    last: int,
+    spec: AudienceSpec | None = None,
+    one_by_one: int = 0,
+) -> TakeUpCells:
+    """The take-up history of ``takeup_cells_query`` from one query: the past cutoffs as cells
+    (a result that does not grow with the number of customers), and the customers at as_of."""
+    q = takeup_cells_query(target, as_of, horizon, last, spec, one_by_one)
+    rows = ids_.normalise_frame(wh.fetch(q)).with_columns(
+        pl.col("k").cast(pl.Int64),
+        pl.col("grp").cast(pl.Int64),
+        pl.col("reached_by").cast(pl.Int64),
+        pl.col("breadth").cast(pl.Int64),
+        pl.col("bought").cast(pl.Int64),
+        pl.col("customers").cast(pl.Int64),
+        pl.col("units").cast(pl.Float64),
+    )
+    counted = rows.filter(pl.col("grp").is_not_null())
+    single = rows.filter(pl.col("grp").is_null())
+    people = [
+        single.filter(pl.col("k") == k)
+        .select("customer_id", "breadth", "bought", "units")
+        .unique("customer_id", keep="first", maintain_order=True)
+        for k in range(one_by_one + 1)
+    ]
+    reached = None
+    if spec is not None and spec.rules:
+        reached = single.filter(pl.col("k") == 0).select(
+            "customer_id", pl.col("reached_by").alias("rule_rank")
+        )
+    return TakeUpCells(
+        [
+            counted.filter(pl.col("k") == k).select(
+                "grp", "breadth", "bought", "customers", "units"
+            )
+            for k in range(1, last + 1)
+        ],
+        people,
+        reached,
+    )
+
+
 @dataclass(frozen=True)
 class _Cutoff:
-    """Customers lacking the target at one cutoff: breadth, decile, outcome, audience groups."""
+    """Customers lacking the target at one past cutoff, as counted cells: grp (``EVERYONE`` or
+    an audience group), breadth, bought, customers, units, and the breadth decile."""
 
     at: datetime
-    people: pl.DataFrame  # customer_id, breadth, bought, units, decile, g0, g1, ...
+    cells: pl.DataFrame
     edges: np.ndarray
     # tables() per group: the estimate asks each cutoff for the same group's tables once per
     # later cutoff (added value since each backtest), so they are counted once and kept
@@ -188,28 +301,52 @@ class _Cutoff:
         default_factory=dict, init=False, compare=False, repr=False
     )
 
+    def group(self, group: int) -> pl.DataFrame:
+        return self.cells.filter(pl.col("grp") == group)
+
+    def size(self, group: int = EVERYONE) -> int:
+        return int(self.group(group)["customers"].sum())
+
+    def buyers(self, group: int = EVERYONE) -> int:
+        g = self.group(group)
+        return int((g["customers"] * g["bought"]).sum())
+
+    def _by_decile(self, cells: pl.DataFrame, bought: int | None = None) -> np.ndarray:
+        if bought is not None:
+            cells = cells.filter(pl.col("bought") == bought)
+        return np.bincount(
+            cells["decile"].to_numpy(),
+            weights=cells["customers"].to_numpy().astype(float),
+            minlength=len(self.edges) + 1,
+        )
+
     def counts(self) -> tuple[np.ndarray, np.ndarray]:
-        k = len(self.edges) + 1
-        d = self.people["decile"].to_numpy()
-        n = np.bincount(d, minlength=k).astype(float)
-        b = np.bincount(d, weights=self.people["bought"].to_numpy(), minlength=k)
-        return n, b
+        """Customers and buyers per breadth decile."""
+        everyone = self.group(EVERYONE)
+        return self._by_decile(everyone), self._by_decile(everyone, bought=1)
 
     def tables(self, group: int) -> np.ndarray:
         """One 2x2 per decile: [[members bought, not], [others bought, not]]."""
         kept = self._tables.get(group)
         if kept is not None:
             return kept
-        k = len(self.edges) + 1
-        d = self.people["decile"].to_numpy().astype(np.int64)
-        y = self.people["bought"].to_numpy().astype(bool)
-        m = self.people[f"g{group}"].to_numpy().astype(bool)
-        # cell 0: member bought, 1: member not, 2: other bought, 3: other not
-        cell = (~m).astype(np.int64) * 2 + (~y).astype(np.int64)
-        counts = np.bincount(d * 4 + cell, minlength=4 * k).astype(float)
-        out = counts.reshape(k, 2, 2)
+        members, everyone = self.group(group), self.group(EVERYONE)
+        mb, mn = self._by_decile(members, 1), self._by_decile(members, 0)
+        out = np.stack(
+            [mb, mn, self._by_decile(everyone, 1) - mb, self._by_decile(everyone, 0) - mn], axis=1
+        ).reshape(-1, 2, 2)
         self._tables[group] = out
         return out
+
+
+@dataclass(frozen=True)
+class _Present:
+    """Customers lacking the target at as_of itself, one row each: customer_id, breadth, decile
+    (by the latest past cutoff's edges) and a flag per audience group; no outcomes."""
+
+    at: datetime
+    people: pl.DataFrame
+    edges: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -284,28 +421,36 @@ def _cutoffs(first: datetime, as_of: datetime, horizon: int, most: int) -> list[
     return out
 
 
-def _snapshot(
+def _past_cutoff(target: Target, at: datetime, cells: pl.DataFrame) -> _Cutoff:
+    """One past cutoff from its cells (``takeup_cells``), with breadth deciles of everyone
+    lacking the target there."""
+    everyone = cells.filter(pl.col("grp") == EVERYONE)
+    if everyone.height == 0 or int(everyone["customers"].sum()) == 0:
+        raise EmptyResultError(
+            f"Expected customers lacking {target} at {at:%Y-%m-%d}, found none.",
+            hint=f"choose a later {option('as_of')} or a target fewer customers already hold",
+        )
+    edges = breadth_deciles_counted(everyone["breadth"].to_numpy(), everyone["customers"])
+    decile = assign_decile(cells["breadth"].to_numpy(), edges)
+    return _Cutoff(at, cells.with_columns(pl.Series("decile", decile)), edges)
+
+
+def _present(
     target: Target,
     at: datetime,
     people: pl.DataFrame,
     groups: pl.DataFrame | None,
     ranks: Sequence[int],
-    edges: np.ndarray | None = None,
-) -> _Cutoff:
-    """One cutoff's customers lacking the target (from ``takeup_history``), with their breadth
-    deciles and the audience groups they belong to."""
-    people = people.with_columns(
-        pl.col("breadth").cast(pl.Int64),
-        pl.col("bought").cast(pl.Int64),
-        pl.col("units").cast(pl.Float64),
-    )
+    edges: np.ndarray,
+) -> _Present:
+    """The customers lacking the target at as_of (from ``takeup_history`` at k = 0), with their
+    breadth deciles and the audience groups they belong to."""
+    people = people.select("customer_id", pl.col("breadth").cast(pl.Int64))
     if people.height == 0:
         raise EmptyResultError(
             f"Expected customers lacking {target} at {at:%Y-%m-%d}, found none.",
             hint=f"choose a later {option('as_of')} or a target fewer customers already hold",
         )
-    if edges is None:
-        edges = breadth_deciles(people["breadth"].to_numpy())
     people = people.with_columns(
         pl.Series("decile", assign_decile(people["breadth"].to_numpy(), edges))
     )
@@ -319,7 +464,7 @@ def _snapshot(
             ids = groups.filter(pl.col("rule_rank") == g)["customer_id"]
         ids = ids_.like(ids, people.schema["customer_id"])
         flags.append(pl.col("customer_id").is_in(ids.implode()).alias(f"g{g}"))
-    return _Cutoff(at, people.with_columns(flags), edges)
+    return _Present(at, people.with_columns(flags), edges)
 
 
 def _groups_at(
@@ -336,21 +481,6 @@ def _groups_at(
     )
 
 
-def _groups_at_cutoffs(
-    wh: Warehouse, spec: AudienceSpec | None, ids: pl.Series | None, ats: list[datetime]
-) -> list[pl.DataFrame]:
-    """``_groups_at`` for every cutoff, from one query."""
-    if spec is None or not spec.rules:
-        return [_groups_at(wh, spec, ids, at) for at in ats]
-    found = ids_.normalise_frame(wh.fetch(reach_at_cutoffs_query(spec, ats))).with_columns(
-        pl.col("cutoff").cast(pl.Int64), pl.col("rule_rank").cast(pl.Int64)
-    )
-    return [
-        found.filter(pl.col("cutoff") == c).select("customer_id", "rule_rank")
-        for c in range(1, len(ats) + 1)
-    ]
-
-
 def _mh(tables: Iterable[np.ndarray]) -> StratifiedRatio | None:
     stacked = [t for t in tables if t.size]
     if not stacked:
@@ -361,10 +491,12 @@ def _mh(tables: Iterable[np.ndarray]) -> StratifiedRatio | None:
         return None
 
 
-def _prediction(rates_at: _Cutoff, members: pl.DataFrame, breadth_col: str = "breadth") -> float:
+def _prediction(rates_at: _Cutoff, breadth: np.ndarray, weights: np.ndarray | None = None) -> float:
+    """Expected buyers among customers of these breadths (each counted ``weights`` times) at the
+    decile take-up rates of ``rates_at``."""
     n, b = rates_at.counts()
     mix = np.bincount(
-        assign_decile(members[breadth_col].to_numpy(), rates_at.edges), minlength=len(n)
+        assign_decile(breadth, rates_at.edges), weights=weights, minlength=len(n)
     ).astype(float)
     return breadth_matched_expectation(n, b, mix).expected_buyers
 
@@ -378,16 +510,18 @@ class _History:
     # the breadth-matched method itself, one audience per breadth decile, and no rule effect is
     # measured.
     fixed_ids: bool = False
-    # customers lacking the target at as_of itself, with their breadth (no outcome is read)
+    # customers lacking the target at as_of itself, with their breadth (no outcome is read): with
+    # rules only those a rule reaches, and who each rule reaches among them (now_reached)
     now_people: pl.DataFrame | None = None
+    now_reached: pl.DataFrame | None = None
 
     def _audiences(self, now: _Cutoff) -> list[tuple[int, pl.DataFrame]]:
+        everyone = now.group(EVERYONE)
         if self.fixed_ids:
             return [
-                (-1 - k, now.people.filter(pl.col("decile") == k))
-                for k in range(len(now.edges) + 1)
+                (-1 - k, everyone.filter(pl.col("decile") == k)) for k in range(len(now.edges) + 1)
             ]
-        return [(g, now.people.filter(pl.col(f"g{g}"))) for g in self.ranks]
+        return [(g, now.group(g)) for g in self.ranks]
 
     def added_value(self, group: int, since: int = 0) -> StratifiedRatio | None:
         if self.fixed_ids:
@@ -399,9 +533,11 @@ class _History:
         for j in range(len(self.cutoffs) - 1):
             now, before = self.cutoffs[j], self.cutoffs[j + 1]
             for g, members in self._audiences(now):
-                if members.height == 0:
+                weights = members["customers"].to_numpy()
+                customers = int(weights.sum())
+                if customers == 0:
                     continue
-                base = _prediction(before, members)
+                base = _prediction(before, members["breadth"].to_numpy(), weights.astype(float))
                 if base <= 0:
                     continue
                 prior = self.added_value(g, since=j + 1)
@@ -410,10 +546,10 @@ class _History:
                     {
                         "cutoff": now.at,
                         "group": g,
-                        "customers": members.height,
+                        "customers": customers,
                         "breadth_matched": base,
                         "rule_adjusted": base * rr,
-                        "observed": int(members["bought"].sum()),
+                        "observed": int((members["customers"] * members["bought"]).sum()),
                     }
                 )
         schema: dict[str, pl.DataType] = {
@@ -444,12 +580,34 @@ def _history(
             hint=f"choose a later {option('as_of')} or a shorter {option('horizon_days')}",
         )
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
-    frames = takeup_history(wh, target, as_of, horizon, len(ats))
-    groups = _groups_at_cutoffs(wh, spec, ids, ats)
-    cutoffs = [
-        _snapshot(target, at, frames[k], groups[k - 1], ranks) for k, at in enumerate(ats, start=1)
-    ]
-    return _History(cutoffs, ranks, fixed_ids=spec is None, now_people=frames[0])
+    # one pass: the past cutoffs as cells; the customers at as_of one by one (and, given only
+    # ids, at the latest past cutoff too: the report's outside rate leaves the given ones out)
+    taken = takeup_cells(wh, target, as_of, horizon, len(ats), spec, 1 if spec is None else 0)
+    cells = list(taken.cells)
+    if spec is None:
+        assert ids is not None
+        cells[0] = pl.concat([cells[0], _cells_of(taken.people[1], ids, COMBINED)])
+    cutoffs = [_past_cutoff(target, at, cells[k - 1]) for k, at in enumerate(ats, start=1)]
+    return _History(
+        cutoffs,
+        ranks,
+        fixed_ids=spec is None,
+        now_people=taken.people[0],
+        now_reached=taken.reached,
+    )
+
+
+def _cells_of(people: pl.DataFrame, ids: pl.Series, group: int) -> pl.DataFrame:
+    """``takeup_cells``' rows for the customers of ``people`` (one cutoff of
+    ``takeup_history``) whose ids are ``ids``, as group ``group``."""
+    ids = ids_.like(ids, people.schema["customer_id"])
+    return (
+        people.filter(pl.col("customer_id").is_in(ids.implode()))
+        .group_by(pl.col("breadth").cast(pl.Int64), pl.col("bought").cast(pl.Int64))
+        .agg(pl.len().cast(pl.Int64).alias("customers"), pl.col("units").cast(pl.Float64).sum())
+        .select(pl.lit(group, pl.Int64).alias("grp"), "breadth", "bought", "customers", "units")
+        .sort("breadth", "bought")
+    )
 
 
 def _calibrated(history: _History) -> tuple[Calibration, RuleWeight, pl.DataFrame]:
@@ -484,7 +642,7 @@ class Calibrated:
     calibration: Calibration
     weight: RuleWeight
     backtests: pl.DataFrame
-    now: _Cutoff  # customers lacking the target at as_of with breadth and groups; no outcomes
+    now: _Present  # customers lacking the target at as_of with breadth and groups; no outcomes
 
     @property
     def latest(self) -> _Cutoff:
@@ -499,8 +657,12 @@ class Calibrated:
     @property
     def units_per_buyer(self) -> float:
         """Net units a new buyer took within the horizon at the latest complete cutoff."""
-        buyers = self.latest.people.filter(pl.col("bought") == 1)
-        return float(buyers["units"].mean()) if buyers.height else 1.0  # type: ignore[arg-type]
+        latest = self.latest
+        buyers = latest.buyers()
+        if not buyers:
+            return 1.0
+        units = latest.group(EVERYONE).filter(pl.col("bought") == 1)["units"].sum()
+        return float(units) / buyers
 
     def for_customers(self, customers: Iterable[int] | pl.Series) -> Calibrated:
         """The same calibration with the audience narrowed to ``customers`` (for example a
@@ -512,7 +674,7 @@ class Calibrated:
                 f"g{COMBINED}"
             )
         )
-        return dataclasses.replace(self, now=_Cutoff(self.now.at, people, self.now.edges))
+        return dataclasses.replace(self, now=_Present(self.now.at, people, self.now.edges))
 
     def customer_rates(self) -> pl.DataFrame:
         """customer_id and calibrated take-up probability of every audience member at as_of."""
@@ -546,10 +708,12 @@ class Calibrated:
                 "reached",
             )
         latest = self.latest
-        base = _prediction(latest, members)
+        base = _prediction(latest, members["breadth"].to_numpy())
         added = self.added_value(group)
         raw = self.weight.apply(base, base * (added.estimate if added is not None else 1.0))
-        outside = latest.people.filter(~pl.col(f"g{group}"))
+        # at the latest past cutoff: everyone lacking the target, and those outside the group
+        n_all, b_all = latest.size(), latest.buyers()
+        n_out, b_out = n_all - latest.size(group), b_all - latest.buyers(group)
         return TakeUpReport(
             target=self.target,
             as_of=self.as_of,
@@ -559,8 +723,8 @@ class Calibrated:
             expected=self.calibration.predict(raw, level=self.level),
             units_per_buyer=self.units_per_buyer,
             breadth_matched_rate=base / members.height,
-            base_rate=float(outside["bought"].mean()) if outside.height else math.nan,  # type: ignore[arg-type]
-            overall_rate=float(latest.people["bought"].mean()),  # type: ignore[arg-type]
+            base_rate=b_out / n_out if n_out else math.nan,
+            overall_rate=b_all / n_all,
             added_value=added,
             weight=self.weight,
             calibration_cutoff=latest.at,
@@ -600,12 +764,21 @@ def calibrate_audience(
     ids = None if customers is None else _as_ids(customers)
     history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
     cal, weight, bt = _calibrated(history)
-    assert history.now_people is not None
-    groups = (
-        _groups_at(wh, spec, None, when)
-        if spec is not None
-        else pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED})
-    )
+    now_people = history.now_people
+    assert now_people is not None
+    if spec is None:
+        groups = pl.DataFrame({"customer_id": ids, "rule_rank": COMBINED})
+    elif history.now_reached is not None:
+        groups = history.now_reached
+    else:
+        groups = _groups_at(wh, spec, None, when)
+    if ids is not None and spec is not None and history.now_reached is not None:
+        # The history brought the customers the rules reach at as_of. Given customers beyond
+        # them (reached at another time, or holding the target by now) need everyone's breadth
+        # to tell which: one more query, customer-sized, only then.
+        given = ids_.like(ids, now_people.schema["customer_id"])
+        if not given.is_in(now_people["customer_id"].implode()).all():
+            now_people = takeup_history(wh, target, when, horizon_days, 0)[0]
     if ids is not None and spec is not None:
         # the given customers are the combined audience; rules still mark whom they reach
         groups = pl.concat(
@@ -618,20 +791,18 @@ def calibrate_audience(
             ]
         )
         ranks = history.ranks
-        now = _snapshot(
-            target, when, history.now_people, groups, ranks, edges=history.cutoffs[0].edges
-        )
-        now = _Cutoff(
+        now = _present(target, when, now_people, groups, ranks, edges=history.cutoffs[0].edges)
+        now = _Present(
             now.at,
             now.people.with_columns(pl.col("customer_id").is_in(ids.implode()).alias("g0")),
             now.edges,
         )
     else:
         # Breadth at as_of, read with an empty outcome window: nothing at or after as_of.
-        now = _snapshot(
+        now = _present(
             target,
             when,
-            history.now_people,
+            now_people,
             groups,
             history.ranks,
             edges=history.cutoffs[0].edges,

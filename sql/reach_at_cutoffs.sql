@@ -2,7 +2,10 @@
 -- customers holding every antecedent item of the rule inside the lookback window that ends at
 -- the cutoff (every window as long as the list's own). "Holds" as in audience.sql: net quantity
 -- over the window's days positive. One row per (cutoff, customer, rule).
-WITH cutoffs AS (
+-- Written as parts: estimate.takeup_cells joins the same CTEs into the take-up history.
+WITH
+-- part: ctes
+cutoffs AS (
 {cutoff_rows}
 ),
 antecedent_skus AS (
@@ -18,10 +21,14 @@ held AS (
     FROM antecedent_skus AS h
     JOIN products AS p ON p.sku = h.sku
     WHERE p.{level} IN (:antecedent_items)
-),
-{rule_blocks}
+)
+-- part: select
 SELECT cutoff, customer_id, rule_rank
 FROM (
 {reached_union}
 ) AS reached
 ORDER BY cutoff, rule_rank, customer_id
+-- part: reached_cte
+reached AS (
+{reached_union}
+)

