@@ -213,7 +213,7 @@ def takeup_cells_query(
     slots["breadth_cases"] = " ".join(f"WHEN {k} THEN b.breadth_{k}" for k in range(last + 1))
     parts = template_parts("takeup_history")
     ctes = [parts["ctes"].format(**slots), parts["people_at"].format(**slots)]
-    member_cells, one_by_one_rows = "", parts["one_by_one"]
+    final = parts["cells_plain"]
     if spec is not None and spec.rules:
         if one_by_one:
             raise InputError("Expected customers one by one at as_of only, with rules.")
@@ -222,10 +222,8 @@ def takeup_cells_query(
         reach_ctes, reach_params = reach_at_cutoffs_parts(spec, ats)
         ctes += [*reach_ctes, parts["members"]]
         params.update(reach_params)
-        member_cells = "\n" + parts["member_cells"]
-        one_by_one_rows = parts["one_by_one_reached"]
         del params["one_by_one"]  # only the customers reached at as_of come one by one
-    final = parts["cells"].format(member_cells=member_cells, one_by_one_rows=one_by_one_rows)
+        final = parts["cells_reached"]
     return Query(with_parts(ctes, final), params, label="takeup cells")
 
 
@@ -256,30 +254,39 @@ def takeup_cells(
     rows = ids_.normalise_frame(wh.fetch(q)).with_columns(
         pl.col("k").cast(pl.Int64),
         pl.col("grp").cast(pl.Int64),
-        pl.col("reached_by").cast(pl.Int64),
         pl.col("breadth").cast(pl.Int64),
         pl.col("bought").cast(pl.Int64),
         pl.col("customers").cast(pl.Int64),
         pl.col("units").cast(pl.Float64),
     )
-    counted = rows.filter(pl.col("grp").is_not_null())
-    single = rows.filter(pl.col("grp").is_null())
+    single = rows.filter(pl.col("customer_id").is_not_null())
     people = [
-        single.filter(pl.col("k") == k)
-        .select("customer_id", "breadth", "bought", "units")
-        .unique("customer_id", keep="first", maintain_order=True)
+        single.filter((pl.col("k") == k) & pl.col("grp").fill_null(COMBINED).eq(COMBINED)).select(
+            "customer_id", "breadth", "bought", "units"
+        )
         for k in range(one_by_one + 1)
     ]
     reached = None
     if spec is not None and spec.rules:
-        reached = single.filter(pl.col("k") == 0).select(
-            "customer_id", pl.col("reached_by").alias("rule_rank")
+        reached = single.filter(pl.col("grp") != COMBINED).select(
+            "customer_id", pl.col("grp").alias("rule_rank")
         )
+    # Everyone lacking the target is the rows outside every rule (grp NULL) plus those of any
+    # rule (grp 0); the customers one by one count in their cutoff's cells too.
+    past = rows.filter(pl.col("k") >= 1)
+    everyone = past.filter(pl.col("grp").is_null() | (pl.col("grp") == COMBINED)).with_columns(
+        grp=pl.lit(EVERYONE, pl.Int64)
+    )
+    groups = past.filter(pl.col("grp").is_not_null())
+    cells = (
+        pl.concat([everyone, groups])
+        .group_by("k", "grp", "breadth", "bought")
+        .agg(pl.col("customers").sum(), pl.col("units").sum())
+        .sort("k", "grp", "breadth", "bought")
+    )
     return TakeUpCells(
         [
-            counted.filter(pl.col("k") == k).select(
-                "grp", "breadth", "bought", "customers", "units"
-            )
+            cells.filter(pl.col("k") == k).select("grp", "breadth", "bought", "customers", "units")
             for k in range(1, last + 1)
         ],
         people,

@@ -19,11 +19,11 @@
 -- Two shapes from the same definitions (parts below): "wide", one row per customer as above
 -- (estimate.takeup_history); and "cells", counted where the data is (estimate.takeup_cells): for
 -- every cutoff k >= 1, the customers lacking the target there grouped by (audience group,
--- breadth, bought) with their number and net units. Group -1 is everyone lacking the target;
--- a rule's rank is who that rule reaches at the cutoff (the CTEs of reach_at_cutoffs.sql, joined
--- in), 0 who any rule reaches: a few thousand rows however many customers there are. The same
--- pass gives the customers lacking the target at as_of one by one (customer_id, breadth; with
--- rules only those a rule reaches there, once per rule as reached_by): the list is made of them.
+-- breadth, bought) with their number and net units; a rule's rank is who that rule reaches at
+-- the cutoff (the CTEs of reach_at_cutoffs.sql, joined in), 0 who any rule reaches: a few
+-- thousand rows however many customers there are. The same pass gives the customers lacking the
+-- target at as_of one by one (customer_id, breadth; with rules only those a rule reaches there):
+-- the list is made of them.
 WITH
 -- part: ctes
 past AS (
@@ -132,38 +132,33 @@ people_at AS (
 )
 -- part: members
 members AS (
-    -- who each rule reaches at each cutoff (k = 0: as_of), and (as group 0) who any of them reaches
-    SELECT cutoff - 1 AS k, customer_id, rule_rank FROM reached
-    UNION ALL
-    SELECT DISTINCT cutoff - 1 AS k, customer_id, 0 AS rule_rank FROM reached
+    -- who each rule reaches at each cutoff (k = 0: as_of), and (as rank 0) who any of them
+    -- reaches: each reached row twice, once as itself and once as rank 0, then distinct
+    SELECT DISTINCT r.cutoff - 1 AS k, r.customer_id,
+                    CASE WHEN x.as_any = 1 THEN 0 ELSE r.rule_rank END AS rule_rank
+    FROM reached AS r
+    CROSS JOIN (VALUES (0), (1)) AS x (as_any)
 )
--- part: cells
--- one row per customer at k = 0 .. one_by_one (no grp), then the cells of the past cutoffs (no
--- customer_id); this order lets every engine type the NULL columns from the rows that have them
-{one_by_one_rows}
-UNION ALL
-SELECT k, -1 AS grp, NULL AS customer_id, NULL AS reached_by, breadth, bought, count(*) AS customers,
-       sum(units) AS units
-FROM people_at
-WHERE k >= 1
-GROUP BY k, breadth, bought{member_cells}
-ORDER BY k, grp, customer_id, reached_by, breadth, bought
--- part: one_by_one
-SELECT k, NULL AS grp, customer_id, NULL AS reached_by, breadth, bought, 1 AS customers, units
-FROM people_at
-WHERE k <= :one_by_one
--- part: one_by_one_reached
--- with rules, only the customers some rule reaches at as_of, once per rule that reaches them
-SELECT p.k, NULL AS grp, p.customer_id, m.rule_rank AS reached_by, p.breadth, p.bought,
-       1 AS customers, p.units
+-- part: cells_reached
+-- One select reading people_at and members once (an engine that does not keep a CTE's rows,
+-- Spark, would otherwise work each of them out again per reference). grp is the rank of the
+-- rule that reaches the customer at cutoff k, 0 for any rule, NULL for nobody (so everyone
+-- lacking the target = grp NULL + grp 0). At k = 0 (as_of) only the reached customers, one by
+-- one (customer_id set), once per rule and once as 0.
+SELECT p.k, m.rule_rank AS grp,
+       CASE WHEN p.k = 0 THEN p.customer_id END AS customer_id,
+       p.breadth, p.bought, count(*) AS customers, sum(p.units) AS units
 FROM people_at AS p
-JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
-WHERE p.k = 0 AND m.rule_rank <> 0
--- part: member_cells
-UNION ALL
-SELECT p.k, m.rule_rank AS grp, NULL AS customer_id, NULL AS reached_by, p.breadth, p.bought,
-       count(*) AS customers, sum(p.units) AS units
-FROM people_at AS p
-JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
-WHERE p.k >= 1
-GROUP BY p.k, m.rule_rank, p.breadth, p.bought
+LEFT JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
+WHERE p.k >= 1 OR m.rule_rank IS NOT NULL
+GROUP BY p.k, m.rule_rank, CASE WHEN p.k = 0 THEN p.customer_id END, p.breadth, p.bought
+ORDER BY k, grp, customer_id, breadth, bought
+-- part: cells_plain
+-- Without rules: everyone lacking the target, counted (grp NULL); at k = 0 .. one_by_one one by
+-- one (customer_id set).
+SELECT k, NULL AS grp,
+       CASE WHEN k <= :one_by_one THEN customer_id END AS customer_id,
+       breadth, bought, count(*) AS customers, sum(units) AS units
+FROM people_at
+GROUP BY k, CASE WHEN k <= :one_by_one THEN customer_id END, breadth, bought
+ORDER BY k, customer_id, breadth, bought
