@@ -261,16 +261,15 @@ def takeup_cells(
     )
     single = rows.filter(pl.col("customer_id").is_not_null())
     people = [
-        single.filter((pl.col("k") == k) & pl.col("grp").fill_null(COMBINED).eq(COMBINED)).select(
-            "customer_id", "breadth", "bought", "units"
-        )
+        single.filter(pl.col("k") == k)
+        .select("customer_id", "breadth", "bought", "units")
+        .unique("customer_id")
+        .sort("customer_id")
         for k in range(one_by_one + 1)
     ]
     reached = None
     if spec is not None and spec.rules:
-        reached = single.filter(pl.col("grp") != COMBINED).select(
-            "customer_id", pl.col("grp").alias("rule_rank")
-        )
+        reached = single.select("customer_id", pl.col("grp").alias("rule_rank"))
     # Everyone lacking the target is the rows outside every rule (grp NULL) plus those of any
     # rule (grp 0); the customers one by one count in their cutoff's cells too.
     past = rows.filter(pl.col("k") >= 1)

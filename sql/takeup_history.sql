@@ -144,13 +144,13 @@ members AS (
 -- Spark, would otherwise work each of them out again per reference). grp is the rank of the
 -- rule that reaches the customer at cutoff k, 0 for any rule, NULL for nobody (so everyone
 -- lacking the target = grp NULL + grp 0). At k = 0 (as_of) only the reached customers, one by
--- one (customer_id set), once per rule and once as 0.
+-- one (customer_id set), once per rule that reaches them.
 SELECT p.k, m.rule_rank AS grp,
        CASE WHEN p.k = 0 THEN p.customer_id END AS customer_id,
        p.breadth, p.bought, count(*) AS customers, sum(p.units) AS units
 FROM people_at AS p
 LEFT JOIN members AS m ON m.k = p.k AND m.customer_id = p.customer_id
-WHERE p.k >= 1 OR m.rule_rank IS NOT NULL
+WHERE p.k >= 1 OR m.rule_rank > 0
 GROUP BY p.k, m.rule_rank, CASE WHEN p.k = 0 THEN p.customer_id END, p.breadth, p.bought
 ORDER BY k, grp, customer_id, breadth, bought
 -- part: cells_plain

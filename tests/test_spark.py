@@ -100,6 +100,33 @@ def test_list_waterfall_and_estimate_equal_duckdb(spark: Warehouse, duck: Wareho
     assert on_spark.takeup.expected.high == pytest.approx(on_duck.takeup.expected.high)
 
 
+def test_an_estimate_from_customer_ids_equals_duckdb(
+    spark: Warehouse, duck: Warehouse, pristine: Path
+) -> None:
+    # no rules: the history comes back counted, with everyone lacking the target one by one at
+    # as-of and the latest cutoff (the ids stay in reachlist)
+    from reachlist.estimate import estimate_takeup
+    from reachlist.targets import Target
+
+    with duckdb.connect(str(pristine), read_only=True) as con:
+        ids = con.sql(
+            "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' ORDER BY 1"
+        ).pl()["customer_id"]
+    reports = [
+        estimate_takeup(wh, Target("sku", MAT), customers=ids, as_of=NOW, max_cutoffs=3)
+        for wh in (spark, duck)
+    ]
+    on_spark, on_duck = (r.as_dict() for r in reports)
+    assert on_spark.keys() == on_duck.keys()
+    for key, value in on_duck.items():
+        if isinstance(value, float | list):
+            assert on_spark[key] == pytest.approx(value), key
+        else:
+            assert on_spark[key] == value, key
+    assert_frame_equal(reports[0].backtests, reports[1].backtests)
+    assert reports[0].audience > 0 and reports[0].expected.n_backtests > 0
+
+
 def test_the_exported_list_is_byte_identical(
     spark: Warehouse, duck: Warehouse, tmp_path: Path
 ) -> None:
