@@ -1,5 +1,5 @@
-"""The estimate's history on DuckDB and Spark: one row per customer (the earlier form) against
-the history counted where the data is (cells), timed in one run, with what each brings back.
+"""The estimate's history on DuckDB and Spark, counted in reachlist from one row per customer
+(memory) or in the warehouse (engine), timed in one run, with what each brings back.
 
 Run by hand (not a test):
 
@@ -11,14 +11,15 @@ contract tables to Parquet (bench/spark_sizes.py's lake) and, with the audience 
 TARGET`` (rules mined on DuckDB), fetches the history of the default estimate (13 cutoffs, 30
 days) both ways on both engines, interleaved, counting the rows and bytes every query returns:
 
-  per customer   takeup_history (one row per customer, 4 columns per cutoff), who the rules
-                 reach at every cutoff (reach_at_cutoffs_query) and at as_of (reach_query): the
-                 three queries the estimate ran before the cells;
-  cells          takeup_cells: one query; the past cutoffs as (group, breadth, bought) counts,
-                 and one by one only the customers the rules reach at as_of.
+  memory   takeup_cells(counting="memory"): one row per customer (takeup_history, 4 columns per
+           cutoff) and who the rules reach at every cutoff (reach_at_cutoffs_query), counted
+           in reachlist; the default on one machine;
+  engine   takeup_cells(counting="engine"): one query; the past cutoffs come back as (group,
+           breadth, bought) counts, and one by one only the customers the rules reach at as_of;
+           the default on a Spark cluster.
 
-DuckDB derives the holdings inside each query here (no holdings file), as Spark does. Both ways
-must count the same customers and buyers at every cutoff. Prints medians and ratios.
+DuckDB derives the holdings inside each query (as Spark does) unless --holdings-file. Every way
+must give the same cells. Prints medians and ratios. --no-spark times DuckDB alone.
 """
 
 from __future__ import annotations
@@ -27,8 +28,8 @@ import argparse
 import statistics
 import sys
 import time
-from datetime import timedelta
 from pathlib import Path
+from typing import Any
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
@@ -38,10 +39,9 @@ from spark_sizes import export  # noqa: E402
 
 
 def main() -> None:
-    import polars as pl
 
-    from reachlist.audience import reach_at_cutoffs_query, reach_query
-    from reachlist.estimate import MAX_CUTOFFS, takeup_cells, takeup_history
+    from reachlist.estimate import MAX_CUTOFFS, takeup_cells
+    from reachlist.holdings import prepare
     from reachlist.planning import ListRequest, plan_list
     from reachlist.schema import Mapping
     from reachlist.targets import parse_target
@@ -52,45 +52,42 @@ def main() -> None:
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--master", default="local[2]")
     ap.add_argument("--target", default=TARGET)
+    ap.add_argument("--holdings-file", action="store_true", help="DuckDB reads the holdings file")
+    ap.add_argument("--no-spark", action="store_true", help="DuckDB only")
     args = ap.parse_args()
     path = warehouse(args.customers)
-    lake = export(path)
     target = parse_target(args.target)
     duck = Warehouse.open(path, read_only=True)
     spec = plan_list(duck, ListRequest(args.target)).spec
-    duck.holdings_table = None  # derive the holdings from the order lines, as Spark does
-    spark = Warehouse.open(f"spark://{args.master}", Mapping.from_dict({"lake": str(lake)}))
+    holdings = "deriving the holdings from the order lines, as Spark does"
+    if args.holdings_file:
+        holdings = f"reading the holdings file ({prepare(duck, refresh=False).state})"
+    else:
+        duck.holdings_table = None
+    engines = {"duckdb": duck}
+    if not args.no_spark:
+        lake = export(path)
+        engines["spark"] = Warehouse.open(
+            f"spark://{args.master}", Mapping.from_dict({"lake": str(lake)})
+        )
     as_of, horizon, last = spec.lookback.until, 30, MAX_CUTOFFS
-    ats = [as_of - timedelta(days=horizon * k) for k in range(1, last + 1)]
 
-    def per_customer(wh: Warehouse) -> list[tuple[int, int]]:
-        frames = takeup_history(wh, target, as_of, horizon, last)
-        wh.fetch(reach_at_cutoffs_query(spec, ats))
-        wh.fetch(reach_query(spec))
-        return [(f.height, int(f["bought"].sum())) for f in frames[1:]]
+    def counted(counting: str) -> Any:
+        def run(wh: Warehouse) -> list[Any]:
+            return takeup_cells(wh, target, as_of, horizon, last, spec, counting=counting).cells
 
-    def cells(wh: Warehouse) -> list[tuple[int, int]]:
-        taken = takeup_cells(wh, target, as_of, horizon, last, spec)
-        out = []
-        for c in taken.cells:
-            everyone = c.filter(pl.col("grp") == -1)
-            out.append(
-                (
-                    int(everyone["customers"].sum()),
-                    int((everyone["customers"] * everyone["bought"]).sum()),
-                )
-            )
-        return out
+        return run
 
-    meters = {"duckdb": Metered(duck.engine), "spark": Metered(spark.engine)}
-    cells(spark)  # warm the session
+    meters = {name: Metered(wh.engine) for name, wh in engines.items()}
+    if "spark" in engines:
+        counted("engine")(engines["spark"])  # warm the session
     runs: dict[tuple[str, str], list[float]] = {}
     sent: dict[tuple[str, str], tuple[int, int]] = {}
-    found: dict[tuple[str, str], list[tuple[int, int]]] = {}
-    ways = (("per customer", per_customer), ("cells", cells))
-    step, total = 0, 4 * args.repeats
+    found: dict[tuple[str, str], list[Any]] = {}
+    ways = (("memory", counted("memory")), ("engine", counted("engine")))
+    step, total = 0, 2 * len(engines) * args.repeats
     for r in range(args.repeats):
-        for engine, wh in (("duckdb", duck), ("spark", spark)):
+        for engine, wh in engines.items():
             for way, run in ways:
                 step += 1
                 print(f"step {step} of {total}: {engine} {way} (run {r + 1})", file=sys.stderr)
@@ -100,15 +97,17 @@ def main() -> None:
                 found[(engine, way)] = run(wh)
                 runs.setdefault((engine, way), []).append(time.perf_counter() - started)
                 sent[(engine, way)] = (meter.rows, meter.bytes)
-    first = found[("duckdb", "per customer")]
-    assert all(f == first for f in found.values()), "the ways disagree"
+    first = found[("duckdb", "memory")]
+    for got in found.values():
+        for a, b in zip(got, first, strict=True):
+            assert a.equals(b), "the ways disagree"
     print(
         f"{args.customers:,} customers; the default estimate's history for sizes {args.target} "
-        f"({len(spec.rules)} rules, {last} cutoffs); medians of {args.repeats} runs; the same "
-        f"customers and buyers at every cutoff all four ways"
+        f"({len(spec.rules)} rules, {last} cutoffs); DuckDB {holdings}; medians of "
+        f"{args.repeats} runs; the same cells every way"
     )
-    for engine in ("duckdb", "spark"):
-        base = statistics.median(runs[(engine, "per customer")])
+    for engine in engines:
+        base = statistics.median(runs[(engine, "memory")])
         for way, _ in ways:
             seconds = statistics.median(runs[(engine, way)])
             rows, size = sent[(engine, way)]
@@ -116,8 +115,8 @@ def main() -> None:
                 f"  {engine:<7}{way:<14}{seconds:8.2f} s {seconds / base:6.2f}x   "
                 f"to the driver: {rows:,} rows, {size / 2**20:.1f} MiB"
             )
-    spark.close()
-    duck.close()
+    for wh in engines.values():
+        wh.close()
 
 
 if __name__ == "__main__":

@@ -41,7 +41,12 @@ import numpy as np
 import polars as pl
 
 from reachlist import ids as ids_
-from reachlist.audience import AudienceSpec, reach_at_cutoffs_parts, reach_query
+from reachlist.audience import (
+    AudienceSpec,
+    reach_at_cutoffs_parts,
+    reach_at_cutoffs_query,
+    reach_query,
+)
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.query import Query, template_parts, with_parts
 from reachlist.stats import (
@@ -250,9 +255,24 @@ def takeup_cells(
     last: int,
     spec: AudienceSpec | None = None,
     one_by_one: int = 0,
+    counting: str | None = None,
 ) -> TakeUpCells:
-    """The take-up history of ``takeup_cells_query`` from one query: the past cutoffs as cells
-    (a result that does not grow with the number of customers), and the customers at as_of."""
+    """The take-up history at cutoffs k = 1 .. ``last`` as cells, and the customers at as_of.
+
+    ``counting="engine"`` counts in the warehouse (``takeup_cells_query``: one query whose
+    result does not grow with the customers); ``"memory"`` fetches one row per customer
+    (``takeup_history``) and who the rules reach (``reach_at_cutoffs_query``) and counts here.
+    The default follows the warehouse: in the engine on a cluster (Spark), in memory on one
+    machine, where the counting query measured slower (bench/estimate_history.py)."""
+    if counting is None:
+        counting = "engine" if wh.counts_in_engine else "memory"
+    if counting not in ("memory", "engine"):
+        raise InputError(
+            f"Expected counting to be memory or engine, found {counting!r}.",
+            hint="pass counting='memory' or counting='engine', or leave it out",
+        )
+    if counting == "memory":
+        return _cells_in_memory(wh, target, as_of, horizon, last, spec, one_by_one)
     q = takeup_cells_query(target, as_of, horizon, last, spec, one_by_one)
     rows = ids_.normalise_frame(wh.fetch(q)).with_columns(
         pl.col("k").cast(pl.Int64),
@@ -294,6 +314,66 @@ def takeup_cells(
         people,
         reached,
     )
+
+
+def _cells_in_memory(
+    wh: Warehouse,
+    target: Target,
+    as_of: datetime,
+    horizon: int,
+    last: int,
+    spec: AudienceSpec | None,
+    one_by_one: int,
+) -> TakeUpCells:
+    """``takeup_cells`` counted here from one row per customer: the same cells, customers and
+    reach as the counting query (the tests compare the two)."""
+    takeup_cells_query(target, as_of, horizon, last, spec, one_by_one)  # the same bounds
+    wide = [
+        f.with_columns(
+            pl.col("breadth").cast(pl.Int64),
+            pl.col("bought").cast(pl.Int64),
+            pl.col("units").cast(pl.Float64),
+        )
+        for f in takeup_history(wh, target, as_of, horizon, last)
+    ]
+    found = None
+    if spec is not None and spec.rules:
+        ats = [as_of - timedelta(days=horizon * k) for k in range(last + 1)]
+        found = ids_.normalise_frame(wh.fetch(reach_at_cutoffs_query(spec, ats))).select(
+            (pl.col("cutoff").cast(pl.Int64) - 1).alias("k"),
+            "customer_id",
+            pl.col("rule_rank").cast(pl.Int64),
+        )
+    cells = []
+    for k in range(1, last + 1):
+        people = wide[k]
+        groups = [people.with_columns(grp=pl.lit(EVERYONE, pl.Int64))]
+        if found is not None:
+            rules = found.filter(pl.col("k") == k).select("customer_id", "rule_rank")
+            anyone = (
+                rules.select("customer_id")
+                .unique()
+                .with_columns(rule_rank=pl.lit(COMBINED, pl.Int64))
+            )
+            groups += [
+                people.join(g, on="customer_id").rename({"rule_rank": "grp"})
+                for g in (rules, anyone)
+            ]
+        cells.append(
+            pl.concat(groups)
+            .group_by("grp", "breadth", "bought")
+            .agg(pl.len().cast(pl.Int64).alias("customers"), pl.col("units").sum())
+            .sort("grp", "breadth", "bought")
+        )
+    if found is None:
+        return TakeUpCells(cells, wide[: one_by_one + 1], None)
+    reached = (
+        found.filter(pl.col("k") == 0)
+        .select("customer_id", "rule_rank")
+        .join(wide[0].select("customer_id"), on="customer_id", how="semi")
+    )
+    now = wide[0].join(reached.select("customer_id").unique(), on="customer_id", how="semi")
+    return TakeUpCells(cells, [now.sort("customer_id")], reached)
 
 
 @dataclass(frozen=True)
@@ -580,6 +660,7 @@ def _history(
     spec: AudienceSpec | None,
     ids: pl.Series | None,
     max_cutoffs: int,
+    counting: str | None = None,
 ) -> _History:
     ats = _cutoffs(first_order_time(wh), as_of, horizon, max_cutoffs)
     if not ats:
@@ -591,7 +672,9 @@ def _history(
     ranks = [COMBINED] + ([r.rank for r in spec.rules] if spec is not None else [])
     # one pass: the past cutoffs as cells; the customers at as_of one by one (and, given only
     # ids, at the latest past cutoff too: the report's outside rate leaves the given ones out)
-    taken = takeup_cells(wh, target, as_of, horizon, len(ats), spec, 1 if spec is None else 0)
+    taken = takeup_cells(
+        wh, target, as_of, horizon, len(ats), spec, 1 if spec is None else 0, counting
+    )
     cells = list(taken.cells)
     if spec is None:
         assert ids is not None
@@ -752,8 +835,10 @@ def calibrate_audience(
     as_of: date | datetime | str | None = None,
     level: float = 0.9,
     max_cutoffs: int = MAX_CUTOFFS,
+    counting: str | None = None,
 ) -> Calibrated:
-    """Backtests and calibration for an audience definition; reads nothing at or after as_of."""
+    """Backtests and calibration for an audience definition; reads nothing at or after as_of.
+    ``counting`` is where the history is counted (see :func:`takeup_cells`)."""
     if horizon_days < 1:
         raise InputError(
             f"Expected a horizon of at least 1 day, found {horizon_days}.",
@@ -771,7 +856,7 @@ def calibrate_audience(
     else:
         when = last_order_day(wh)
     ids = None if customers is None else _as_ids(customers)
-    history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs)
+    history = _history(wh, target, when, horizon_days, spec, ids, max_cutoffs, counting)
     cal, weight, bt = _calibrated(history)
     now_people = history.now_people
     assert now_people is not None
@@ -829,6 +914,7 @@ def estimate_takeup(
     as_of: date | datetime | str | None = None,
     level: float = 0.9,
     max_cutoffs: int = MAX_CUTOFFS,
+    counting: str | None = None,
 ) -> TakeUpReport:
     """Expected buyers of ``target`` within ``horizon_days`` after ``as_of`` in an audience.
 
@@ -848,6 +934,7 @@ def estimate_takeup(
         as_of=as_of,
         level=level,
         max_cutoffs=max_cutoffs,
+        counting=counting,
     )
     given = ids.n_unique() if ids is not None else None
     return c.report(COMBINED, given=given)

@@ -103,8 +103,8 @@ def test_list_waterfall_and_estimate_equal_duckdb(spark: Warehouse, duck: Wareho
 def test_an_estimate_from_customer_ids_equals_duckdb(
     spark: Warehouse, duck: Warehouse, pristine: Path
 ) -> None:
-    # no rules: the history comes back counted, with everyone lacking the target one by one at
-    # as-of and the latest cutoff (the ids stay in reachlist)
+    # counted in Spark (as on a cluster) without rules: everyone lacking the target comes one by
+    # one at as-of and the latest cutoff (the ids stay in reachlist)
     from reachlist.estimate import estimate_takeup
     from reachlist.targets import Target
 
@@ -113,8 +113,10 @@ def test_an_estimate_from_customer_ids_equals_duckdb(
             "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' ORDER BY 1"
         ).pl()["customer_id"]
     reports = [
-        estimate_takeup(wh, Target("sku", MAT), customers=ids, as_of=NOW, max_cutoffs=3)
-        for wh in (spark, duck)
+        estimate_takeup(
+            wh, Target("sku", MAT), customers=ids, as_of=NOW, max_cutoffs=3, counting=counting
+        )
+        for wh, counting in ((spark, "engine"), (duck, "memory"))
     ]
     on_spark, on_duck = (r.as_dict() for r in reports)
     assert on_spark.keys() == on_duck.keys()
@@ -125,6 +127,23 @@ def test_an_estimate_from_customer_ids_equals_duckdb(
             assert on_spark[key] == value, key
     assert_frame_equal(reports[0].backtests, reports[1].backtests)
     assert reports[0].audience > 0 and reports[0].expected.n_backtests > 0
+
+
+def test_the_estimate_counted_in_spark_equals_duckdb(spark: Warehouse, duck: Warehouse) -> None:
+    # the rules' audiences at every cutoff joined into the history in Spark (a cluster's default)
+    from reachlist.estimate import calibrate_audience
+
+    plan = plan_list(duck, ListRequest(MAT), now=NOW)
+    both = [
+        calibrate_audience(wh, plan.target, spec=plan.spec, max_cutoffs=3, counting=counting)
+        for wh, counting in ((spark, "engine"), (duck, "memory"))
+    ]
+    for group in (0, *(r.rank for r in plan.spec.rules)):
+        on_spark, on_duck = (c.report(group).as_dict() for c in both)
+        assert on_spark["expected_buyers"] == pytest.approx(on_duck["expected_buyers"])
+        assert on_spark["interval"] == pytest.approx(on_duck["interval"])
+        assert on_spark["audience"] == on_duck["audience"] > 0
+    assert_frame_equal(both[0].customer_rates(), both[1].customer_rates())
 
 
 def test_the_exported_list_is_byte_identical(

@@ -198,9 +198,21 @@ def _same_cells(got: list[pl.DataFrame], want: list[pl.DataFrame]) -> None:
 
 
 def _check_cells(wh: Warehouse, tgt: Target, as_of: datetime, horizon: int, last: int, spec):
+    """Both ways of counting the history (in the warehouse, and here from one row per customer)
+    against the per-customer history and reach counted by this test; returns the engine's."""
+    got = _check_cells_counted(wh, tgt, as_of, horizon, last, spec, "engine")
+    mem = _check_cells_counted(wh, tgt, as_of, horizon, last, spec, "memory")
+    _same_cells(mem.cells, got.cells)
+    _same(mem.people, got.people)
+    if spec is not None:
+        _same_reach([mem.reached], [got.reached])
+    return got
+
+
+def _check_cells_counted(wh, tgt, as_of, horizon, last, spec, counting):
     wide = takeup_history(wh, tgt, as_of, horizon, last)
     if spec is None:
-        got = takeup_cells(wh, tgt, as_of, horizon, last, one_by_one=1)
+        got = takeup_cells(wh, tgt, as_of, horizon, last, one_by_one=1, counting=counting)
         _same_cells(got.cells, _cells_from_people(wide, None))
         _same(got.people, wide[:2])  # everyone one by one at as_of and the latest cutoff
         assert got.reached is None
@@ -208,7 +220,7 @@ def _check_cells(wh: Warehouse, tgt: Target, as_of: datetime, horizon: int, last
     # with rules: at as_of one by one only the customers a rule reaches, and who reaches them
     ats = [as_of - timedelta(days=horizon * k) for k in range(last + 1)]
     reach = _reach_one_by_one(wh, spec, ats)
-    got = takeup_cells(wh, tgt, as_of, horizon, last, spec)
+    got = takeup_cells(wh, tgt, as_of, horizon, last, spec, counting=counting)
     _same_cells(got.cells, _cells_from_people(wide, reach[1:]))
     reached_now = wide[0].join(reach[0].select("customer_id").unique(), on="customer_id")
     _same(got.people, [reached_now.sort("customer_id")])
@@ -246,6 +258,23 @@ def test_cells_count_a_real_history(slice_db: tuple) -> None:
     assert spec.rules and got.cells[0].height > 0
 
 
+def test_the_estimate_is_the_same_counted_either_way(pristine: Path) -> None:
+    from reachlist.estimate import calibrate_audience
+
+    with Warehouse.open(pristine, read_only=True) as wh:
+        plan = plan_list(wh, ListRequest("SG04-104"), now=datetime(2026, 10, 1))
+        both = [
+            calibrate_audience(wh, plan.target, spec=plan.spec, counting=c)
+            for c in ("memory", "engine")
+        ]
+        with pytest.raises(InputError, match="counting to be memory or engine"):
+            calibrate_audience(wh, plan.target, spec=plan.spec, counting="cluster")
+    for group in (COMBINED, *(r.rank for r in plan.spec.rules)):
+        assert both[0].report(group).as_dict() == both[1].report(group).as_dict()
+    assert both[0].customer_rates().equals(both[1].customer_rates())
+    assert both[0].backtests.equals(both[1].backtests)
+
+
 def test_cells_are_bounded() -> None:
     with pytest.raises(InputError, match="1 to 60 past cutoffs"):
         takeup_cells_query(Target("sku", "X"), datetime(2026, 1, 1), 30, 0)
@@ -265,7 +294,7 @@ def test_postgres_counts_the_same_cells(tmp_path: Path, pg_url: str, pg_schema: 
         Warehouse.open(world, read_only=True) as dk,
     ):
         on_pg = _check_cells(pg, cases.TARGET, as_of, horizon, last, spec)
-        on_dk = takeup_cells(dk, cases.TARGET, as_of, horizon, last, spec)
+        on_dk = takeup_cells(dk, cases.TARGET, as_of, horizon, last, spec, counting="engine")
         no_rules = _check_cells(pg, cases.TARGET, as_of, horizon, last, None)
     _same_cells(on_pg.cells, on_dk.cells)
     _same(on_pg.people, on_dk.people)
