@@ -7,9 +7,10 @@ here is learnt from the warehouse's own past, never from confidence:
    ``max_cutoffs``). At each, every customer who lacks the target gets a shopping breadth
    (distinct categories held in the 12 months before the cutoff) and an outcome (bought the target
    within the horizon after it): ``sql/forward_takeup.sql`` for one cutoff; the estimate asks
-   ``sql/takeup_history.sql`` for all of them at once, counted in the warehouse by audience group,
-   breadth and outcome (:func:`takeup_cells`), so what comes back does not grow with the
-   customers, apart from those the rules reach at ``as_of`` (the list is made of them).
+   ``sql/takeup_history.sql`` for all of them at once and :func:`takeup_cells` turns them into
+   counts by audience group, breadth and outcome: here from one row per customer on one
+   machine, in the warehouse on a cluster (then what comes back does not grow with the
+   customers, apart from those the rules reach at ``as_of``: the list is made of them).
 2. The raw prediction for an audience is breadth-matched: forward take-up per breadth decile at
    the latest complete cutoff (one horizon before ``as_of``), applied to the audience's breadth
    mix (:func:`reachlist.stats.breadth_matched_expectation`).
