@@ -81,10 +81,17 @@ def test_cutoffs_are_bounded() -> None:
         takeup_history_query(Target("sku", "X"), datetime(2026, 1, 1), 30, 61)
 
 
-@pytest.mark.postgres
-def test_postgres_gives_the_same_history(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
+def _world_on_postgres(tmp_path: Path, pg_url: str, pg_schema: str) -> tuple[Path, AudienceSpec]:
+    """The hand-made world in DuckDB, copied to PostgreSQL, and an audience of its rules."""
     world = cases.build_world(tmp_path / "world.duckdb")
     copy_warehouse(str(world), pg_url, schema=pg_schema)
+    rules = choose_rules(ref.make_ruleset(cases.TARGET, cases.RULES))
+    return world, AudienceSpec(cases.TARGET, rules, "sku", cases.WINDOW)
+
+
+@pytest.mark.postgres
+def test_postgres_gives_the_same_history(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
+    world, _ = _world_on_postgres(tmp_path, pg_url, pg_schema)
     as_of, horizon, last = cases.WINDOW.until, 30, 6
     with (
         Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as pg,
@@ -130,10 +137,7 @@ def test_reach_at_every_cutoff_equals_one_query_per_cutoff(pristine: Path) -> No
 
 @pytest.mark.postgres
 def test_postgres_reaches_the_same_customers(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
-    world = cases.build_world(tmp_path / "world.duckdb")
-    copy_warehouse(str(world), pg_url, schema=pg_schema)
-    rules = choose_rules(ref.make_ruleset(cases.TARGET, cases.RULES))
-    spec = AudienceSpec(cases.TARGET, rules, "sku", cases.WINDOW)
+    world, spec = _world_on_postgres(tmp_path, pg_url, pg_schema)
     ats = [cases.WINDOW.until - timedelta(days=d) for d in (0, 45, 120)]
     with (
         Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as pg,
@@ -284,10 +288,7 @@ def test_cells_are_bounded() -> None:
 
 @pytest.mark.postgres
 def test_postgres_counts_the_same_cells(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
-    world = cases.build_world(tmp_path / "world.duckdb")
-    copy_warehouse(str(world), pg_url, schema=pg_schema)
-    rules = choose_rules(ref.make_ruleset(cases.TARGET, cases.RULES))
-    spec = AudienceSpec(cases.TARGET, rules, "sku", cases.WINDOW)
+    world, spec = _world_on_postgres(tmp_path, pg_url, pg_schema)
     as_of, horizon, last = cases.WINDOW.until, 30, 6
     with (
         Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as pg,
