@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import hashlib
 
+import numpy as np
 import polars as pl
 
 from reachlist.errors import InputError
@@ -71,11 +72,16 @@ def assign_holdout(campaign_id: str, customer_ids: pl.Series, share: float) -> p
     """A boolean Series, true for customers in the holdout."""
     check_share(share)
     prefix = f"{campaign_id}:".encode()
-    values = [
-        int.from_bytes(hashlib.sha256(prefix + id_text(c).encode()).digest()[:8], "big") / _SCALE
-        < share
-        for c in customer_ids.to_list()
-    ]
+    texts = customer_ids  # as `id_text` writes them: text as stored, integers in decimal
+    if not (texts.dtype == pl.String or texts.dtype.is_integer()):
+        texts = texts.cast(pl.Int64)
+    sha = hashlib.sha256
+    # the first 8 bytes of each digest side by side, read as big-endian integers: the same
+    # numbers as int.from_bytes in `bucket`, and the same float conversion and division
+    heads = b"".join(
+        [sha(prefix + t.encode()).digest()[:8] for t in texts.cast(pl.String).to_list()]
+    )
+    values = np.frombuffer(heads, dtype=">u8").astype(np.float64) / _SCALE < share
     return pl.Series("holdout", values, dtype=pl.Boolean)
 
 

@@ -342,6 +342,16 @@ def test_holdout_is_stable_and_close_to_its_share() -> None:
     assert part.to_list() == mask.slice(5000, 100).to_list()
     assert assign_holdout("autumn", ids, 0.1).to_list() != mask.to_list()
     assert in_holdout("spring-mats", 1042, 0.10) is (bucket("spring-mats", 1042) < 0.1)
+    # text ids hash as stored, narrower integer types as their decimal text
+    codes = pl.Series("customer_id", [f"CRM-{i:05d}-ü" for i in range(3000)])
+    assert assign_holdout("spring", codes, 0.2).to_list() == [
+        bucket("spring", c) < 0.2 for c in codes.to_list()
+    ]
+    small = pl.Series("customer_id", range(-50, 3000), dtype=pl.Int16)
+    assert assign_holdout("spring", small, 0.3).to_list() == [
+        bucket("spring", c) < 0.3 for c in range(-50, 3000)
+    ]
+    assert assign_holdout("spring", ids.slice(0, 0), 0.1).len() == 0
 
 
 # -- holdouts of live campaigns and the email channel ---------------------------------------------
