@@ -15,7 +15,7 @@ from datetime import UTC, date, datetime, timedelta
 from typing import Literal
 
 from reachlist.errors import InputError
-from reachlist.query import Query
+from reachlist.query import Query, template_parts, with_parts
 from reachlist.warehouse import Warehouse
 from reachlist.wording import option
 
@@ -277,15 +277,23 @@ def held_items_query(
         params = {"since": day_of(window.since), "until": day_of(window.until)}
     else:
         params = {"since": window.since, "until": window.until}
-    only_item = ""
     if only is not None:
         params["only_item"] = only
-        only_item = f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
+    if basket == "customer":
+        parts = template_parts("held_items")
+        if level == "sku":
+            final = parts["held_sku_pairs"].format(
+                only_sku="" if only is None else "\n  AND h.sku = :only_item"
+            )
+        else:
+            final = parts["held_pairs"].format(
+                level=LEVEL_COLUMN[level],
+                only_item="" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item",
+            )
+        return Query(with_parts([parts["held_skus"]], final), params, label="held_items")
+    only_item = "" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
     return Query.from_template(
-        "held_items" if basket == "customer" else "held_order_items",
-        params,
-        level=LEVEL_COLUMN[level],
-        only_item=only_item,
+        "held_order_items", params, level=LEVEL_COLUMN[level], only_item=only_item
     )
 
 
