@@ -13,6 +13,7 @@ exclusions themselves are applied in a fixed order by ``reachlist.exclusions``.
 
 from __future__ import annotations
 
+import itertools
 import math
 import re
 from dataclasses import dataclass, field
@@ -354,14 +355,26 @@ def reach_at_cutoffs_parts(
 ) -> tuple[list[str], dict[str, Any]]:
     """The common table expressions of :func:`reach_at_cutoffs_query`, ending with ``reached``
     (cutoff, customer_id, rule_rank), and their values: for a query that joins who the rules
-    reach into something else (estimate.takeup_cells)."""
+    reach into something else (estimate.takeup_cells). ``cutoffs`` run back from the latest in
+    equal steps of whole days (as the estimate's do)."""
     if not spec.rules or not cutoffs:
         raise ValueError("reach_at_cutoffs_query needs rules and cutoffs")
     length = spec.lookback.until - spec.lookback.since
-    params: dict[str, Any] = {"antecedent_items": spec.antecedent_items}
-    for c, at in enumerate(cutoffs, start=1):
-        params[f"since_{c}"] = day_of(at - length)
-        params[f"until_{c}"] = day_of(at)
+    steps = {(a - b) for a, b in itertools.pairwise(cutoffs)}
+    step = steps.pop() if steps else timedelta(days=1)
+    if steps or step.days <= 0 or step % timedelta(days=1) or len(cutoffs) > MOST_CUTOFF_BITS:
+        raise ValueError(
+            f"reach_at_cutoffs_query needs up to {MOST_CUTOFF_BITS} cutoffs, latest first, in "
+            "equal steps of whole days"
+        )
+    params: dict[str, Any] = {
+        "antecedent_items": spec.antecedent_items,
+        "reach_until": day_of(cutoffs[0]),
+        "reach_since": day_of(cutoffs[-1] - length),
+        "reach_days": length.days,
+        "reach_step": step.days,
+        "reach_last": len(cutoffs) - 1,
+    }
     for r in spec.rules:
         params[f"rule_{r.rank}_items"] = list(r.antecedent)
         params[f"rule_{r.rank}_size"] = len(r.antecedent)
@@ -369,14 +382,15 @@ def reach_at_cutoffs_parts(
     ctes = [
         parts["ctes"].format(
             level=LEVEL_COLUMN[spec.level],
-            cutoff_rows="\n    UNION ALL\n".join(
-                _PARTS["cutoff_row"].format(c=c) for c in range(1, len(cutoffs) + 1)
-            ),
+            cutoff_numbers="(VALUES " + ", ".join(f"({k})" for k in range(len(cutoffs))) + ")",
         ),
         *(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
         parts["reached_cte"].format(reached_union=_reached_union(spec)),
     ]
     return ctes, params
+
+
+MOST_CUTOFF_BITS = 62  # cutoffs are bits of a BIGINT mask in sql/reach_at_cutoffs.sql
 
 
 def _reached_union(spec: AudienceSpec) -> str:

@@ -49,18 +49,17 @@ SELECT customer_id, rule_rank
 FROM reached
 ORDER BY rule_rank, customer_id
 
--- part: cutoff_row
-    SELECT {c} AS cutoff, CAST(:since_{c} AS DATE) AS since, CAST(:until_{c} AS DATE) AS until
-
 -- part: cutoff_rule_block
 rule_{k} AS (
-    -- (cutoff, customer) pairs holding every antecedent item of rule {k}
-    SELECT cutoff, customer_id
+    -- (customer, cutoffs) of rule {k}: bit k set where every antecedent item is held
+    SELECT customer_id, bit_and(bits) AS bits
     FROM held
     WHERE item IN (:rule_{k}_items)
-    GROUP BY cutoff, customer_id
-    HAVING count(*) = :rule_{k}_size
+    GROUP BY customer_id
+    HAVING count(*) = :rule_{k}_size AND bit_and(bits) <> 0
 )
 
 -- part: cutoff_reached_line
-    SELECT cutoff, customer_id, {k} AS rule_rank FROM rule_{k}
+    SELECT ks.k + 1 AS cutoff, r.customer_id, {k} AS rule_rank
+    FROM rule_{k} AS r
+    JOIN cutoff_numbers AS ks ON ((r.bits >> ks.k) & 1) = 1

@@ -1,26 +1,63 @@
 -- Who each chosen rule reaches at each of several past cutoffs, in one pass over the holdings:
 -- customers holding every antecedent item of the rule inside the lookback window that ends at
--- the cutoff (every window as long as the list's own). "Holds" as in audience.sql: net quantity
--- over the window's days positive. One row per (cutoff, customer, rule).
+-- the cutoff (every window as long as the list's own, :reach_days). "Holds" as in audience.sql:
+-- net quantity over the window's days positive. One row per (cutoff, customer, rule).
+-- Cutoff c (from 1) is :reach_until minus (c - 1) steps of :reach_step days, so a day :age days
+-- before :reach_until lies in the window of cutoff k = c - 1 exactly when
+-- k * step < age <= k * step + days: for a customer-SKU pair without a return, the cutoffs that
+-- hold it are a run k_lo .. k_hi worked out from each day's age (bit k of a mask, no join to
+-- the cutoffs); the few pairs with a return are netted window by window. A rule reaches a
+-- customer at cutoff k when bit k is set for every item of the rule.
 -- Written as parts: estimate.takeup_cells joins the same CTEs into the take-up history.
 WITH
 -- part: ctes
-cutoffs AS (
-{cutoff_rows}
-),
-antecedent_skus AS (
-    SELECT c.cutoff, h.customer_id, h.sku
+antecedent_days AS (
+    -- the antecedent SKUs' days inside the earliest window's start .. the first cutoff
+    SELECT h.customer_id, h.sku, h.quantity, DAYS_BETWEEN(h.order_day, :reach_until) AS age
     FROM holdings AS h
-    JOIN cutoffs AS c ON h.order_day >= c.since AND h.order_day < c.until
     WHERE h.sku IN (SELECT sku FROM products WHERE {level} IN (:antecedent_items))
-    GROUP BY c.cutoff, h.customer_id, h.sku
-    HAVING sum(h.quantity) > 0
+      AND h.order_day >= :reach_since
+      AND h.order_day < :reach_until
+),
+antecedent_returned AS (
+    SELECT DISTINCT customer_id, sku FROM antecedent_days WHERE quantity < 0
+),
+antecedent_runs AS (
+    SELECT d.customer_id, d.sku,
+           CASE WHEN d.age <= :reach_days THEN 0
+                ELSE CAST(FLOOR((d.age - :reach_days + :reach_step - 1) * 1.0 / :reach_step) AS INTEGER)
+           END                                                                         AS k_lo,
+           LEAST(:reach_last, CAST(FLOOR((d.age - 1) * 1.0 / :reach_step) AS INTEGER)) AS k_hi
+    FROM antecedent_days AS d
+    LEFT JOIN antecedent_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
+    WHERE r.customer_id IS NULL AND d.quantity > 0
+),
+antecedent_bits AS (
+    -- bit k set: the customer holds the SKU in cutoff k's window
+    SELECT customer_id, sku,
+           (CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo) AS bits
+    FROM antecedent_runs
+    WHERE k_lo <= k_hi
+    UNION ALL
+    SELECT d.customer_id, d.sku, CAST(1 AS BIGINT) << ks.k AS bits
+    FROM antecedent_days AS d
+    JOIN antecedent_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
+    CROSS JOIN {cutoff_numbers} AS ks (k)
+    WHERE d.age > ks.k * :reach_step AND d.age <= ks.k * :reach_step + :reach_days
+    GROUP BY d.customer_id, d.sku, ks.k
+    HAVING sum(d.quantity) > 0
 ),
 held AS (
-    SELECT DISTINCT h.cutoff, h.customer_id, p.{level} AS item
-    FROM antecedent_skus AS h
-    JOIN products AS p ON p.sku = h.sku
-    WHERE p.{level} IN (:antecedent_items)
+    -- bit k set: the customer holds the item (at the rules' level) in cutoff k's window
+    SELECT b.customer_id, p.item, bit_or(b.bits) AS bits
+    FROM antecedent_bits AS b
+    JOIN (SELECT DISTINCT sku, {level} AS item
+          FROM products
+          WHERE {level} IN (:antecedent_items)) AS p ON p.sku = b.sku
+    GROUP BY b.customer_id, p.item
+),
+cutoff_numbers AS (
+    SELECT k FROM {cutoff_numbers} AS ks (k)
 )
 -- part: select
 SELECT cutoff, customer_id, rule_rank

@@ -138,7 +138,7 @@ def test_reach_at_every_cutoff_equals_one_query_per_cutoff(pristine: Path) -> No
 @pytest.mark.postgres
 def test_postgres_reaches_the_same_customers(tmp_path: Path, pg_url: str, pg_schema: str) -> None:
     world, spec = _world_on_postgres(tmp_path, pg_url, pg_schema)
-    ats = [cases.WINDOW.until - timedelta(days=d) for d in (0, 45, 120)]
+    ats = [cases.WINDOW.until - timedelta(days=d) for d in (0, 45, 90)]
     with (
         Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as pg,
         Warehouse.open(world, read_only=True) as dk,
@@ -147,6 +147,18 @@ def test_postgres_reaches_the_same_customers(tmp_path: Path, pg_url: str, pg_sch
         _same_reach(on_pg, _reach_one_by_one(pg, spec, ats))
         _same_reach(on_pg, _reach_at_once(dk, spec, ats))
     assert on_pg[0].height > 0
+
+
+def test_reach_at_cutoffs_needs_equal_steps(pristine: Path) -> None:
+    with Warehouse.open(pristine, read_only=True) as wh:
+        spec = plan_list(wh, ListRequest("SG04-104"), now=datetime(2026, 10, 1)).spec
+    at = datetime(2026, 9, 1)
+    for ats in (
+        [at, at - timedelta(days=30), at - timedelta(days=75)],
+        [at - timedelta(days=30), at],
+    ):
+        with pytest.raises(ValueError, match="equal steps of whole days"):
+            reach_at_cutoffs_query(spec, ats)
 
 
 # -- the history counted in the warehouse --------------------------------------------------------
