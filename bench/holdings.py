@@ -4,6 +4,7 @@ Run by hand (not a test):
 
     .venv/bin/python bench/holdings.py                   # bench/results/garden-1000000.duckdb
     .venv/bin/python bench/holdings.py --customers 100000 --repeats 3
+    .venv/bin/python bench/holdings.py --steps rules,pyfim        # some steps only
 
 On the sample warehouse of the given size (built under bench/results/ when missing) it times, in
 one run, each step in a fresh process (so peak memory is that step's own):
@@ -104,7 +105,14 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--customers", type=int, default=1_000_000)
     ap.add_argument("--repeats", type=int, default=3)
+    ap.add_argument(
+        "--steps",
+        default="scan,build,rules,pyfim,sizes,bare",
+        help="which steps, comma-separated (bare: sizes without the holdings file); the scan "
+        "always runs, as every ratio needs it",
+    )
     args = ap.parse_args()
+    chosen = {"scan", *args.steps.split(",")}
     path = warehouse(args.customers)
     side = path.with_name(path.name.removesuffix(".duckdb") + ".holdings.duckdb")
     w = ["-w", str(path)]
@@ -116,8 +124,10 @@ def main() -> None:
         ("pyfim", lambda: python_step(PYFIM.format(**opts))),
         ("sizes", lambda: command_step(["sizes", TARGET, *w])),
     ]
+    steps = [(name, fn) for name, fn in steps if name in chosen]
+    bare = args.repeats if "bare" in chosen else 0
     results: dict[str, list[tuple[float, float]]] = {}
-    total = len(steps) * args.repeats + args.repeats
+    total = len(steps) * args.repeats + bare
     n = 0
     for r in range(args.repeats):  # interleaved, so a noisy minute hits every step alike
         for name, fn in steps:
@@ -127,7 +137,7 @@ def main() -> None:
     moved = side.with_name(side.name + ".away")
     os.replace(side, moved)
     try:
-        for r in range(args.repeats):
+        for r in range(bare):
             n += 1
             print(f"step {n} of {total}: sizes without holdings (run {r + 1})", file=sys.stderr)
             results.setdefault("sizes (no holdings)", []).append(
@@ -145,9 +155,10 @@ def main() -> None:
         sec = statistics.median(s for s, _ in runs)
         peak = max(p for _, p in runs)
         print(f"  {name:<20} {sec:7.2f} s  {sec / scan:5.2f} scans  peak {peak:6,.0f} MiB")
-    rules = statistics.median(s for s, _ in results["rules"])
-    pyfim = statistics.median(s for s, _ in results["pyfim"])
-    print(f"  pyfim / reachlist rules: {pyfim / rules:.1f}x")
+    if "rules" in results and "pyfim" in results:
+        rules = statistics.median(s for s, _ in results["rules"])
+        pyfim = statistics.median(s for s, _ in results["pyfim"])
+        print(f"  pyfim / reachlist rules: {pyfim / rules:.1f}x")
 
 
 if __name__ == "__main__":
