@@ -141,6 +141,12 @@ def _history_slots(
     slots = {
         "target_level": LEVEL_COLUMN[target.level],
         "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
+        "returned_bits": "\n         + ".join(
+            f"           CASE WHEN sum(CASE WHEN p.age > {k} * :horizon "
+            f"AND p.age <= {k} * :horizon + :breadth_days THEN p.quantity ELSE 0 END) > 0 "
+            f"THEN CAST(1 AS BIGINT) << {k} ELSE 0 END"
+            for k in ks
+        ),
         "breadth_columns": ",\n".join(
             f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
         ),

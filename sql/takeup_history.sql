@@ -45,15 +45,15 @@ plain_days AS (
     LEFT JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
     WHERE r.customer_id IS NULL AND p.quantity > 0
 ),
-returned_windows AS (
-    -- pairs with a return: the net quantity in each cutoff's breadth window
-    SELECT p.customer_id, p.sku, ks.k
+returned_bits AS (
+    -- pairs with a return: bit k set where the net quantity over cutoff k's breadth window is
+    -- positive (one conditional sum per cutoff, in one pass over the pairs' days)
+    SELECT p.customer_id, p.sku,
+{returned_bits}
+           AS bits
     FROM past AS p
     JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
-    CROSS JOIN {cutoff_numbers} AS ks (k)
-    WHERE p.age > ks.k * :horizon AND p.age <= ks.k * :horizon + :breadth_days
-    GROUP BY p.customer_id, p.sku, ks.k
-    HAVING sum(p.quantity) > 0
+    GROUP BY p.customer_id, p.sku
 ),
 held_bits AS (
     -- bit k set: the customer holds the SKU in cutoff k's breadth window
@@ -62,8 +62,9 @@ held_bits AS (
     FROM plain_days
     WHERE k_lo <= k_hi
     UNION ALL
-    SELECT customer_id, sku, CAST(1 AS BIGINT) << k AS bits
-    FROM returned_windows
+    SELECT customer_id, sku, bits
+    FROM returned_bits
+    WHERE bits <> 0
 ),
 category_bits AS (
     SELECT h.customer_id, pr.category, bit_or(h.bits) AS bits
