@@ -150,10 +150,18 @@ def _history_slots(
         "breadth_columns": ",\n".join(
             f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
         ),
-        "target_columns": ",\n".join(
-            f"           max(CASE WHEN k = {k} THEN {col} END) AS {col}_{k}"
+        "target_sums": ",\n".join(
+            f"           sum(CASE WHEN t.age > {k} * :horizon THEN t.quantity ELSE 0 END) "
+            f"AS before_{k},\n"
+            f"           sum(CASE WHEN t.age <= {k} * :horizon AND t.age > {k - 1} * :horizon "
+            f"THEN t.quantity ELSE 0 END) AS in_{k}"
             for k in ks
-            for col in ("had", "bought", "units")
+        ),
+        "target_columns": ",\n".join(
+            f"           max(CASE WHEN before_{k} > 0 THEN 1 ELSE 0 END) AS had_{k},\n"
+            f"           max(CASE WHEN in_{k} > 0 THEN 1 ELSE 0 END) AS bought_{k},\n"
+            f"           sum(CASE WHEN in_{k} > 0 THEN in_{k} ELSE 0 END) AS units_{k}"
+            for k in ks
         ),
     }
     return params, slots
@@ -225,7 +233,8 @@ def takeup_cells_query(
         )
     params, slots = _history_slots(target, as_of, horizon, last)
     params["one_by_one"] = one_by_one
-    slots["breadth_cases"] = " ".join(f"WHEN {k} THEN b.breadth_{k}" for k in range(last + 1))
+    for col, src in (("breadth", "b"), ("had", "t"), ("bought", "t"), ("units", "t")):
+        slots[f"{col}_cases"] = " ".join(f"WHEN {k} THEN {src}.{col}_{k}" for k in range(last + 1))
     parts = template_parts("takeup_history")
     ctes = [parts["ctes"].format(**slots), parts["people_at"].format(**slots)]
     final = parts["cells_plain"]

@@ -85,29 +85,21 @@ breadth AS (
     FROM category_bits
     GROUP BY customer_id
 ),
-target_net AS (
-    -- each customer's net quantity of each target SKU before each cutoff and in its horizon
-    SELECT t.customer_id, t.sku, ks.k,
-           sum(CASE WHEN t.age > ks.k * :horizon THEN t.quantity ELSE 0 END) AS before_cutoff,
-           sum(CASE WHEN t.age <= ks.k * :horizon AND t.age > (ks.k - 1) * :horizon
-                    THEN t.quantity ELSE 0 END)                           AS in_horizon
+target_pairs AS (
+    -- each customer's net quantity of each target SKU before each cutoff and in its horizon:
+    -- one conditional sum per cutoff in one pass over the target's days
+    SELECT t.customer_id, t.sku,
+{target_sums}
     FROM past AS t
-    CROSS JOIN {cutoff_numbers} AS ks (k)
     WHERE t.sku IN (SELECT sku FROM products WHERE {target_level} = :target)
-    GROUP BY t.customer_id, t.sku, ks.k
-),
-target_by_cutoff AS (
-    SELECT customer_id, k,
-           max(CASE WHEN before_cutoff > 0 THEN 1 ELSE 0 END)          AS had,
-           max(CASE WHEN in_horizon > 0 THEN 1 ELSE 0 END)             AS bought,
-           sum(CASE WHEN in_horizon > 0 THEN in_horizon ELSE 0 END)    AS units
-    FROM target_net
-    GROUP BY customer_id, k
+    GROUP BY t.customer_id, t.sku
 ),
 target AS (
+    -- had_k: holds a target SKU before cutoff k; bought_k: holds one over its horizon, with
+    -- units_k the net units of those SKUs there
     SELECT customer_id,
 {target_columns}
-    FROM target_by_cutoff
+    FROM target_pairs
     GROUP BY customer_id
 ),
 population AS (
@@ -129,13 +121,13 @@ people_at AS (
     -- one row per customer and cutoff k at which they are a customer lacking the target
     SELECT pop.customer_id, ks.k,
            CAST(coalesce(CASE ks.k {breadth_cases} END, 0) AS INTEGER) AS breadth,
-           coalesce(t.bought, 0)                                      AS bought,
-           CAST(coalesce(t.units, 0) AS DOUBLE PRECISION)             AS units
+           coalesce(CASE ks.k {bought_cases} END, 0)                  AS bought,
+           CAST(coalesce(CASE ks.k {units_cases} END, 0) AS DOUBLE PRECISION) AS units
     FROM population AS pop
     CROSS JOIN {cutoff_numbers} AS ks (k)
     LEFT JOIN breadth AS b ON b.customer_id = pop.customer_id
-    LEFT JOIN target_by_cutoff AS t ON t.customer_id = pop.customer_id AND t.k = ks.k
-    WHERE pop.first_age > ks.k * :horizon AND coalesce(t.had, 0) = 0
+    LEFT JOIN target AS t ON t.customer_id = pop.customer_id
+    WHERE pop.first_age > ks.k * :horizon AND coalesce(CASE ks.k {had_cases} END, 0) = 0
 )
 -- part: members
 members AS (
