@@ -198,13 +198,16 @@ def takeup_history(
     wide = ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
     out = []
     for k in range(last + 1):
-        out.append(
-            wide.filter((pl.col("first_age") > k * horizon) & (pl.col(f"had_{k}") == 0)).select(
+        out.append(  # lazily, so only the cutoff's own columns are filtered
+            wide.lazy()
+            .filter((pl.col("first_age") > k * horizon) & (pl.col(f"had_{k}") == 0))
+            .select(
                 "customer_id",
                 pl.col(f"breadth_{k}").alias("breadth"),
                 pl.col(f"bought_{k}").alias("bought"),
                 pl.col(f"units_{k}").alias("units"),
             )
+            .collect()
         )
     return out
 
@@ -360,12 +363,17 @@ def _cells_in_memory(
             "customer_id",
             pl.col("rule_rank").cast(pl.Int64),
         )
+    by_k: dict[int, pl.DataFrame] = {}
+    if found is not None:  # one pass over the reach (millions of rows), not one per cutoff
+        empty = found.clear().select("customer_id", "rule_rank")
+        parts = found.partition_by("k", as_dict=True, include_key=False)
+        by_k = {k: parts.get((k,), empty) for k in range(last + 1)}
     cells = []
     for k in range(1, last + 1):
         people = wide[k]
         groups = [people.with_columns(grp=pl.lit(EVERYONE, pl.Int64))]
         if found is not None:
-            rules = found.filter(pl.col("k") == k).select("customer_id", "rule_rank")
+            rules = by_k[k]
             anyone = (
                 rules.select("customer_id")
                 .unique()
@@ -383,11 +391,7 @@ def _cells_in_memory(
         )
     if found is None:
         return TakeUpCells(cells, wide[: one_by_one + 1], None)
-    reached = (
-        found.filter(pl.col("k") == 0)
-        .select("customer_id", "rule_rank")
-        .join(wide[0].select("customer_id"), on="customer_id", how="semi")
-    )
+    reached = by_k[0].join(wide[0].select("customer_id"), on="customer_id", how="semi")
     now = wide[0].join(reached.select("customer_id").unique(), on="customer_id", how="semi")
     return TakeUpCells(cells, [now.sort("customer_id")], reached)
 
