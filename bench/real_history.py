@@ -125,7 +125,7 @@ def main() -> None:
     con = duckdb.connect(str(db), read_only=True)
     sku = con.execute("""SELECT CAST(t.product_id AS VARCHAR) FROM transactions t JOIN products p
         USING (product_id) WHERE p.product_category = 'YOGURT' GROUP BY 1
-        ORDER BY count(DISTINCT household_id) DESC LIMIT 1""").fetchone()[0]
+        ORDER BY count(DISTINCT household_id) DESC, 1 LIMIT 1""").fetchone()[0]  # ties: lowest id
     con.close()
     w = ["-w", str(db), "-m", str(mapping)]
     runs = {
