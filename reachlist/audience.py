@@ -38,6 +38,7 @@ __all__ = [
     "adult_born_by",
     "audience_query",
     "choose_rules",
+    "cutoff_run_slots",
     "reach_at_cutoffs_parts",
     "reach_at_cutoffs_query",
     "reach_query",
@@ -383,6 +384,7 @@ def reach_at_cutoffs_parts(
         parts["ctes"].format(
             level=LEVEL_COLUMN[spec.level],
             cutoff_numbers="(VALUES " + ", ".join(f"({k})" for k in range(len(cutoffs))) + ")",
+            **cutoff_run_slots("d.age", ":reach_days", ":reach_step", ":reach_last"),
         ),
         *(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
         parts["reached_cte"].format(reached_union=_reached_union(spec)),
@@ -391,6 +393,14 @@ def reach_at_cutoffs_parts(
 
 
 MOST_CUTOFF_BITS = 62  # cutoffs are bits of a BIGINT mask in sql/reach_at_cutoffs.sql
+
+
+def cutoff_run_slots(age: str, days: str, step: str, last: str) -> dict[str, str]:
+    """The ``{k_lo}``, ``{k_hi}`` and ``{mask}`` fragments of sql/cutoff_runs.sql (the run of
+    cutoffs whose window holds a day), written over a query's own column and value names."""
+    parts = template_parts("cutoff_runs")
+    names = {"age": age, "days": days, "step": step, "last": last}
+    return {part: parts[part].format(**names) for part in ("k_lo", "k_hi", "mask")}
 
 
 def _reached_union(spec: AudienceSpec) -> str:

@@ -44,6 +44,7 @@ import polars as pl
 from reachlist import ids as ids_
 from reachlist.audience import (
     AudienceSpec,
+    cutoff_run_slots,
     reach_at_cutoffs_parts,
     reach_at_cutoffs_query,
     reach_query,
@@ -141,6 +142,7 @@ def _history_slots(
     slots = {
         "target_level": LEVEL_COLUMN[target.level],
         "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
+        **cutoff_run_slots("p.age", ":breadth_days", ":horizon", ":last"),
         "returned_bits": "\n         + ".join(
             f"           CASE WHEN sum(CASE WHEN p.age > {k} * :horizon "
             f"AND p.age <= {k} * :horizon + :breadth_days THEN p.quantity ELSE 0 END) > 0 "

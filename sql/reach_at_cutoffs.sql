@@ -2,11 +2,10 @@
 -- customers holding every antecedent item of the rule inside the lookback window that ends at
 -- the cutoff (every window as long as the list's own, :reach_days). "Holds" as in audience.sql:
 -- net quantity over the window's days positive. One row per (cutoff, customer, rule).
--- Cutoff c (from 1) is :reach_until minus (c - 1) steps of :reach_step days, so a day :age days
--- before :reach_until lies in the window of cutoff k = c - 1 exactly when
--- k * step < age <= k * step + days: for a customer-SKU pair without a return, the cutoffs that
--- hold it are a run k_lo .. k_hi worked out from each day's age (bit k of a mask, no join to
--- the cutoffs); the few pairs with a return are netted window by window. A rule reaches a
+-- Cutoff c (from 1) is :reach_until minus (c - 1) steps of :reach_step days: for a customer-SKU
+-- pair without a return, the cutoffs whose window holds a day are a run k_lo .. k_hi (k = c - 1)
+-- worked out from the day's age (cutoff_runs.sql; bit k of a mask, no join to the cutoffs); the
+-- few pairs with a return are netted window by window. A rule reaches a
 -- customer at cutoff k when bit k is set for every item of the rule.
 -- Written as parts: estimate.takeup_cells joins the same CTEs into the take-up history.
 WITH
@@ -24,18 +23,15 @@ antecedent_returned AS (
 ),
 antecedent_runs AS (
     SELECT d.customer_id, d.sku,
-           CASE WHEN d.age <= :reach_days THEN 0
-                ELSE CAST(FLOOR((d.age - :reach_days + :reach_step - 1) * 1.0 / :reach_step) AS INTEGER)
-           END                                                                         AS k_lo,
-           LEAST(:reach_last, CAST(FLOOR((d.age - 1) * 1.0 / :reach_step) AS INTEGER)) AS k_hi
+           {k_lo} AS k_lo,
+           {k_hi} AS k_hi
     FROM antecedent_days AS d
     LEFT JOIN antecedent_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
     WHERE r.customer_id IS NULL AND d.quantity > 0
 ),
 antecedent_bits AS (
     -- bit k set: the customer holds the SKU in cutoff k's window
-    SELECT customer_id, sku,
-           (CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo) AS bits
+    SELECT customer_id, sku, {mask} AS bits
     FROM antecedent_runs
     WHERE k_lo <= k_hi
     UNION ALL

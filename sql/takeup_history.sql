@@ -37,10 +37,8 @@ returned_pairs AS (
 plain_days AS (
     -- days of pairs without a return, with the run of cutoffs whose breadth window holds them
     SELECT p.customer_id, p.sku,
-           CASE WHEN p.age <= :breadth_days THEN 0
-                ELSE CAST(FLOOR((p.age - :breadth_days + :horizon - 1) * 1.0 / :horizon) AS INTEGER)
-           END                                                                 AS k_lo,
-           LEAST(:last, CAST(FLOOR((p.age - 1) * 1.0 / :horizon) AS INTEGER))  AS k_hi
+           {k_lo} AS k_lo,
+           {k_hi} AS k_hi
     FROM past AS p
     LEFT JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
     WHERE r.customer_id IS NULL AND p.quantity > 0
@@ -57,8 +55,7 @@ returned_bits AS (
 ),
 held_bits AS (
     -- bit k set: the customer holds the SKU in cutoff k's breadth window
-    SELECT customer_id, sku,
-           (CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo) AS bits
+    SELECT customer_id, sku, {mask} AS bits
     FROM plain_days
     WHERE k_lo <= k_hi
     UNION ALL
