@@ -38,7 +38,7 @@ __all__ = [
     "adult_born_by",
     "audience_query",
     "choose_rules",
-    "cutoff_run_slots",
+    "cutoff_bits_ctes",
     "reach_at_cutoffs_parts",
     "reach_at_cutoffs_query",
     "reach_query",
@@ -374,7 +374,6 @@ def reach_at_cutoffs_parts(
         "reach_since": day_of(cutoffs[-1] - length),
         "reach_days": length.days,
         "reach_step": step.days,
-        "reach_last": len(cutoffs) - 1,
     }
     for r in spec.rules:
         params[f"rule_{r.rank}_items"] = list(r.antecedent)
@@ -384,7 +383,13 @@ def reach_at_cutoffs_parts(
         parts["ctes"].format(
             level=LEVEL_COLUMN[spec.level],
             cutoff_numbers="(VALUES " + ", ".join(f"({k})" for k in range(len(cutoffs))) + ")",
-            **cutoff_run_slots("d.age", ":reach_days", ":reach_step", ":reach_last"),
+            antecedent_bits=cutoff_bits_ctes(
+                "antecedent_bits",
+                "antecedent_days",
+                ":reach_days",
+                ":reach_step",
+                len(cutoffs) - 1,
+            ),
         ),
         *(_PARTS["cutoff_rule_block"].format(k=r.rank) for r in spec.rules),
         parts["reached_cte"].format(reached_union=_reached_union(spec)),
@@ -395,12 +400,16 @@ def reach_at_cutoffs_parts(
 MOST_CUTOFF_BITS = 62  # cutoffs are bits of a BIGINT mask in sql/reach_at_cutoffs.sql
 
 
-def cutoff_run_slots(age: str, days: str, step: str, last: str) -> dict[str, str]:
-    """The ``{k_lo}``, ``{k_hi}`` and ``{mask}`` fragments of sql/cutoff_runs.sql (the run of
-    cutoffs whose window holds a day), written over a query's own column and value names."""
+def cutoff_bits_ctes(name: str, days: str, window: str, step: str, last: int) -> str:
+    """The CTEs of sql/cutoff_runs.sql ending with ``name`` (customer_id, sku, bits): in which of
+    cutoffs 0 .. ``last`` each customer holds each SKU of the CTE ``days``, ``window`` and
+    ``step`` naming the query's bound values for the window's and the step's days."""
     parts = template_parts("cutoff_runs")
-    names = {"age": age, "days": days, "step": step, "last": last}
-    return {part: parts[part].format(**names) for part in ("k_lo", "k_hi", "mask")}
+    names = {"window": window, "step": step}
+    netted = "\n         +\n".join(
+        parts["netted_term"].format(k=k, **names) for k in range(last + 1)
+    )
+    return parts["ctes"].format(name=name, days=days, last=last, netted=netted, **names)
 
 
 def _reached_union(spec: AudienceSpec) -> str:

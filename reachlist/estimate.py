@@ -44,7 +44,7 @@ import polars as pl
 from reachlist import ids as ids_
 from reachlist.audience import (
     AudienceSpec,
-    cutoff_run_slots,
+    cutoff_bits_ctes,
     reach_at_cutoffs_parts,
     reach_at_cutoffs_query,
     reach_query,
@@ -137,18 +137,11 @@ def _history_slots(
         "as_of": day_of(as_of),
         "horizon": horizon,
         "breadth_days": BREADTH_DAYS,
-        "last": last,
     }
     slots = {
         "target_level": LEVEL_COLUMN[target.level],
         "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
-        **cutoff_run_slots("p.age", ":breadth_days", ":horizon", ":last"),
-        "returned_bits": "\n         + ".join(
-            f"           CASE WHEN sum(CASE WHEN p.age > {k} * :horizon "
-            f"AND p.age <= {k} * :horizon + :breadth_days THEN p.quantity ELSE 0 END) > 0 "
-            f"THEN CAST(1 AS BIGINT) << {k} ELSE 0 END"
-            for k in ks
-        ),
+        "held_bits": cutoff_bits_ctes("held_bits", "past", ":breadth_days", ":horizon", last),
         "breadth_columns": ",\n".join(
             f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
         ),

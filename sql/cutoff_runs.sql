@@ -1,14 +1,47 @@
--- The run of cutoffs whose window holds a day, as used by takeup_history.sql (breadth windows)
--- and reach_at_cutoffs.sql (the rules' lookback windows): cutoff k (from 0) lies k steps of
--- {step} days before a reference day and its window is the {days} days before it, so a day {age}
--- days before the reference day (age >= 1) lies in cutoff k's window exactly when
--- k * step < age <= k * step + days. The cutoffs that hold the day are then k_lo .. k_hi (none
--- when k_lo > k_hi), at most {last}; as bits of one 64-bit mask, bit k set for each.
--- part: k_lo
-CASE WHEN {age} <= {days} THEN 0
-                ELSE CAST(FLOOR(({age} - {days} + {step} - 1) * 1.0 / {step}) AS INTEGER)
-           END
--- part: k_hi
-LEAST({last}, CAST(FLOOR(({age} - 1) * 1.0 / {step}) AS INTEGER))
--- part: mask
-(CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo)
+-- Which cutoffs' windows each customer holds each SKU in, as bits of one 64-bit mask: the
+-- common step of takeup_history.sql (breadth windows) and reach_at_cutoffs.sql (the rules'
+-- lookback windows). The input {days} has one row per customer, SKU and day (customer_id, sku,
+-- quantity, age = days before a reference day, >= 1). Cutoff k (k = 0 .. {last}) lies k steps
+-- of {step} days before the reference day and its window is the {window} days before it, so a
+-- day lies in cutoff k's window exactly when k * step < age <= k * step + window.
+--
+-- "Holds" is a positive net quantity over the window's days. For a pair without a return that
+-- is "bought on a day inside the window", and the cutoffs whose window holds a day are a run
+-- k_lo .. k_hi worked out from its age (no join to the cutoffs); the few pairs with a return
+-- are netted window by window, one conditional sum per cutoff ({netted}).
+-- part: ctes
+{name}_returned AS (
+    SELECT DISTINCT customer_id, sku FROM {days} WHERE quantity < 0
+),
+{name}_runs AS (
+    SELECT d.customer_id, d.sku,
+           CASE WHEN d.age <= {window} THEN 0
+                ELSE CAST(FLOOR((d.age - {window} + {step} - 1) * 1.0 / {step}) AS INTEGER)
+           END                                                           AS k_lo,
+           LEAST({last}, CAST(FLOOR((d.age - 1) * 1.0 / {step}) AS INTEGER)) AS k_hi
+    FROM {days} AS d
+    LEFT JOIN {name}_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
+    WHERE r.customer_id IS NULL AND d.quantity > 0
+),
+{name}_netted AS (
+    SELECT d.customer_id, d.sku,
+{netted}
+           AS bits
+    FROM {days} AS d
+    JOIN {name}_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
+    GROUP BY d.customer_id, d.sku
+),
+{name} AS (
+    -- bit k set: the customer holds the SKU in cutoff k's window
+    SELECT customer_id, sku, (CAST(1 AS BIGINT) << (k_hi + 1)) - (CAST(1 AS BIGINT) << k_lo) AS bits
+    FROM {name}_runs
+    WHERE k_lo <= k_hi
+    UNION ALL
+    SELECT customer_id, sku, bits
+    FROM {name}_netted
+    WHERE bits <> 0
+)
+-- part: netted_term
+           CASE WHEN sum(CASE WHEN d.age > {k} * {step} AND d.age <= {k} * {step} + {window}
+                              THEN d.quantity ELSE 0 END) > 0
+                THEN CAST(1 AS BIGINT) << {k} ELSE 0 END

@@ -18,31 +18,7 @@ antecedent_days AS (
       AND h.order_day >= :reach_since
       AND h.order_day < :reach_until
 ),
-antecedent_returned AS (
-    SELECT DISTINCT customer_id, sku FROM antecedent_days WHERE quantity < 0
-),
-antecedent_runs AS (
-    SELECT d.customer_id, d.sku,
-           {k_lo} AS k_lo,
-           {k_hi} AS k_hi
-    FROM antecedent_days AS d
-    LEFT JOIN antecedent_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
-    WHERE r.customer_id IS NULL AND d.quantity > 0
-),
-antecedent_bits AS (
-    -- bit k set: the customer holds the SKU in cutoff k's window
-    SELECT customer_id, sku, {mask} AS bits
-    FROM antecedent_runs
-    WHERE k_lo <= k_hi
-    UNION ALL
-    SELECT d.customer_id, d.sku, CAST(1 AS BIGINT) << ks.k AS bits
-    FROM antecedent_days AS d
-    JOIN antecedent_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
-    CROSS JOIN {cutoff_numbers} AS ks (k)
-    WHERE d.age > ks.k * :reach_step AND d.age <= ks.k * :reach_step + :reach_days
-    GROUP BY d.customer_id, d.sku, ks.k
-    HAVING sum(d.quantity) > 0
-),
+{antecedent_bits},
 held AS (
     -- bit k set: the customer holds the item (at the rules' level) in cutoff k's window
     SELECT b.customer_id, p.item, bit_or(b.bits) AS bits

@@ -31,38 +31,7 @@ past AS (
     FROM holdings
     WHERE order_day < :as_of
 ),
-returned_pairs AS (
-    SELECT DISTINCT customer_id, sku FROM past WHERE quantity < 0
-),
-plain_days AS (
-    -- days of pairs without a return, with the run of cutoffs whose breadth window holds them
-    SELECT p.customer_id, p.sku,
-           {k_lo} AS k_lo,
-           {k_hi} AS k_hi
-    FROM past AS p
-    LEFT JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
-    WHERE r.customer_id IS NULL AND p.quantity > 0
-),
-returned_bits AS (
-    -- pairs with a return: bit k set where the net quantity over cutoff k's breadth window is
-    -- positive (one conditional sum per cutoff, in one pass over the pairs' days)
-    SELECT p.customer_id, p.sku,
-{returned_bits}
-           AS bits
-    FROM past AS p
-    JOIN returned_pairs AS r ON r.customer_id = p.customer_id AND r.sku = p.sku
-    GROUP BY p.customer_id, p.sku
-),
-held_bits AS (
-    -- bit k set: the customer holds the SKU in cutoff k's breadth window
-    SELECT customer_id, sku, {mask} AS bits
-    FROM plain_days
-    WHERE k_lo <= k_hi
-    UNION ALL
-    SELECT customer_id, sku, bits
-    FROM returned_bits
-    WHERE bits <> 0
-),
+{held_bits},
 category_codes AS (
     -- a small integer per category: tens of millions of (customer, category) keys hash faster
     -- as integers than as names (the history query 11.9 s -> 10.6 s at 1M customers)
