@@ -142,8 +142,11 @@ def _history_slots(
         "target_level": LEVEL_COLUMN[target.level],
         "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
         "held_bits": cutoff_bits_ctes("held_bits", "past", ":breadth_days", ":horizon", last),
+        # a count of the rows with bit k set, not a sum of the bit: a count's state is one
+        # 64-bit integer where a sum's is 128 bits (the history query 7.9 s -> 6.2 s at 1M)
         "breadth_columns": ",\n".join(
-            f"           sum(CAST((bits >> {k}) & 1 AS INTEGER)) AS breadth_{k}" for k in ks
+            f"           count(CASE WHEN (bits >> {k}) & 1 = 1 THEN 1 END) AS breadth_{k}"
+            for k in ks
         ),
         "target_sums": ",\n".join(
             f"           sum(CASE WHEN t.age > {k} * :horizon THEN t.quantity ELSE 0 END) "
