@@ -27,7 +27,6 @@ from datetime import datetime
 from typing import Any
 
 import numpy as np
-from scipy.stats import norm
 
 from reachlist.campaign_list import list_campaigns
 from reachlist.campaigns import CampaignLog
@@ -126,6 +125,8 @@ def shrink_log_ratio(
     kept = prior / (prior + se**2) if se > 0 else 1.0
     mean = kept * log_ratio
     sd = math.sqrt(kept) * se
+    from scipy.stats import norm
+
     z = float(norm.ppf(0.5 + level / 2))
     return math.exp(mean), math.exp(mean - z * sd), math.exp(mean + z * sd), kept
 

@@ -49,7 +49,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import numpy.typing as npt
-from scipy.stats import chi2, t
 
 from reachlist.errors import InputError
 from reachlist.stats import _check
@@ -145,6 +144,8 @@ class Calibration:
             lo_e, hi_e = float(e[j - 1]), float(e[n - j])
             method = f"empirical quantiles of {self._runs_on()}"
         elif m >= MIN_BACKTESTS_FOR_SPREAD and n >= 2:
+            from scipy.stats import t
+
             half = float(t.ppf(1 - alpha / 2, m - 1)) * float(e.std(ddof=1)) * math.sqrt(1 + 1 / m)
             lo_e, hi_e = float(e.mean()) - half, float(e.mean()) + half
             method = f"log-normal from {self._runs_on()}"
@@ -172,6 +173,8 @@ def _garwood(expected: float, phi: float, level: float) -> tuple[float, float]:
     k = expected / phi
     alpha = 1 - level
     # (an effective count below 1e-9 buyers has a lower limit of 0: the quantile underflows)
+    from scipy.stats import chi2
+
     low = float(chi2.ppf(alpha / 2, 2 * k)) / 2 if k > 1e-9 else 0.0
     high = float(chi2.ppf(1 - alpha / 2, 2 * k + 2)) / 2
     return phi * low, phi * high

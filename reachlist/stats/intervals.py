@@ -23,7 +23,6 @@ from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
-from scipy.stats import norm
 
 from reachlist.errors import InputError
 from reachlist.stats import _check
@@ -46,6 +45,8 @@ class Interval(NamedTuple):
 
 
 def _z(level: float) -> float:
+    from scipy.stats import norm
+
     return float(norm.ppf(0.5 + _check.level(level) / 2.0))
 
 

@@ -29,7 +29,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import numpy.typing as npt
-from scipy.stats import norm
 
 from reachlist.errors import InputError
 from reachlist.stats import _check
@@ -96,6 +95,8 @@ def _crude(t: npt.NDArray[np.float64], measure: str) -> float:
 
 
 def _interval(log_est: float, se: float, level: float) -> tuple[float, float]:
+    from scipy.stats import norm
+
     z = float(norm.ppf(0.5 + level / 2.0))
     return float(np.exp(log_est - z * se)), float(np.exp(log_est + z * se))
 

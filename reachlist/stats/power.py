@@ -20,9 +20,6 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
-from scipy.optimize import brentq
-from scipy.stats import norm
-
 from reachlist.errors import InputError
 from reachlist.stats import _check
 
@@ -50,6 +47,8 @@ def cohens_h(treated_rate: float, holdout_rate: float) -> float:
 
 
 def _power(h: float, n_treated: float, n_holdout: float, alpha: float, alt: Alternative) -> float:
+    from scipy.stats import norm
+
     z = h / math.sqrt(1 / n_treated + 1 / n_holdout)
     if alt == "two-sided":
         crit = float(norm.isf(alpha / 2))
@@ -137,6 +136,8 @@ def minimum_detectable_uplift(
     if _power(h_max, n_t, n_h, alpha, alternative) < power:
         inf = math.inf
         return DetectableUplift(inf, inf, inf, baseline_rate, n_t, n_h, alpha, power)
+    from scipy.optimize import brentq
+
     h = brentq(lambda x: _power(x, n_t, n_h, alpha, alternative) - power, 0.0, h_max, xtol=1e-12)
     treated = math.sin((phi0 + h) / 2) ** 2
     return DetectableUplift(
@@ -192,6 +193,8 @@ def holdout_share_needed(
             f"{' with a one-sided (larger) test' if h < 0 else ''}."
         )
     h = abs(h)
+
+    from scipy.optimize import brentq
 
     def gap(n_holdout: float, total: float = n) -> float:
         return _power(h, total - n_holdout, n_holdout, alpha, alternative) - power
