@@ -193,7 +193,17 @@ def takeup_history(
     """For k = 0 .. ``last``: the customers lacking ``target`` at cutoff ``as_of - k * horizon``
     with their breadth, whether they bought within the horizon and the units (the rows
     ``forward_query`` gives for that cutoff, from one pass)."""
-    wide = ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
+    return _per_cutoff(_wide_history(wh, target, as_of, horizon, last), horizon, last)
+
+
+def _wide_history(
+    wh: Warehouse, target: Target, as_of: datetime, horizon: int, last: int
+) -> pl.DataFrame:
+    """The history query's rows as they come: one per customer, every cutoff's columns."""
+    return ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
+
+
+def _per_cutoff(wide: pl.DataFrame, horizon: int, last: int) -> list[pl.DataFrame]:
     out = []
     for k in range(last + 1):
         out.append(  # lazily, so only the cutoff's own columns are filtered
@@ -345,13 +355,14 @@ def _cells_in_memory(
     """``takeup_cells`` counted here from one row per customer: the same cells, customers and
     reach as the counting query (the tests compare the two)."""
     takeup_cells_query(target, as_of, horizon, last, spec, one_by_one)  # the same bounds
+    full = _wide_history(wh, target, as_of, horizon, last)
     wide = [
         f.with_columns(
             pl.col("breadth").cast(pl.Int64),
             pl.col("bought").cast(pl.Int64),
             pl.col("units").cast(pl.Float64),
         )
-        for f in takeup_history(wh, target, as_of, horizon, last)
+        for f in _per_cutoff(full, horizon, one_by_one)
     ]
     found = None
     if spec is not None and spec.rules:
@@ -361,37 +372,85 @@ def _cells_in_memory(
             "customer_id",
             pl.col("rule_rank").cast(pl.Int64),
         )
-    by_k: dict[int, pl.DataFrame] = {}
-    if found is not None:  # one pass over the reach (millions of rows), not one per cutoff
-        empty = found.clear().select("customer_id", "rule_rank")
-        parts = found.partition_by("k", as_dict=True, include_key=False)
-        by_k = {k: parts.get((k,), empty) for k in range(last + 1)}
+    # Who a rule reaches at cutoff k, as positions in the history's rows (one join for all
+    # cutoffs, millions of rows), split by cutoff once; each cutoff's cells are then counted from
+    # positions, not from one join per cutoff and group.
+    parts: dict[Any, pl.DataFrame] = {}
+    if found is not None:
+        rows = full.select("customer_id").with_row_index("row")
+        placed = found.filter(pl.col("k") >= 1).join(rows, on="customer_id", how="inner")
+        parts = placed.partition_by("k", as_dict=True, include_key=False)
+    first_age = full["first_age"].to_numpy()
     cells = []
     for k in range(1, last + 1):
-        people = wide[k]
-        groups = [people.with_columns(grp=pl.lit(EVERYONE, pl.Int64))]
+        lacking = (first_age > k * horizon) & (full[f"had_{k}"].to_numpy() == 0)
+        where = [np.flatnonzero(lacking)]
+        groups = [np.full(where[0].size, EVERYONE, dtype=np.int64)]
         if found is not None:
-            rules = by_k[k]
-            anyone = (
-                rules.select("customer_id")
-                .unique()
-                .with_columns(rule_rank=pl.lit(COMBINED, pl.Int64))
-            )
-            groups += [
-                people.join(g, on="customer_id").rename({"rule_rank": "grp"})
-                for g in (rules, anyone)
-            ]
+            part = parts.get((k,))
+            if part is None:
+                at, rank = np.zeros(0, np.int64), np.zeros(0, np.int64)
+            else:  # in the history's order, as a join would give them
+                order = part["row"].to_numpy().argsort(kind="stable")
+                at = part["row"].to_numpy()[order].astype(np.int64)
+                rank = part["rule_rank"].to_numpy()[order]
+            kept = lacking[at]
+            where.append(at[kept])
+            groups.append(rank[kept].astype(np.int64))
+            anyone = np.zeros(full.height, dtype=bool)
+            anyone[at[kept]] = True
+            where.append(np.flatnonzero(anyone))
+            groups.append(np.full(where[-1].size, COMBINED, dtype=np.int64))
+        at_all = np.concatenate(where)
         cells.append(
-            pl.concat(groups)
-            .group_by("grp", "breadth", "bought")
-            .agg(pl.len().cast(pl.Int64).alias("customers"), pl.col("units").sum())
-            .sort("grp", "breadth", "bought")
+            _count_cells(
+                np.concatenate(groups),
+                full[f"breadth_{k}"].to_numpy()[at_all].astype(np.int64),
+                full[f"bought_{k}"].to_numpy()[at_all].astype(np.int64),
+                full[f"units_{k}"].to_numpy()[at_all].astype(np.float64),
+            )
         )
     if found is None:
-        return TakeUpCells(cells, wide[: one_by_one + 1], None)
-    reached = by_k[0].join(wide[0].select("customer_id"), on="customer_id", how="semi")
+        return TakeUpCells(cells, wide, None)
+    now_reached = found.filter(pl.col("k") == 0).select("customer_id", "rule_rank")
+    reached = now_reached.join(wide[0].select("customer_id"), on="customer_id", how="semi")
     now = wide[0].join(reached.select("customer_id").unique(), on="customer_id", how="semi")
     return TakeUpCells(cells, [now.sort("customer_id")], reached)
+
+
+_CELL_SCHEMA = {
+    "grp": pl.Int64,
+    "breadth": pl.Int64,
+    "bought": pl.Int64,
+    "customers": pl.Int64,
+    "units": pl.Float64,
+}
+
+
+def _count_cells(
+    grp: np.ndarray, breadth: np.ndarray, bought: np.ndarray, units: np.ndarray
+) -> pl.DataFrame:
+    """Customers and their net units per (grp, breadth, bought), in that order: one count over a
+    dense key (the groups run from EVERYONE up, breadth from 0, bought is 0 or 1: a few thousand
+    keys) where a hash group-by of millions of rows took several times longer."""
+    if grp.size == 0:
+        return pl.DataFrame(schema=_CELL_SCHEMA)
+    low = int(grp.min())
+    n_breadth, n_bought = int(breadth.max()) + 1, int(bought.max()) + 1
+    key = ((grp - low) * n_breadth + breadth) * n_bought + bought
+    customers = np.bincount(key)
+    units_sum = np.bincount(key, weights=units, minlength=customers.size)
+    used = np.flatnonzero(customers)
+    return pl.DataFrame(
+        {
+            "grp": used // (n_breadth * n_bought) + low,
+            "breadth": used // n_bought % n_breadth,
+            "bought": used % n_bought,
+            "customers": customers[used],
+            "units": units_sum[used],
+        },
+        schema=_CELL_SCHEMA,
+    )
 
 
 @dataclass(frozen=True)
