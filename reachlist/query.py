@@ -13,7 +13,7 @@ it. Values are always bound, never spliced; identifiers are quoted only by :func
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from datetime import date, datetime
 from importlib import resources
@@ -52,15 +52,24 @@ class Dialect:
     type_names: tuple[tuple[str, str], ...] = ()
     # whole days from one date to a later one (templates write DAYS_BETWEEN(start, end))
     day_difference: str = "({end} - {start})"
+    # one value standing for a (customer, SKU) pair, for joins that set pairs apart (templates
+    # write PAIR_KEY(customer, sku)); a 64-bit hash where the engine has one: a single-column
+    # key probes faster than two columns (the take-up history at 1M: 6.0-6.7 s -> 4.8-5.2 s). Two
+    # pairs may share a value: the templates that use it stay exact when they do (see
+    # sql/cutoff_runs.sql)
+    pair_key: str = "(CAST({a} AS VARCHAR) || ':' || CAST({b} AS VARCHAR))"
 
 
-DUCKDB = Dialect("duckdb", placeholder="dollar", table_cte_hint="NOT MATERIALIZED")
+DUCKDB = Dialect(
+    "duckdb", placeholder="dollar", table_cte_hint="NOT MATERIALIZED", pair_key="hash({a}, {b})"
+)
 POSTGRES = Dialect(
     "postgresql",
     placeholder="colon",
     cte_hint="NOT MATERIALIZED",
     table_cte_hint="NOT MATERIALIZED",
     text_type="TEXT",
+    pair_key="hashtextextended(CAST({a} AS TEXT) || ':' || CAST({b} AS TEXT), 0)",
 )
 GENERIC = Dialect("generic", placeholder="colon")
 
@@ -202,11 +211,11 @@ def _reads_holdings(sql: str) -> bool:
     return re.search(rf"\b{HOLDINGS}\b", _strip_comments(sql)) is not None
 
 
-def _days_between(sql: str, dialect: Dialect) -> str:
-    """Rewrite each ``DAYS_BETWEEN(start, end)`` as the dialect counts days between dates."""
+def _two_argument_macro(sql: str, name: str, expand: Callable[[str, str], str]) -> str:
+    """Rewrite each ``NAME(first, second)`` in ``sql`` as ``expand(first, second)``."""
     out, pos = [], 0
-    while (at := sql.find("DAYS_BETWEEN(", pos)) >= 0:
-        depth, i, comma = 0, at + len("DAYS_BETWEEN("), -1
+    while (at := sql.find(f"{name}(", pos)) >= 0:
+        depth, i, comma = 0, at + len(name) + 1, -1
         while depth >= 0:
             ch = sql[i]
             if ch == "(":
@@ -216,11 +225,19 @@ def _days_between(sql: str, dialect: Dialect) -> str:
             elif ch == "," and depth == 0:
                 comma = i
             i += 1
-        start = sql[at + len("DAYS_BETWEEN(") : comma].strip()
-        end = sql[comma + 1 : i - 1].strip()
-        out += [sql[pos:at], dialect.day_difference.format(start=start, end=end)]
+        first = sql[at + len(name) + 1 : comma].strip()
+        second = sql[comma + 1 : i - 1].strip()
+        out += [sql[pos:at], expand(first, second)]
         pos = i
     return "".join(out) + sql[pos:]
+
+
+def _dialect_macros(sql: str, dialect: Dialect) -> str:
+    """``DAYS_BETWEEN(start, end)`` and ``PAIR_KEY(a, b)`` as this dialect writes them."""
+    sql = _two_argument_macro(
+        sql, "DAYS_BETWEEN", lambda start, end: dialect.day_difference.format(start=start, end=end)
+    )
+    return _two_argument_macro(sql, "PAIR_KEY", lambda a, b: dialect.pair_key.format(a=a, b=b))
 
 
 def render(
@@ -243,7 +260,7 @@ def render(
     missing = [n for n in _PARAM.findall(_strip_comments(sql)) if n not in params]
     if missing:
         raise InputError(f"Query {query.label or '(inline)'} needs values for {missing}.")
-    sql = _days_between(sql, dialect)
+    sql = _dialect_macros(sql, dialect)
     for standard, own in dialect.type_names:
         sql = re.sub(rf"\bAS {standard}\)", f"AS {own})", sql)
     if dialect.placeholder == "dollar":

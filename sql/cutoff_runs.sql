@@ -9,9 +9,14 @@
 -- is "bought on a day inside the window", and the cutoffs whose window holds a day are a run
 -- k_lo .. k_hi worked out from its age (no join to the cutoffs); the few pairs with a return
 -- are netted window by window, one conditional sum per cutoff ({netted}).
+--
+-- Pairs are told apart by PAIR_KEY, one value per pair (a 64-bit hash on DuckDB and Spark).
+-- When a pair without a return shares its value with a pair that has one, it goes the netting
+-- way too, which is exact for any pair (netted rows are grouped by the customer and SKU
+-- themselves): a shared value costs a little work, never a wrong bit.
 -- part: ctes
 {name}_returned AS (
-    SELECT DISTINCT customer_id, sku FROM {days} WHERE quantity < 0
+    SELECT DISTINCT PAIR_KEY(customer_id, sku) AS pair FROM {days} WHERE quantity < 0
 ),
 {name}_runs AS (
     SELECT d.customer_id, d.sku,
@@ -20,15 +25,15 @@
            END                                                           AS k_lo,
            LEAST({last}, CAST(FLOOR((d.age - 1) * 1.0 / {step}) AS INTEGER)) AS k_hi
     FROM {days} AS d
-    LEFT JOIN {name}_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
-    WHERE r.customer_id IS NULL AND d.quantity > 0
+    LEFT JOIN {name}_returned AS r ON r.pair = PAIR_KEY(d.customer_id, d.sku)
+    WHERE r.pair IS NULL AND d.quantity > 0
 ),
 {name}_netted AS (
     SELECT d.customer_id, d.sku,
 {netted}
            AS bits
     FROM {days} AS d
-    JOIN {name}_returned AS r ON r.customer_id = d.customer_id AND r.sku = d.sku
+    JOIN {name}_returned AS r ON r.pair = PAIR_KEY(d.customer_id, d.sku)
     GROUP BY d.customer_id, d.sku
 ),
 {name} AS (

@@ -31,6 +31,7 @@ SPARK = Dialect(
     text_type="STRING",
     type_names=(("DOUBLE PRECISION", "DOUBLE"),),
     day_difference="datediff({end}, {start})",  # a date minus a date is an interval in Spark
+    pair_key="xxhash64({a}, {b})",
 )
 
 SESSION_SETTINGS = {
