@@ -96,7 +96,9 @@ class Baskets:
         self.item_counts = np.bincount(i, minlength=n_items).astype(np.int64)
         # item-major index: the baskets of each item, ascending (a stable sort of the lines)
         order = np.argsort(i.astype(np.uint16) if n_items <= 1 << 16 else i, kind="stable")
-        self._tids = key[order].astype(np.int32 if n < 1 << 31 else np.int64)
+        # narrowed before the gather: a random gather of 4-byte values moves half the memory
+        # (9.6M lines: 0.19-0.44 s -> 0.11-0.13 s)
+        self._tids = key.astype(np.int32 if n < 1 << 31 else np.int64)[order]
         self._tid_ptr = np.zeros(n_items + 1, dtype=np.int64)
         np.cumsum(self.item_counts, out=self._tid_ptr[1:])
         self._rows: dict[int, np.ndarray] = {}
