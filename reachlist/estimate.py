@@ -203,12 +203,17 @@ def _wide_history(
     return ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
 
 
+def _lacking_at(k: int, horizon: int) -> pl.Expr:
+    """True for the history's rows that are customers lacking the target at cutoff k."""
+    return (pl.col("first_age") > k * horizon) & (pl.col(f"had_{k}") == 0)
+
+
 def _per_cutoff(wide: pl.DataFrame, horizon: int, last: int) -> list[pl.DataFrame]:
     out = []
     for k in range(last + 1):
         out.append(  # lazily, so only the cutoff's own columns are filtered
             wide.lazy()
-            .filter((pl.col("first_age") > k * horizon) & (pl.col(f"had_{k}") == 0))
+            .filter(_lacking_at(k, horizon))
             .select(
                 "customer_id",
                 pl.col(f"breadth_{k}").alias("breadth"),
@@ -380,10 +385,9 @@ def _cells_in_memory(
         rows = full.select("customer_id").with_row_index("row")
         placed = found.filter(pl.col("k") >= 1).join(rows, on="customer_id", how="inner")
         parts = placed.partition_by("k", as_dict=True, include_key=False)
-    first_age = full["first_age"].to_numpy()
     cells = []
     for k in range(1, last + 1):
-        lacking = (first_age > k * horizon) & (full[f"had_{k}"].to_numpy() == 0)
+        lacking = full.select(_lacking_at(k, horizon)).to_series().to_numpy()
         where = [np.flatnonzero(lacking)]
         groups = [np.full(where[0].size, EVERYONE, dtype=np.int64)]
         if found is not None:
