@@ -63,7 +63,7 @@ def main() -> None:
     if args.holdings_file:
         holdings = f"reading the holdings file ({prepare(duck, refresh=False).state})"
     else:
-        duck.holdings_table = None
+        duck.derive_holdings()
     engines = {"duckdb": duck}
     if not args.no_spark:
         lake = export(path)

@@ -61,7 +61,7 @@ def main() -> None:
     lake = export(path)
     spark = Warehouse.open(f"spark://{args.master}", Mapping.from_dict({"lake": str(lake)}))
     duck = Warehouse.open(path, read_only=True)
-    duck.holdings_table = None  # derive the holdings from the order lines, as Spark does
+    duck.derive_holdings()  # derive the holdings from the order lines, as Spark does
     meter = Metered(spark.engine)
     mine_rules(spark, args.target, counting="memory", max_antecedent=1)  # warm the session
     runs: dict[str, list[float]] = {"duckdb memory": [], "spark memory": [], "spark engine": []}

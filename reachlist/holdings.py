@@ -5,9 +5,11 @@ started buying the target after a cutoff, who bought after a send) is a sum over
 customer, SKU and day (``sql/holdings.sql``). Without a built table each query derives those rows
 from the order lines itself; ``build`` writes them once into a DuckDB file beside the warehouse
 (``garden.duckdb`` -> ``garden.holdings.duckdb``), sorted by day, with the watermark of the
-history they came from. ``prepare`` attaches that file when its watermark still matches the
-warehouse and rebuilds it when the history has changed, so the answers never differ from the
-derived ones (the tests compare the two).
+history they came from, and beside them the customer x SKU pairs held in the default mining
+window (the year up to the latest order: what ``rules`` and ``sizes`` read unless told otherwise),
+so a default run reads its pairs instead of summing a year of days. ``prepare`` attaches that
+file when its watermark still matches the warehouse and rebuilds it when the history has changed,
+so the answers never differ from the derived ones (the tests compare the two).
 
 Only DuckDB file warehouses keep a holdings file; a server warehouse derives the rows inside
 each query (its own engine does the work there).
@@ -30,13 +32,14 @@ from typing import Literal
 
 from reachlist import statements
 from reachlist.errors import InputError, brief
-from reachlist.query import HOLDINGS, Query
+from reachlist.query import HOLDINGS, BuiltWindow, Query
+from reachlist.targets import Window, day_of, held_skus_query, mining_window
 from reachlist.warehouse import Warehouse
 
 __all__ = ["ALIAS", "Built", "Prepared", "Watermark", "build", "holdings_path", "prepare"]
 
 ALIAS = "reachlist_holdings"  # the attached file's name inside the warehouse connection
-FORMAT = 1  # bumped when the table's layout or meaning changes: older files are rebuilt
+FORMAT = 2  # bumped when the table's layout or meaning changes: older files are rebuilt
 BATCH_ROWS = 500_000  # rows moved from the warehouse to the file at a time
 
 Progress = Callable[[str], None]
@@ -146,18 +149,26 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
         )
     say = progress or (lambda _text: None)
     started = time.perf_counter()
-    wh.holdings_table = None
+    wh.derive_holdings()
     wh.detach(ALIAS)
-    say("step 1 of 3: reading the order history's watermark")
+    say("step 1 of 4: reading the order history's watermark")
     mark = current_mark(wh)
+    window = _default_window(wh)
     tmp = path.with_name(f"{path.name}.part-{os.getpid()}")
     tmp.unlink(missing_ok=True)
     try:
-        say(f"step 2 of 3: netting {mark.order_lines:,} order lines by customer, SKU and day")
+        say(f"step 2 of 4: netting {mark.order_lines:,} order lines by customer, SKU and day")
         reader = wh.stream_arrow(Query.from_template("holdings_rows"), BATCH_ROWS)
         with Warehouse.open(tmp, create=True) as side:
             side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)
-            say("step 3 of 3: writing the watermark")
+            side.run_statement(statements.CREATE_WINDOW)
+            if window is not None:
+                say(f"step 3 of 4: keeping who holds which SKU in the default window {window}")
+                side.holdings_table = f"main.{HOLDINGS}"
+                side.create_from_query(statements.WINDOW_PAIRS, held_skus_query(window))
+                days = {"since": day_of(window.since), "until": day_of(window.until)}
+                side.executemany(statements.INSERT_WINDOW, [days])
+            say("step 4 of 4: writing the watermark")
             side.run_statement(statements.CREATE_MARK)
             side.executemany(statements.INSERT_MARK, [mark.__dict__])
             rows = int(side.fetch_raw(statements.row_count(HOLDINGS))["n"][0])
@@ -170,9 +181,28 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
     return Built(path, rows, mark.order_lines, time.perf_counter() - started)
 
 
+def _default_window(wh: Warehouse) -> Window | None:
+    """The window ``rules`` and ``sizes`` mine by default (None: no orders to hold)."""
+    try:
+        return mining_window(wh)
+    except InputError:
+        return None
+
+
 def _attach(wh: Warehouse, path: Path) -> None:
     if wh.attach_read_only(path, ALIAS):
-        wh.holdings_table = f"{ALIAS}.main.holdings"
+        _use(wh)
+
+
+def _use(wh: Warehouse) -> None:
+    """Read the attached file: its holdings, and the pairs it keeps for the default window."""
+    wh.holdings_table = f"{ALIAS}.main.{HOLDINGS}"
+    kept = wh.fetch(statements.attached_window(ALIAS))
+    wh.built_window = (
+        BuiltWindow(kept["since"][0], kept["until"][0], f"{ALIAS}.main.{statements.WINDOW_PAIRS}")
+        if kept.height
+        else None
+    )
 
 
 def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = None) -> Prepared:
@@ -187,7 +217,7 @@ def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = 
         return Prepared("absent", path)
     now = current_mark(wh)
     if stored == now:
-        wh.holdings_table = f"{ALIAS}.main.holdings"
+        _use(wh)
         return Prepared("fresh", path)
     wh.detach(ALIAS)
     changed = "; ".join(stored.differences(now))

@@ -107,7 +107,7 @@ def promotion_overlap(
         )
     level: Level = targets[0].level
     window = mining_window(wh, since, until, days=days)
-    held = held_items_query(window, level=level, basket=kind)
+    held = held_items_query(window, level=level, basket=kind, built=wh.built_window)
     n_baskets = int(
         wh.scalar(Query.from_template("basket_count", dict(held.params), held=held.sql.strip()))
         or 0

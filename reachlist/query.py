@@ -194,6 +194,18 @@ _LEADING_WITH = re.compile(r"^(\s*(?:--[^\n]*\n\s*)*)WITH\s", re.IGNORECASE)
 HOLDINGS = "holdings"  # the logical table of sql/holdings.sql: customer x SKU x day
 
 
+@dataclass(frozen=True)
+class BuiltWindow:
+    """The customer x SKU pairs held in one window of days, [since, until), kept in the holdings
+    file (``reachlist holdings`` writes them for the default mining window): ``table`` is the
+    qualified name of the attached table. A query for exactly that window reads it instead of
+    summing the window's days of the holdings again (``sql/held_items.sql``)."""
+
+    since: date
+    until: date
+    table: str
+
+
 def holdings_cte(dialect: Dialect, table: str | None) -> str:
     """How a query reads ``holdings``: the table built by ``reachlist holdings`` when there is
     a fresh one (``table``, already qualified), else the same rows derived from the order lines

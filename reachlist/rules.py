@@ -96,11 +96,14 @@ def load_baskets(
     wh: Warehouse, target: Target | None, level: Level, basket: BasketKind, window: Window
 ) -> Baskets:
     """Basket -> item pairs from the warehouse, with the target added when it is at another level."""
-    pairs = wh.fetch(held_items_query(window, level=level, basket=basket))
+    built = wh.built_window
+    pairs = wh.fetch(held_items_query(window, level=level, basket=basket, built=built))
     if target is not None and target.level != level:
         related = _related_items(wh, target, level)
         held = wh.fetch(
-            held_items_query(window, level=target.level, basket=basket, only=target.name)
+            held_items_query(
+                window, level=target.level, basket=basket, only=target.name, built=built
+            )
         )
         pairs = pl.concat(
             [
@@ -301,7 +304,8 @@ def basket_breadth(
     n = baskets.n_baskets
     target_label_ = target_label(target, level)
     if level == "department":
-        pairs = wh.fetch(held_items_query(window, level="category", basket="customer"))
+        held = held_items_query(window, level="category", basket="customer", built=wh.built_window)
+        pairs = wh.fetch(held)
         if target.level == "category":
             pairs = pairs.filter(pl.col("item") != target.name)
         ids = baskets.basket_ids

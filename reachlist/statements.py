@@ -226,6 +226,10 @@ INSERT_MARK = (
     ":source, :format)"
 )
 HOLDINGS_ORDERED = "SELECT * FROM src ORDER BY order_day"
+WINDOW_TABLE = "default_window"  # the default mining window the kept pairs were held in
+WINDOW_PAIRS = "default_window_pairs"  # customer x SKU pairs held in it
+CREATE_WINDOW = f"CREATE TABLE {WINDOW_TABLE} (since DATE, until DATE)"
+INSERT_WINDOW = f"INSERT INTO {WINDOW_TABLE} VALUES (:since, :until)"
 
 
 def row_count(table: str) -> str:
@@ -235,3 +239,10 @@ def row_count(table: str) -> str:
 def attached_mark(alias: str) -> Query:
     """The watermark stored in an attached holdings file."""
     return Query(f"SELECT * FROM {quote_ident(alias)}.main.{MARK_TABLE}", label="holdings mark")
+
+
+def attached_window(alias: str) -> Query:
+    """The default mining window whose held pairs an attached holdings file keeps."""
+    return Query(
+        f"SELECT since, until FROM {quote_ident(alias)}.main.{WINDOW_TABLE}", label="kept window"
+    )

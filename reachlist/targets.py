@@ -15,7 +15,7 @@ from datetime import UTC, date, datetime, timedelta
 from typing import Literal
 
 from reachlist.errors import InputError
-from reachlist.query import Query, template_parts, with_parts
+from reachlist.query import BuiltWindow, Query, template_parts, with_parts
 from reachlist.warehouse import Warehouse
 from reachlist.wording import option
 
@@ -268,10 +268,13 @@ def held_items_query(
     level: Level = "sku",
     basket: BasketKind = "customer",
     only: str | None = None,
+    built: BuiltWindow | None = None,
 ) -> Query:
     """Basket -> item pairs in the window (see sql/held_items.sql for the rules applied).
 
-    ``only`` keeps the pairs of one item (for example the target) and is bound as a value."""
+    ``only`` keeps the pairs of one item (for example the target) and is bound as a value.
+    ``built``: the pairs the holdings file keeps for one window (``Warehouse.built_window``),
+    read instead of the holdings' days when the window is exactly that one."""
     params: dict[str, object]
     if basket == "customer":  # from the holdings, whose grain is the day
         params = {"since": day_of(window.since), "until": day_of(window.until)}
@@ -281,6 +284,10 @@ def held_items_query(
         params["only_item"] = only
     if basket == "customer":
         parts = template_parts("held_items")
+        held = parts["held_skus"]
+        if built is not None and (built.since, built.until) == (params["since"], params["until"]):
+            held = parts["held_skus_built"].format(built_table=built.table)
+            del params["since"], params["until"]
         if level == "sku":
             final = parts["held_sku_pairs"].format(
                 only_sku="" if only is None else "\n  AND h.sku = :only_item"
@@ -290,10 +297,21 @@ def held_items_query(
                 level=LEVEL_COLUMN[level],
                 only_item="" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item",
             )
-        return Query(with_parts([parts["held_skus"]], final), params, label="held_items")
+        return Query(with_parts([held], final), params, label="held_items")
     only_item = "" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
     return Query.from_template(
         "held_order_items", params, level=LEVEL_COLUMN[level], only_item=only_item
+    )
+
+
+def held_skus_query(window: Window) -> Query:
+    """Every customer x SKU pair held in the window, ordered by customer: the rows the holdings
+    file keeps for the default mining window (read back through ``held_items_query(built=)``)."""
+    parts = template_parts("held_items")
+    return Query(
+        with_parts([parts["held_skus"]], parts["held_skus_rows"]),
+        {"since": day_of(window.since), "until": day_of(window.until)},
+        label="held_skus",
     )
 
 

@@ -20,7 +20,7 @@ import polars as pl
 
 from reachlist import statements
 from reachlist.errors import ContractError, InputError, ReachlistError, WarehouseError
-from reachlist.query import DUCKDB, Dialect, Query, Rendered, raw_sql, render
+from reachlist.query import DUCKDB, BuiltWindow, Dialect, Query, Rendered, raw_sql, render
 from reachlist.schema import CONTRACT, SOURCE_TABLES, Mapping
 
 if TYPE_CHECKING:
@@ -53,6 +53,13 @@ class Warehouse:
         # the qualified name of a fresh holdings table when one is attached (reachlist.holdings);
         # None: queries derive the same rows from the order lines
         self.holdings_table: str | None = None
+        # the pairs held in the default mining window, kept in that file (None: not attached)
+        self.built_window: BuiltWindow | None = None
+
+    def derive_holdings(self) -> None:
+        """Stop reading an attached holdings file: queries derive the same rows from the order
+        lines again (a rebuild, a comparison, an engine that keeps no file)."""
+        self.holdings_table, self.built_window = None, None
 
     # -- opening ---------------------------------------------------------------------------------
     @classmethod
@@ -290,6 +297,15 @@ class Warehouse:
                 f"Could not write {table} into {self.display_name}: {_first_line(exc)}.",
                 hint="check the free space and that the file and its folder are writable",
             ) from None
+
+    def create_from_query(self, table: str, query: Query) -> None:
+        """``CREATE TABLE table AS <query>``: a query's rows kept in this warehouse (DuckDB:
+        how the holdings file keeps the pairs of the default window)."""
+        r = self.render(query)
+        try:
+            self.engine.execute(statements.create_as(table, r.sql), r.params)
+        except Exception as exc:
+            raise self._translate(exc, query) from None
 
     def stream_arrow(self, query: Query, batch_rows: int = 500_000) -> Any:
         """The rows of a query as a pyarrow RecordBatchReader: read in batches of ``batch_rows``,

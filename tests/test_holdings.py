@@ -11,6 +11,7 @@ import json
 import os
 from pathlib import Path
 
+import polars as pl
 import pytest
 from click.testing import CliRunner
 
@@ -19,6 +20,7 @@ from reachlist.errors import InputError
 from reachlist.holdings import build, holdings_path, prepare
 from reachlist.query import Query
 from reachlist.rules import mine_rules
+from reachlist.targets import day_of, held_items_query, mining_window
 from reachlist.warehouse import Warehouse
 
 TARGET = "SG04-104"
@@ -71,6 +73,36 @@ def test_the_file_holds_what_the_derivation_gives(sample: Path) -> None:
     assert built.rows < built.order_lines
 
 
+def test_the_pairs_kept_for_the_default_window_are_the_pairs_derived(sample: Path) -> None:
+    def pairs(wh: Warehouse, query: Query) -> pl.DataFrame:
+        return wh.fetch(query).sort("basket", "item")
+
+    questions = [
+        {"level": "sku"},
+        {"level": "category"},
+        {"level": "department"},
+        {"level": "sku", "only": TARGET},
+        {"level": "category", "only": "Propagation"},
+    ]
+    with Warehouse.open(sample) as wh:
+        default = mining_window(wh)
+        windows = [default, mining_window(wh, since="2026-01-01")]
+        derived = [pairs(wh, held_items_query(w, **q)) for w in windows for q in questions]
+        build(wh)
+        kept = wh.built_window
+        assert kept is not None
+        assert (kept.since, kept.until) == (day_of(default.since), day_of(default.until))
+        from_file = []
+        for w in windows:
+            for q in questions:
+                query = held_items_query(w, **q, built=kept)
+                assert (kept.table in query.sql) == (w == default)  # only that window reads it
+                from_file.append(pairs(wh, query))
+    assert [f.height for f in from_file] == [d.height for d in derived]
+    assert all(f.equals(d) for f, d in zip(from_file, derived, strict=True))
+    assert all(d.height for d in derived)
+
+
 def test_a_changed_history_rebuilds_the_file_and_the_answers_follow(sample: Path) -> None:
     with Warehouse.open(sample) as wh:
         build(wh)
@@ -90,7 +122,7 @@ def test_a_changed_history_rebuilds_the_file_and_the_answers_follow(sample: Path
         assert prepared.state == "rebuilt"
         assert "order lines 458,335 -> 458,336" in prepared.note
         rebuilt = mine_rules(wh, TARGET).frame
-        wh.holdings_table = None  # the same question, derived from the order lines
+        wh.derive_holdings()  # the same question, derived from the order lines
         derived = mine_rules(wh, TARGET).frame
     assert rebuilt.equals(derived)
     assert not rebuilt.equals(before)  # the new buyer moved the counts

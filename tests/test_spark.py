@@ -59,7 +59,7 @@ def spark(lake: Path) -> Warehouse:
 @pytest.fixture(scope="module")
 def duck(pristine: Path) -> Warehouse:
     wh = Warehouse.open(pristine, read_only=True)
-    wh.holdings_table = None  # derive the holdings as Spark does
+    wh.derive_holdings()  # derive the holdings as Spark does
     yield wh
     wh.close()
 
