@@ -50,7 +50,7 @@ from reachlist.audience import (
     reach_query,
 )
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
-from reachlist.query import Query, template_parts, with_parts
+from reachlist.query import BuiltWindow, Query, template_parts, with_parts
 from reachlist.stats import (
     Calibration,
     DetectableUplift,
@@ -123,9 +123,11 @@ MOST_CUTOFFS = 60  # cutoffs one history query follows (one bit each in a 64-bit
 
 
 def _history_slots(
-    target: Target, as_of: datetime, horizon: int, last: int
+    target: Target, as_of: datetime, horizon: int, last: int, built: BuiltWindow | None = None
 ) -> tuple[dict[str, Any], dict[str, str]]:
-    """Values and generated fragments shared by the two shapes of sql/takeup_history.sql."""
+    """Values and generated fragments shared by the two shapes of sql/takeup_history.sql; with
+    ``built`` (``Warehouse.built_window``) the breadth is read where the holdings file keeps it
+    for these cutoffs."""
     if not 0 <= last <= MOST_CUTOFFS:
         raise InputError(
             f"Expected at most {MOST_CUTOFFS} cutoffs, found {last}.",
@@ -138,16 +140,19 @@ def _history_slots(
         "horizon": horizon,
         "breadth_days": BREADTH_DAYS,
     }
+    parts = template_parts("takeup_history")
+    if built is not None and built.has_breadth(params["as_of"], horizon, BREADTH_DAYS, last):
+        del params["breadth_days"]
+        breadth = parts["breadth_built"].format(
+            built_columns=",\n".join(f"           breadth_{k}" for k in ks),
+            built_table=built.breadth_table,
+        )
+    else:
+        breadth = _breadth_derived(parts, last)
     slots = {
         "target_level": LEVEL_COLUMN[target.level],
         "cutoff_numbers": "(VALUES " + ", ".join(f"({k})" for k in ks) + ")",
-        "held_bits": cutoff_bits_ctes("held_bits", "past", ":breadth_days", ":horizon", last),
-        # a count of the rows with bit k set, not a sum of the bit: a count's state is one
-        # 64-bit integer where a sum's is 128 bits (the history query 7.9 s -> 6.2 s at 1M)
-        "breadth_columns": ",\n".join(
-            f"           count(CASE WHEN (bits >> {k}) & 1 = 1 THEN 1 END) AS breadth_{k}"
-            for k in ks
-        ),
+        "breadth_ctes": breadth,
         "target_sums": ",\n".join(
             f"           sum(CASE WHEN t.age > {k} * :horizon THEN t.quantity ELSE 0 END) "
             f"AS before_{k},\n"
@@ -165,10 +170,40 @@ def _history_slots(
     return params, slots
 
 
-def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: int) -> Query:
+def _breadth_derived(parts: dict[str, str], last: int) -> str:
+    """The CTEs that work each customer's breadth at cutoffs 0 .. ``last`` out of ``past``."""
+    return parts["breadth_derived"].format(
+        held_bits=cutoff_bits_ctes("held_bits", "past", ":breadth_days", ":horizon", last),
+        # a count of the rows with bit k set, not a sum of the bit: a count's state is one
+        # 64-bit integer where a sum's is 128 bits (the history query 7.9 s -> 6.2 s at 1M)
+        breadth_columns=",\n".join(
+            f"           count(CASE WHEN (bits >> {k}) & 1 = 1 THEN 1 END) AS breadth_{k}"
+            for k in range(last + 1)
+        ),
+    )
+
+
+def breadth_query(as_of: datetime, horizon: int, last: int) -> Query:
+    """Every customer's breadth at cutoffs ``as_of - k * horizon``, k = 0 .. ``last``: what the
+    holdings file keeps for the default estimate (sql/takeup_history.sql, breadth_rows)."""
+    parts = template_parts("takeup_history")
+    final = parts["breadth_rows"].format(
+        breadth_names=",\n".join(f"       breadth_{k}" for k in range(last + 1))
+    )
+    return Query(
+        with_parts([parts["past"], _breadth_derived(parts, last)], final),
+        {"as_of": day_of(as_of), "horizon": horizon, "breadth_days": BREADTH_DAYS},
+        label="breadth",
+    )
+
+
+def takeup_history_query(
+    target: Target, as_of: datetime, horizon: int, last: int, built: BuiltWindow | None = None
+) -> Query:
     """Breadth and forward take-up at cutoffs ``as_of - k * horizon`` for k = 0 .. ``last``, in
-    one query (sql/takeup_history.sql); reads nothing at or after ``as_of``."""
-    params, slots = _history_slots(target, as_of, horizon, last)
+    one query (sql/takeup_history.sql); reads nothing at or after ``as_of``. ``built``: see
+    ``_history_slots``."""
+    params, slots = _history_slots(target, as_of, horizon, last, built)
     parts = template_parts("takeup_history")
     ks = range(last + 1)
     # small types: a million customers at 14 cutoffs is 56 million values
@@ -184,7 +219,8 @@ def takeup_history_query(target: Target, as_of: datetime, horizon: int, last: in
             )
         )
     )
-    return Query(with_parts([parts["ctes"].format(**slots)], final), params, label="takeup_history")
+    ctes = [parts["past"], parts["ctes"].format(**slots)]
+    return Query(with_parts(ctes, final), params, label="takeup_history")
 
 
 def takeup_history(
@@ -200,7 +236,8 @@ def _wide_history(
     wh: Warehouse, target: Target, as_of: datetime, horizon: int, last: int
 ) -> pl.DataFrame:
     """The history query's rows as they come: one per customer, every cutoff's columns."""
-    return ids_.normalise_frame(wh.fetch(takeup_history_query(target, as_of, horizon, last)))
+    query = takeup_history_query(target, as_of, horizon, last, wh.built_window)
+    return ids_.normalise_frame(wh.fetch(query))
 
 
 def _lacking_at(k: int, horizon: int) -> pl.Expr:
@@ -235,6 +272,7 @@ def takeup_cells_query(
     last: int,
     spec: AudienceSpec | None = None,
     one_by_one: int = 0,
+    built: BuiltWindow | None = None,
 ) -> Query:
     """The take-up history at cutoffs k = 1 .. ``last`` counted in the warehouse, plus the
     customers lacking the target at k = 0 .. ``one_by_one`` one row each (sql/takeup_history.sql,
@@ -247,12 +285,12 @@ def takeup_cells_query(
             f"up to {one_by_one}).",
             hint=f"pass {option('cutoffs')} 13",
         )
-    params, slots = _history_slots(target, as_of, horizon, last)
+    params, slots = _history_slots(target, as_of, horizon, last, built)
     params["one_by_one"] = one_by_one
     for col, src in (("breadth", "b"), ("had", "t"), ("bought", "t"), ("units", "t")):
         slots[f"{col}_cases"] = " ".join(f"WHEN {k} THEN {src}.{col}_{k}" for k in range(last + 1))
     parts = template_parts("takeup_history")
-    ctes = [parts["ctes"].format(**slots), parts["people_at"].format(**slots)]
+    ctes = [parts["past"], parts["ctes"].format(**slots), parts["people_at"].format(**slots)]
     final = parts["cells_plain"]
     if spec is not None and spec.rules:
         if one_by_one:
@@ -305,7 +343,7 @@ def takeup_cells(
         )
     if counting == "memory":
         return _cells_in_memory(wh, target, as_of, horizon, last, spec, one_by_one)
-    q = takeup_cells_query(target, as_of, horizon, last, spec, one_by_one)
+    q = takeup_cells_query(target, as_of, horizon, last, spec, one_by_one, wh.built_window)
     rows = ids_.normalise_frame(wh.fetch(q)).with_columns(
         pl.col("k").cast(pl.Int64),
         pl.col("grp").cast(pl.Int64),

@@ -22,6 +22,7 @@ each query (its own engine does the work there).
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import hashlib
 import os
 import time
@@ -32,6 +33,7 @@ from typing import Literal
 
 from reachlist import statements
 from reachlist.errors import InputError, brief
+from reachlist.estimate import BREADTH_DAYS, DEFAULT_HORIZON, MAX_CUTOFFS, breadth_query
 from reachlist.query import HOLDINGS, BuiltWindow, Query
 from reachlist.targets import Window, day_of, held_skus_query, mining_window
 from reachlist.warehouse import Warehouse
@@ -54,6 +56,7 @@ class Watermark:
     orders: int
     last_order: str  # ISO text ("" for no orders), so files compare exactly
     source: str  # digest of the SQL that derives the rows (the mapping and its casts included)
+    catalogue: str = ""  # digest of each SKU's category (the file keeps breadth in categories)
     format: int = FORMAT
 
     def differences(self, other: Watermark) -> list[str]:
@@ -69,6 +72,8 @@ class Watermark:
                 out.append(f"{label} {_fmt(a)} -> {_fmt(b)}")
         if self.source != other.source:
             out.append("the mapping or column types changed")
+        if self.catalogue != other.catalogue:
+            out.append("the products' categories changed")
         if self.format != other.format:
             out.append("a newer reachlist reads holdings differently")
         return out
@@ -122,6 +127,7 @@ def current_mark(wh: Warehouse) -> Watermark:
         orders=int(row["orders"] or 0),
         last_order="" if last is None else str(last),
         source=hashlib.sha256(derived.sql.encode()).hexdigest()[:16],
+        catalogue=str(row["catalogue"] or ""),
     )
 
 
@@ -131,9 +137,11 @@ def _attached_mark(wh: Warehouse, path: Path) -> Watermark | None:
     if not path.exists() or not wh.attach_read_only(path, ALIAS):
         return None
     try:
-        row = wh.fetch(statements.attached_mark(ALIAS))
-        return Watermark(**row.row(0, named=True))
-    except Exception:  # an older layout or a foreign file: treat as absent
+        row = wh.fetch(statements.attached_mark(ALIAS)).row(0, named=True)
+        # a field an older layout lacks takes its default, so the file differs and is rebuilt
+        known = {f.name for f in dataclasses.fields(Watermark)}
+        return Watermark(**{k: v for k, v in row.items() if k in known})
+    except Exception:  # a foreign file: treat as absent
         wh.detach(ALIAS)
         return None
 
@@ -163,11 +171,11 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)
             side.run_statement(statements.CREATE_WINDOW)
             if window is not None:
-                say(f"step 3 of 4: keeping who holds which SKU in the default window {window}")
-                side.holdings_table = f"main.{HOLDINGS}"
-                side.create_from_query(statements.WINDOW_PAIRS, held_skus_query(window))
-                days = {"since": day_of(window.since), "until": day_of(window.until)}
-                side.executemany(statements.INSERT_WINDOW, [days])
+                say(
+                    f"step 3 of 4: keeping who holds which SKU in the default window {window}, "
+                    f"and breadth at the {MAX_CUTOFFS + 1} default cutoffs"
+                )
+                _keep_defaults(wh, side, window)
             say("step 4 of 4: writing the watermark")
             side.run_statement(statements.CREATE_MARK)
             side.executemany(statements.INSERT_MARK, [mark.__dict__])
@@ -179,6 +187,29 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             Path(f"{tmp}.wal").unlink(missing_ok=True)
     _attach(wh, path)
     return Built(path, rows, mark.order_lines, time.perf_counter() - started)
+
+
+def _keep_defaults(wh: Warehouse, side: Warehouse, window: Window) -> None:
+    """Into the file being built (``side``, its holdings written): the pairs held in the default
+    mining window, and every customer's breadth at the default estimate's cutoffs (as_of the
+    window's end). The breadth counts categories, so the SKUs' categories are copied in while it
+    is worked out."""
+    side.holdings_table = f"main.{HOLDINGS}"
+    side.create_from_query(statements.WINDOW_PAIRS, held_skus_query(window))
+    categories = wh.fetch(Query.from_template("item_hierarchy")).to_arrow()
+    side.create_from_arrow(statements.CATEGORIES, categories, statements.ALL_FROM_SRC)
+    side.create_from_query(
+        statements.WINDOW_BREADTH, breadth_query(window.until, DEFAULT_HORIZON, MAX_CUTOFFS)
+    )
+    side.run_statement(statements.drop_table([statements.CATEGORIES]))
+    kept = {
+        "since": day_of(window.since),
+        "until": day_of(window.until),
+        "horizon": DEFAULT_HORIZON,
+        "breadth_days": BREADTH_DAYS,
+        "last_cutoff": MAX_CUTOFFS,
+    }
+    side.executemany(statements.INSERT_WINDOW, [kept])
 
 
 def _default_window(wh: Warehouse) -> Window | None:
@@ -198,11 +229,18 @@ def _use(wh: Warehouse) -> None:
     """Read the attached file: its holdings, and the pairs it keeps for the default window."""
     wh.holdings_table = f"{ALIAS}.main.{HOLDINGS}"
     kept = wh.fetch(statements.attached_window(ALIAS))
-    wh.built_window = (
-        BuiltWindow(kept["since"][0], kept["until"][0], f"{ALIAS}.main.{statements.WINDOW_PAIRS}")
-        if kept.height
-        else None
-    )
+    wh.built_window = None
+    if kept.height:
+        row = kept.row(0, named=True)
+        wh.built_window = BuiltWindow(
+            since=row["since"],
+            until=row["until"],
+            table=f"{ALIAS}.main.{statements.WINDOW_PAIRS}",
+            breadth_table=f"{ALIAS}.main.{statements.WINDOW_BREADTH}",
+            horizon=int(row["horizon"]),
+            breadth_days=int(row["breadth_days"]),
+            last=int(row["last_cutoff"]),
+        )
 
 
 def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = None) -> Prepared:

@@ -196,14 +196,26 @@ HOLDINGS = "holdings"  # the logical table of sql/holdings.sql: customer x SKU x
 
 @dataclass(frozen=True)
 class BuiltWindow:
-    """The customer x SKU pairs held in one window of days, [since, until), kept in the holdings
-    file (``reachlist holdings`` writes them for the default mining window): ``table`` is the
-    qualified name of the attached table. A query for exactly that window reads it instead of
-    summing the window's days of the holdings again (``sql/held_items.sql``)."""
+    """What the holdings file keeps for the default arguments (``reachlist holdings`` writes it):
+    the customer x SKU pairs held in the default mining window [since, until) (``table``), and
+    every customer's shopping breadth at the default estimate's cutoffs ``until - k * horizon``,
+    k = 0 .. ``last``, over ``breadth_days`` (``breadth_table``); both qualified names of attached
+    tables. A query with exactly those arguments reads them instead of working them out from the
+    holdings' days again (``sql/held_items.sql``, ``sql/takeup_history.sql``)."""
 
     since: date
     until: date
     table: str
+    breadth_table: str
+    horizon: int
+    breadth_days: int
+    last: int
+
+    def has_breadth(self, as_of: date, horizon: int, breadth_days: int, last: int) -> bool:
+        """Whether the kept breadth answers for these cutoffs (the first ``last + 1`` of them)."""
+        return (as_of, horizon, breadth_days) == (self.until, self.horizon, self.breadth_days) and (
+            0 <= last <= self.last
+        )
 
 
 def holdings_cte(dialect: Dialect, table: str | None) -> str:

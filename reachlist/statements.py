@@ -219,17 +219,25 @@ def detach(alias: str) -> str:
 MARK_TABLE = "history_mark"
 CREATE_MARK = (
     f"CREATE TABLE {MARK_TABLE} (order_lines BIGINT, quantity_sum DOUBLE, orders BIGINT, "
-    "last_order VARCHAR, source VARCHAR, format INTEGER)"
+    "last_order VARCHAR, source VARCHAR, catalogue VARCHAR, format INTEGER)"
 )
 INSERT_MARK = (
     f"INSERT INTO {MARK_TABLE} VALUES (:order_lines, :quantity_sum, :orders, :last_order, "
-    ":source, :format)"
+    ":source, :catalogue, :format)"
 )
 HOLDINGS_ORDERED = "SELECT * FROM src ORDER BY order_day"
-WINDOW_TABLE = "default_window"  # the default mining window the kept pairs were held in
-WINDOW_PAIRS = "default_window_pairs"  # customer x SKU pairs held in it
-CREATE_WINDOW = f"CREATE TABLE {WINDOW_TABLE} (since DATE, until DATE)"
-INSERT_WINDOW = f"INSERT INTO {WINDOW_TABLE} VALUES (:since, :until)"
+ALL_FROM_SRC = "SELECT * FROM src"
+WINDOW_TABLE = "default_window"  # the default arguments the kept pairs and breadth answer for
+WINDOW_PAIRS = "default_window_pairs"  # customer x SKU pairs held in the default mining window
+WINDOW_BREADTH = "default_breadth"  # each customer's breadth at the default estimate's cutoffs
+CATEGORIES = "products"  # each SKU's category, copied in while the breadth is worked out
+CREATE_WINDOW = (
+    f"CREATE TABLE {WINDOW_TABLE} (since DATE, until DATE, horizon INTEGER, breadth_days INTEGER, "
+    "last_cutoff INTEGER)"
+)
+INSERT_WINDOW = (
+    f"INSERT INTO {WINDOW_TABLE} VALUES (:since, :until, :horizon, :breadth_days, :last_cutoff)"
+)
 
 
 def row_count(table: str) -> str:
@@ -243,6 +251,4 @@ def attached_mark(alias: str) -> Query:
 
 def attached_window(alias: str) -> Query:
     """The default mining window whose held pairs an attached holdings file keeps."""
-    return Query(
-        f"SELECT since, until FROM {quote_ident(alias)}.main.{WINDOW_TABLE}", label="kept window"
-    )
+    return Query(f"SELECT * FROM {quote_ident(alias)}.main.{WINDOW_TABLE}", label="kept window")

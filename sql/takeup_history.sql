@@ -24,33 +24,17 @@
 -- thousand rows however many customers there are. The same pass gives the customers lacking the
 -- target at as_of one by one (customer_id, breadth; with rules only those a rule reaches there):
 -- the list is made of them.
+-- Breadth does not depend on the target: the holdings file keeps it for the default as_of,
+-- horizon and cutoffs (breadth_rows), and a query with those reads it (breadth_built).
 WITH
--- part: ctes
+-- part: past
 past AS (
     SELECT customer_id, sku, quantity, DAYS_BETWEEN(order_day, :as_of) AS age  -- days before as_of, >= 1
     FROM holdings
     WHERE order_day < :as_of
-),
-{held_bits},
-category_codes AS (
-    -- a small integer per category: tens of millions of (customer, category) keys hash faster
-    -- as integers than as names (the history query 11.9 s -> 10.6 s at 1M customers)
-    SELECT sku, CAST(dense_rank() OVER (ORDER BY category) AS INTEGER) AS code
-    FROM products
-    WHERE category IS NOT NULL
-),
-category_bits AS (
-    SELECT h.customer_id, pr.code, bit_or(h.bits) AS bits
-    FROM held_bits AS h
-    JOIN category_codes AS pr ON pr.sku = h.sku
-    GROUP BY h.customer_id, pr.code
-),
-breadth AS (
-    SELECT customer_id,
-{breadth_columns}
-    FROM category_bits
-    GROUP BY customer_id
-),
+)
+-- part: ctes
+{breadth_ctes},
 target_pairs AS (
     -- each customer's net quantity of each target SKU before each cutoff and in its horizon:
     -- one conditional sum per cutoff in one pass over the target's days
@@ -74,6 +58,40 @@ population AS (
     WHERE ordered_at < :as_of AND customer_id IS NOT NULL
     GROUP BY customer_id
 )
+-- part: breadth_derived
+{held_bits},
+category_codes AS (
+    -- a small integer per category: tens of millions of (customer, category) keys hash faster
+    -- as integers than as names (the history query 11.9 s -> 10.6 s at 1M customers)
+    SELECT sku, CAST(dense_rank() OVER (ORDER BY category) AS INTEGER) AS code
+    FROM products
+    WHERE category IS NOT NULL
+),
+category_bits AS (
+    SELECT h.customer_id, pr.code, bit_or(h.bits) AS bits
+    FROM held_bits AS h
+    JOIN category_codes AS pr ON pr.sku = h.sku
+    GROUP BY h.customer_id, pr.code
+),
+breadth AS (
+    SELECT customer_id,
+{breadth_columns}
+    FROM category_bits
+    GROUP BY customer_id
+)
+-- part: breadth_built
+breadth AS (
+    -- the same columns, kept by `reachlist holdings` for the default as_of, horizon and cutoffs
+    SELECT customer_id,
+{built_columns}
+    FROM {built_table}
+)
+-- part: breadth_rows
+-- what `reachlist holdings` keeps: every customer's breadth at each cutoff
+SELECT customer_id,
+{breadth_names}
+FROM breadth
+ORDER BY customer_id
 -- part: wide
 SELECT pop.customer_id,
        pop.first_age,

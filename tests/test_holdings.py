@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import os
+from datetime import datetime, timedelta
 from pathlib import Path
 
 import polars as pl
@@ -17,10 +18,16 @@ from click.testing import CliRunner
 
 from reachlist.cli import main
 from reachlist.errors import InputError
+from reachlist.estimate import (
+    DEFAULT_HORIZON,
+    MAX_CUTOFFS,
+    takeup_cells_query,
+    takeup_history_query,
+)
 from reachlist.holdings import build, holdings_path, prepare
 from reachlist.query import Query
 from reachlist.rules import mine_rules
-from reachlist.targets import day_of, held_items_query, mining_window
+from reachlist.targets import day_of, held_items_query, mining_window, parse_target
 from reachlist.warehouse import Warehouse
 
 TARGET = "SG04-104"
@@ -101,6 +108,49 @@ def test_the_pairs_kept_for_the_default_window_are_the_pairs_derived(sample: Pat
     assert [f.height for f in from_file] == [d.height for d in derived]
     assert all(f.equals(d) for f, d in zip(from_file, derived, strict=True))
     assert all(d.height for d in derived)
+
+
+def test_the_breadth_kept_for_the_default_cutoffs_is_the_breadth_derived(sample: Path) -> None:
+    target = parse_target(TARGET)
+    with Warehouse.open(sample) as wh:
+        build(wh)
+        kept = wh.built_window
+        assert kept is not None and (kept.horizon, kept.last) == (DEFAULT_HORIZON, MAX_CUTOFFS)
+        as_of = datetime.combine(kept.until, datetime.min.time())
+        # the default cutoffs, fewer of them, and arguments the file does not answer for
+        asked = [
+            (as_of, 30, 13),
+            (as_of, 30, 4),
+            (as_of, 7, 13),
+            (as_of - timedelta(days=1), 30, 13),
+        ]
+        for at, horizon, last in asked:
+            reads = kept.breadth_table
+            with_file = takeup_history_query(target, at, horizon, last, kept)
+            derived = takeup_history_query(target, at, horizon, last)
+            assert (reads in with_file.sql) == (at == as_of and horizon == 30)
+            assert reads not in derived.sql
+            assert wh.fetch(with_file).equals(wh.fetch(derived))
+            counted = takeup_cells_query(target, at, horizon, last, None, 1, kept)
+            assert (reads in counted.sql) == (reads in with_file.sql)
+            rows = wh.fetch(counted)
+            assert rows.height and rows.equals(
+                wh.fetch(takeup_cells_query(target, at, horizon, last, None, 1))
+            )
+
+
+def test_a_category_change_is_a_history_change(sample: Path) -> None:
+    with Warehouse.open(sample) as wh:
+        build(wh)
+        # a SKU moved to another category changes who is broad, though no order changed
+        wh.run_statement(
+            "UPDATE products SET category = 'Propagation' WHERE sku = "
+            "(SELECT min(sku) FROM products WHERE category <> 'Propagation')"
+        )
+    with Warehouse.open(sample) as wh:
+        prepared = prepare(wh)
+    assert prepared.state == "rebuilt"
+    assert "the products' categories changed" in prepared.note
 
 
 def test_a_changed_history_rebuilds_the_file_and_the_answers_follow(sample: Path) -> None:
