@@ -16,7 +16,7 @@ from __future__ import annotations
 import itertools
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import date, datetime, timedelta
 from typing import TYPE_CHECKING, Any
 
@@ -160,6 +160,44 @@ def choose_rules(
         )
         for i, row in enumerate(frame.iter_rows(named=True))
     )
+
+
+def breadth_for_choice(
+    rules: RuleSet,
+    *,
+    top: int,
+    rank_by: str = "leverage",
+    rule_ids: tuple[str, ...] | list[str] = (),
+) -> RuleSet:
+    """``rules`` with the breadth-matched lift worked out wherever ``choose_rules`` and
+    ``skipped_below_breadth`` read it, and nothing left pending (a rule set mined with
+    ``breadth="later"``; others come back as they are): the rules given by id; or the
+    significant ones in ranking order until ``top`` of them are not below breadth; or, ranking
+    by it, all."""
+    if rules.pending_breadth is None:
+        return rules
+    frame = rules.frame.with_row_index("_at")
+    if rule_ids:
+        rows = frame.filter(pl.col("rule_id").is_in(list(rule_ids)))["_at"].to_list()
+    elif rank_by == "breadth_lift" or rank_by not in frame.columns:
+        rows = frame["_at"].to_list()
+    else:
+        order = (
+            frame.filter(pl.col("significant"))
+            .sort([rank_by, "n_both", "rule_id"], descending=[True, True, False], nulls_last=True)[
+                "_at"
+            ]
+            .to_list()
+        )
+        n = min(top, len(order))
+        while True:  # at most log2(rules / top) rounds; each works out only the new rows
+            rules = rules.with_breadth(order[:n])
+            kept = int((~below_breadth(rules.frame).gather(order[:n])).sum())
+            if kept >= top or n >= len(order):
+                break
+            n = min(2 * n, len(order))
+        rows = []
+    return replace(rules.with_breadth(rows), pending_breadth=None)
 
 
 def below_breadth(frame: pl.DataFrame) -> pl.Series:

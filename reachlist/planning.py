@@ -22,6 +22,7 @@ from reachlist.audience import (
     Filters,
     adult_born_by,
     audience_query,
+    breadth_for_choice,
     choose_rules,
     skipped_below_breadth,
 )
@@ -278,8 +279,12 @@ def plan_list(
             since=window.since,
             until=window.until,
             progress=progress,
+            breadth="later",  # worked out below for the rules the choice reads, not all
             **request.mining,
         )
+    rules = breadth_for_choice(
+        rules, top=request.top, rank_by=request.rank_by, rule_ids=request.rule_ids
+    )
     level = check_level(rules.level)
     chosen = choose_rules(
         rules, top=request.top, rank_by=request.rank_by, rule_ids=request.rule_ids

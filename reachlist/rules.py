@@ -15,8 +15,8 @@ from __future__ import annotations
 
 import contextlib
 import math
-from collections.abc import Callable
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field, replace
 from datetime import date, datetime
 
 import numpy as np
@@ -58,6 +58,8 @@ BREADTH_ROWS = 500
 _RANK = {"sku": 0, "category": 1, "department": 2}
 
 Progress = Callable[[str], None]
+BreadthLifts = Callable[[list[list[str]]], list[tuple[float, float]]]
+"""Breadth-matched lift and the upper end of its interval for each antecedent given."""
 
 
 @dataclass(frozen=True)
@@ -72,6 +74,33 @@ class RuleSet:
     correction: str
     frame: pl.DataFrame
     note: str = ""  # how the search narrowed to stay within its budget (empty: it did not)
+    # works out breadth-matched lifts for antecedents while some are pending (see with_breadth)
+    pending_breadth: BreadthLifts | None = field(default=None, compare=False, repr=False)
+
+    def with_breadth(self, rows: Iterable[int]) -> RuleSet:
+        """The same rules with the breadth-matched lift worked out for ``rows`` (positions in
+        ``frame``) where it is still empty and would have been worked out with
+        ``breadth="now"``; the rest stay as they are, so the values read are the same either
+        way."""
+        if self.pending_breadth is None or BREADTH_LIFT not in self.frame.columns:
+            return self
+        wanted = np.zeros(self.frame.height, dtype=bool)
+        wanted[np.asarray(list(rows), dtype=np.int64)] = True
+        wanted &= _breadth_eligible(self.frame) & self.frame[BREADTH_LIFT].is_null().to_numpy()
+        todo = np.flatnonzero(wanted)
+        if todo.size == 0:
+            return self
+        antecedents = self.frame["antecedent"].to_list()
+        lifts = self.pending_breadth([antecedents[i] for i in todo])
+        values = self.frame[BREADTH_LIFT].to_list()
+        highs = self.frame[BREADTH_LIFT_HIGH].to_list()
+        for i, (v, high) in zip(todo.tolist(), lifts, strict=True):
+            values[i], highs[i] = v, high
+        frame = self.frame.with_columns(
+            pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
+            pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
+        )
+        return replace(self, frame=frame)
 
     @property
     def target_label(self) -> str:
@@ -137,16 +166,25 @@ def mine_rules(
     rank_by: str = "leverage",
     progress: Progress | None = None,
     counting: str | None = None,
+    breadth: str = "now",
 ) -> RuleSet:
     """Every rule X -> target (1..max_antecedent items at ``level``) meeting the thresholds.
 
     ``counting`` says where itemsets are counted (``COUNTING``; None: in the engine on Spark,
-    in memory elsewhere); both give the same rules.
+    in memory elsewhere); both give the same rules. ``breadth``: ``"now"`` works out the
+    breadth-matched lift of every rule that can be shown or used; ``"later"`` leaves it pending
+    for ``RuleSet.with_breadth`` to work out for the rules a caller reads (counting in memory,
+    not ranking by it; otherwise it is worked out now).
 
     Raises ``InputError`` for an unknown target (with the closest names) and
     ``EmptyResultError`` naming the threshold to relax when no rule is found.
     """
     say = progress or (lambda _msg: None)
+    if breadth not in ("now", "later"):
+        raise InputError(
+            f"Expected breadth to be now or later, found {breadth!r}.",
+            hint="pass breadth='now' (every rule that can be shown) or breadth='later'",
+        )
     tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
     lvl, kind = check_level(level), check_basket(basket)
     window = mining_window(wh, since, until)
@@ -202,9 +240,12 @@ def mine_rules(
             def rules_with(**kw: object) -> pl.DataFrame:
                 return mining.target_rules(baskets, label, **kw)  # type: ignore[arg-type]
 
+            breadth_of: list[np.ndarray] = []  # each basket's breadth, read on first use
+
             def tables_for(antecedents: list[list[str]]) -> list[np.ndarray]:
-                breadth = basket_breadth(wh, baskets, tgt, lvl, window)
-                return breadth_tables(baskets, breadth, label, antecedents)
+                if not breadth_of:
+                    breadth_of.append(basket_breadth(wh, baskets, tgt, lvl, window))
+                return breadth_tables(baskets, breadth_of[0], label, antecedents)
 
         if n == 0 or n_y == 0:
             raise EmptyResultError(
@@ -237,26 +278,37 @@ def mine_rules(
                 ),
                 hint="relax the threshold named, or widen the window",
             )
-        values: list[float | None] = [None] * frame.height
-        highs: list[float | None] = [None] * frame.height
-        if kind == "customer":
-            # breadth-matched lift for the rules that can be shown or used: the best BREADTH_ROWS
-            # by the ranking measure and the significant ones among the next (others stay empty)
-            shown = np.arange(frame.height) < BREADTH_ROWS
-            used = frame["significant"].to_numpy() & (np.arange(frame.height) < 4 * BREADTH_ROWS)
-            rows = np.flatnonzero(shown | used)
-            say(f"Matching {rows.size:,} rules on shopping breadth")
-            antecedents = frame["antecedent"].to_list()
-            lifts = lift_intervals(tables_for([antecedents[i] for i in rows]))
-            for i, (v, high) in zip(rows.tolist(), lifts, strict=True):
-                values[i], highs[i] = v, high
         frame = frame.with_columns(
-            pl.Series(BREADTH_LIFT, values, dtype=pl.Float64),
-            pl.Series(BREADTH_LIFT_HIGH, highs, dtype=pl.Float64),
+            pl.lit(None, dtype=pl.Float64).alias(BREADTH_LIFT),
+            pl.lit(None, dtype=pl.Float64).alias(BREADTH_LIFT_HIGH),
         )
+        pending: BreadthLifts | None = None
+        if kind == "customer":
+
+            def pending(antecedents: list[list[str]]) -> list[tuple[float, float]]:
+                return lift_intervals(tables_for(antecedents))
+
+        rules = RuleSet(tgt, lvl, kind, window, n, correction, frame, note, pending)
+        later = breadth == "later" and not in_engine and rank_by != BREADTH_LIFT
+        if pending is not None and not later:
+            # breadth-matched lift for every rule that can be shown or used, now (the engine's
+            # tables go when counting ends)
+            rows = np.flatnonzero(_breadth_eligible(frame))
+            say(f"Matching {rows.size:,} rules on shopping breadth")
+            rules = replace(rules.with_breadth(rows.tolist()), pending_breadth=None)
     if rank_by == BREADTH_LIFT:
-        frame = sort_by_breadth_lift(frame)
-    return RuleSet(tgt, lvl, kind, window, n, correction, frame, note)
+        rules = replace(rules, frame=sort_by_breadth_lift(rules.frame))
+    return rules
+
+
+def _breadth_eligible(frame: pl.DataFrame) -> np.ndarray:
+    """Rules whose breadth-matched lift is worked out (when asked for, or all at once): the best
+    BREADTH_ROWS by the ranking measure and the significant ones among the next (others stay
+    empty), by their position in the mined order."""
+    at = np.arange(frame.height)
+    return np.asarray(
+        (at < BREADTH_ROWS) | (frame["significant"].to_numpy() & (at < 4 * BREADTH_ROWS))
+    )
 
 
 COUNTING = ("memory", "engine")

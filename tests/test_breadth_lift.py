@@ -11,12 +11,22 @@ import pytest
 from click.testing import CliRunner
 from statsmodels.stats.contingency_tables import StratifiedTable
 
+from reachlist.audience import breadth_for_choice, choose_rules, skipped_below_breadth
 from reachlist.cli import main
 from reachlist.errors import EmptyResultError
 from reachlist.lists import preview_list
 from reachlist.planning import ListRequest, plan_list
 from reachlist.query import Query
-from reachlist.rules import RuleSet, basket_breadth, breadth_tables, load_baskets, mine_rules
+from reachlist.rules import (
+    BREADTH_LIFT,
+    BREADTH_LIFT_HIGH,
+    BREADTH_ROWS,
+    RuleSet,
+    basket_breadth,
+    breadth_tables,
+    load_baskets,
+    mine_rules,
+)
 from reachlist.sample import KEY_SKUS
 from reachlist.stats import assign_decile, breadth_deciles, mantel_haenszel_risk_ratio
 from reachlist.targets import held_items_query
@@ -149,3 +159,57 @@ def test_sizes_ranks_by_breadth_lift_and_drops_small_audiences(
     )
     assert out.exit_code == 0, out.output
     assert "Not proposed" in out.output and "b.lift" in out.output
+
+
+def test_breadth_worked_out_later_reads_as_if_worked_out_now(
+    pristine: Path, ruleset: RuleSet
+) -> None:
+    # sizes and build mine with breadth="later" and work out only the rules the choice reads
+    names = [BREADTH_LIFT, BREADTH_LIFT_HIGH]
+    with Warehouse.open(pristine, read_only=True) as wh:
+        later = mine_rules(wh, MAT, breadth="later")
+        assert later.pending_breadth is not None
+        assert later.frame.select(names).null_count().row(0) == (later.frame.height,) * 2
+        assert later.frame.drop(names).equals(ruleset.frame.drop(names))
+        last = later.frame.height - 1
+        significant = later.frame["significant"].to_list()
+        # past the best BREADTH_ROWS only significant rules are worked out, now or later
+        beyond = [i for i in range(BREADTH_ROWS, last + 1) if not significant[i]]
+        assert beyond and ruleset.frame[BREADTH_LIFT][beyond[0]] is None
+        rows = [0, 3, BREADTH_ROWS - 1, BREADTH_ROWS, beyond[0], last]
+        filled = later.with_breadth(rows).frame
+        for name in names:
+            assert repr(filled[name].gather(rows).to_list()) == repr(
+                ruleset.frame[name].gather(rows).to_list()
+            )
+            others = filled.with_row_index("at").filter(~pl.col("at").is_in(rows))
+            assert others[name].null_count() == others.height
+        skipped_any = False
+        cases = [
+            (1, "leverage"),
+            (5, "leverage"),
+            (20, "leverage"),
+            (8, "confidence"),
+            (3, "support"),
+        ]
+        for top, rank_by in cases:
+            ready = breadth_for_choice(later, top=top, rank_by=rank_by)
+            assert ready.pending_breadth is None
+            assert repr(choose_rules(ready, top=top, rank_by=rank_by)) == repr(
+                choose_rules(ruleset, top=top, rank_by=rank_by)
+            )
+            skipped = skipped_below_breadth(ready, top=top, rank_by=rank_by)
+            assert skipped == skipped_below_breadth(ruleset, top=top, rank_by=rank_by)
+            skipped_any = skipped_any or bool(skipped)
+            # only the rules read were worked out, not all the eager ones
+            assert ready.frame[BREADTH_LIFT].null_count() > ruleset.frame[BREADTH_LIFT].null_count()
+        assert skipped_any  # some choice had to look past a rule below breadth
+        ranked = breadth_for_choice(later, top=3, rank_by=BREADTH_LIFT)
+        assert repr(choose_rules(ranked, top=3, rank_by=BREADTH_LIFT)) == repr(
+            choose_rules(ruleset, top=3, rank_by=BREADTH_LIFT)
+        )
+        ids = ruleset.frame["rule_id"].gather([2, 700]).to_list()
+        by_id = breadth_for_choice(later, top=5, rule_ids=ids)
+        assert repr(choose_rules(by_id, top=5, rule_ids=ids)) == repr(
+            choose_rules(ruleset, top=5, rule_ids=ids)
+        )
