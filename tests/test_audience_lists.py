@@ -347,6 +347,10 @@ def test_holdout_is_stable_and_close_to_its_share() -> None:
     assert assign_holdout("spring", codes, 0.2).to_list() == [
         bucket("spring", c) < 0.2 for c in codes.to_list()
     ]
+    # a campaign id is bound as a value: quotes and non-ASCII hash as the text they are
+    assert assign_holdout("it's-ü;--", codes, 0.2).to_list() == [
+        bucket("it's-ü;--", c) < 0.2 for c in codes.to_list()
+    ]
     small = pl.Series("customer_id", range(-50, 3000), dtype=pl.Int16)
     assert assign_holdout("spring", small, 0.3).to_list() == [
         bucket("spring", c) < 0.3 for c in range(-50, 3000)

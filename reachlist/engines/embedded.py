@@ -29,6 +29,21 @@ def duckdb_budget() -> dict[str, str]:
     }
 
 
+def scratch_fetch(
+    sql: str, params: dict[str, Any], tables: dict[str, pl.DataFrame]
+) -> pl.DataFrame:
+    """Run SQL over in-memory frames (each registered under its name) on a private in-memory
+    DuckDB, never a warehouse: vectorised work on data already fetched (the holdout's hash)."""
+    conn = duckdb.connect()
+    try:
+        for name, frame in tables.items():
+            conn.register(name, frame)
+        out: pl.DataFrame = conn.sql(sql, params=params or None).pl()
+        return out
+    finally:
+        conn.close()
+
+
 class EmbeddedEngine(Engine):
     dialect = DUCKDB
 
