@@ -213,3 +213,20 @@ def test_breadth_worked_out_later_reads_as_if_worked_out_now(
         assert repr(choose_rules(by_id, top=5, rule_ids=ids)) == repr(
             choose_rules(ruleset, top=5, rule_ids=ids)
         )
+
+
+def test_the_screen_shows_the_breadth_the_full_output_gives(pristine: Path) -> None:
+    # the screen works out breadth only for the --top rules it shows; --json for all of them
+    w = ["-w", str(pristine)]
+    full = CliRunner().invoke(main, ["rules", MAT, *w, "--json"])
+    assert full.exit_code == 0, full.output
+    rules = json.loads(full.stdout)["rules"]
+    screen = CliRunner().invoke(main, ["rules", MAT, *w, "--top", "7"])
+    assert screen.exit_code == 0, screen.output
+    lines = screen.output.splitlines()
+    rows = {line.split()[0]: line for line in lines if line[:1] == "R" and "│" in line}
+    assert len(rows) == 7
+    for r in rules[:7]:
+        cells = [c.strip() for c in rows[r["rule_id"]].split("│")]
+        assert f"{r['breadth_lift']:.2f}" in cells  # the b.lift cell, as --json has it
+    assert sum(r["breadth_lift"] is not None for r in rules) > 7  # --json has them all

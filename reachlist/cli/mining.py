@@ -177,7 +177,18 @@ def rules(
             title = f"Strongest rules by {measure}, {n:,} {mining['basket']} baskets, {window}"
             correction = str(mining["correction"])
         else:
-            rs = mine_rules(wh, target, rank_by=measure, progress=progress, **mining)  # type: ignore[arg-type]
+            # the screen shows --top rules: their breadth-matched lift is all it reads
+            on_screen = not csv_path and not as_json
+            rs = mine_rules(
+                wh,
+                target,
+                rank_by=measure,
+                progress=progress,
+                breadth="later" if on_screen else "now",
+                **mining,  # type: ignore[arg-type]
+            )
+            if on_screen:
+                rs = rs.with_breadth(range(min(top, rs.frame.height)))
             frame, window, n, correction = rs.frame, rs.window, rs.n_baskets, rs.correction
             note = rs.note
             title = (
