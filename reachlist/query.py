@@ -197,7 +197,8 @@ HOLDINGS = "holdings"  # the logical table of sql/holdings.sql: customer x SKU x
 @dataclass(frozen=True)
 class BuiltWindow:
     """What the holdings file keeps for the default arguments (``reachlist holdings`` writes it):
-    the customer x SKU pairs held in the default mining window [since, until) (``table``), and
+    the customer x SKU pairs held in the default mining window [since, until) (``table``, SKUs
+    coded by ``items``), and
     every customer's shopping breadth at the default estimate's cutoffs ``until - k * horizon``,
     k = 0 .. ``last``, over ``breadth_days`` (``breadth_table``); both qualified names of attached
     tables. A query with exactly those arguments reads them instead of working them out from the
@@ -205,7 +206,8 @@ class BuiltWindow:
 
     since: date
     until: date
-    table: str
+    table: str  # customer_id, code: the pairs, each SKU as its code in ``items``
+    items: str  # code, sku: every SKU in products (sorted by sku, codes from 0)
     breadth_table: str
     horizon: int
     breadth_days: int

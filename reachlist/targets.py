@@ -286,7 +286,7 @@ def held_items_query(
         parts = template_parts("held_items")
         held = parts["held_skus"]
         if built is not None and (built.since, built.until) == (params["since"], params["until"]):
-            held = parts["held_skus_built"].format(built_table=built.table)
+            held = parts["held_skus_built"].format(built_table=built.table, built_items=built.items)
             del params["since"], params["until"]
         if level == "sku":
             final = parts["held_sku_pairs"].format(
@@ -304,14 +304,32 @@ def held_items_query(
     )
 
 
-def held_skus_query(window: Window) -> Query:
-    """Every customer x SKU pair held in the window, ordered by customer: the rows the holdings
-    file keeps for the default mining window (read back through ``held_items_query(built=)``)."""
+def window_items_query() -> Query:
+    """Every SKU in products with a small integer code (in SKU order): how the holdings file
+    writes the SKUs of the pairs it keeps."""
+    return Query(template_parts("held_items")["window_items_rows"], label="window_items")
+
+
+def held_codes_rows_query(window: Window, items: str) -> Query:
+    """Every customer x SKU pair held in the window, the SKU as its code in ``items``, ordered by
+    customer: the rows the holdings file keeps for the default mining window."""
     parts = template_parts("held_items")
     return Query(
-        with_parts([parts["held_skus"]], parts["held_skus_rows"]),
+        with_parts([parts["held_skus"]], parts["held_codes_rows"].format(built_items=items)),
         {"since": day_of(window.since), "until": day_of(window.until)},
-        label="held_skus",
+        label="held_codes",
+    )
+
+
+def held_codes_queries(window: Window, built: BuiltWindow | None) -> tuple[Query, Query] | None:
+    """The pairs the holdings file keeps for exactly this window, as (customer, code) rows, and
+    the code -> SKU rows: SKU-level customer baskets without encoding text (None: not kept)."""
+    if built is None or (built.since, built.until) != (day_of(window.since), day_of(window.until)):
+        return None
+    parts = template_parts("held_items")
+    return (
+        Query(parts["held_codes_built"].format(built_table=built.table), label="held_codes"),
+        Query(parts["held_items_built"].format(built_items=built.items), label="held_codes_items"),
     )
 
 

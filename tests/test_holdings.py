@@ -12,6 +12,7 @@ import os
 from datetime import datetime, timedelta
 from pathlib import Path
 
+import numpy as np
 import polars as pl
 import pytest
 from click.testing import CliRunner
@@ -26,8 +27,14 @@ from reachlist.estimate import (
 )
 from reachlist.holdings import build, holdings_path, prepare
 from reachlist.query import Query
-from reachlist.rules import mine_rules
-from reachlist.targets import day_of, held_items_query, mining_window, parse_target
+from reachlist.rules import load_baskets, mine_rules
+from reachlist.targets import (
+    day_of,
+    held_codes_queries,
+    held_items_query,
+    mining_window,
+    parse_target,
+)
 from reachlist.warehouse import Warehouse
 
 TARGET = "SG04-104"
@@ -139,6 +146,20 @@ def test_the_breadth_kept_for_the_default_cutoffs_is_the_breadth_derived(sample:
             )
 
 
+def test_baskets_from_the_kept_codes_are_the_baskets_derived(sample: Path) -> None:
+    target = parse_target(TARGET)
+    with Warehouse.open(sample) as wh:
+        default = mining_window(wh)
+        derived = load_baskets(wh, target, "sku", "customer", default)
+        build(wh)
+        assert held_codes_queries(default, wh.built_window) is not None
+        kept = load_baskets(wh, target, "sku", "customer", default)
+        assert held_codes_queries(mining_window(wh, since="2026-01-01"), wh.built_window) is None
+    assert kept.n_baskets == derived.n_baskets > 0
+    for name in ("labels", "indptr", "indices", "item_counts", "basket_ids"):
+        assert np.array_equal(getattr(kept, name), getattr(derived, name)), name
+
+
 def test_a_category_change_is_a_history_change(sample: Path) -> None:
     with Warehouse.open(sample) as wh:
         build(wh)
@@ -151,6 +172,13 @@ def test_a_category_change_is_a_history_change(sample: Path) -> None:
         prepared = prepare(wh)
     assert prepared.state == "rebuilt"
     assert "the products' categories changed" in prepared.note
+    with Warehouse.open(sample) as wh:
+        # a SKU gone from products: the kept pairs leave it out, so the file is rebuilt too
+        wh.run_statement("DELETE FROM products WHERE sku = 'SG04-101'")
+    with Warehouse.open(sample) as wh:
+        assert prepare(wh).state == "rebuilt"
+        pairs = wh.fetch(held_items_query(mining_window(wh), built=wh.built_window))
+        assert pairs.height and "SG04-101" not in set(pairs["item"].to_list())
 
 
 def test_a_changed_history_rebuilds_the_file_and_the_answers_follow(sample: Path) -> None:
