@@ -213,6 +213,10 @@ class BuiltWindow:
     breadth_days: int
     last: int
 
+    def has_pairs(self, since: date, until: date) -> bool:
+        """Whether the kept pairs are those of the window [since, until) of days."""
+        return (since, until) == (self.since, self.until)
+
     def has_breadth(self, as_of: date, horizon: int, breadth_days: int, last: int) -> bool:
         """Whether the kept breadth answers for these cutoffs (the first ``last + 1`` of them)."""
         return (as_of, horizon, breadth_days) == (self.until, self.horizon, self.breadth_days) and (

@@ -285,7 +285,7 @@ def held_items_query(
     if basket == "customer":
         parts = template_parts("held_items")
         held = parts["held_skus"]
-        if built is not None and (built.since, built.until) == (params["since"], params["until"]):
+        if built is not None and built.has_pairs(day_of(window.since), day_of(window.until)):
             held = parts["held_skus_built"].format(built_table=built.table, built_items=built.items)
             del params["since"], params["until"]
         if level == "sku":
@@ -324,7 +324,7 @@ def held_codes_rows_query(window: Window, items: str) -> Query:
 def held_codes_queries(window: Window, built: BuiltWindow | None) -> tuple[Query, Query] | None:
     """The pairs the holdings file keeps for exactly this window, as (customer, code) rows, and
     the code -> SKU rows: SKU-level customer baskets without encoding text (None: not kept)."""
-    if built is None or (built.since, built.until) != (day_of(window.since), day_of(window.until)):
+    if built is None or not built.has_pairs(day_of(window.since), day_of(window.until)):
         return None
     parts = template_parts("held_items")
     return (
