@@ -81,10 +81,9 @@ def fisher_greater(n: Any, n_x: Any, n_y: Any, n_xy: Any) -> np.ndarray:
     (population n, n_y successes, n_x draws); equal to
     ``scipy.stats.fisher_exact([[n_xy, n_x-n_xy], [n_y-n_xy, n-n_x-n_y+n_xy]], "greater")``."""
     n, n_x, n_y, n_xy = (np.asarray(v, dtype=np.int64) for v in (n, n_x, n_y, n_xy))
-    from scipy.stats import hypergeom  # here, not above: command help starts without it
+    from reachlist.stats.tails import hypergeom_sf  # here: command help starts without scipy
 
-    p = hypergeom.sf(n_xy - 1, n, n_y, n_x)
-    return np.clip(np.asarray(p, dtype=np.float64), 0.0, 1.0)
+    return np.clip(hypergeom_sf(n_xy - 1, n, n_y, n_x), 0.0, 1.0)
 
 
 def adjust_p_values(p: Any, correction: str = "holm") -> np.ndarray:

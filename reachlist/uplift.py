@@ -125,9 +125,9 @@ def shrink_log_ratio(
     kept = prior / (prior + se**2) if se > 0 else 1.0
     mean = kept * log_ratio
     sd = math.sqrt(kept) * se
-    from scipy.stats import norm
+    from reachlist.stats.tails import norm_ppf  # here: command help starts without scipy
 
-    z = float(norm.ppf(0.5 + level / 2))
+    z = norm_ppf(0.5 + level / 2)
     return math.exp(mean), math.exp(mean - z * sd), math.exp(mean + z * sd), kept
 
 

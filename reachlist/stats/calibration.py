@@ -144,9 +144,9 @@ class Calibration:
             lo_e, hi_e = float(e[j - 1]), float(e[n - j])
             method = f"empirical quantiles of {self._runs_on()}"
         elif m >= MIN_BACKTESTS_FOR_SPREAD and n >= 2:
-            from scipy.stats import t
+            from reachlist.stats.tails import t_ppf  # here: command help starts without scipy
 
-            half = float(t.ppf(1 - alpha / 2, m - 1)) * float(e.std(ddof=1)) * math.sqrt(1 + 1 / m)
+            half = t_ppf(1 - alpha / 2, m - 1) * float(e.std(ddof=1)) * math.sqrt(1 + 1 / m)
             lo_e, hi_e = float(e.mean()) - half, float(e.mean()) + half
             method = f"log-normal from {self._runs_on()}"
         else:
@@ -173,10 +173,10 @@ def _garwood(expected: float, phi: float, level: float) -> tuple[float, float]:
     k = expected / phi
     alpha = 1 - level
     # (an effective count below 1e-9 buyers has a lower limit of 0: the quantile underflows)
-    from scipy.stats import chi2
+    from reachlist.stats.tails import chi2_ppf  # here: command help starts without scipy
 
-    low = float(chi2.ppf(alpha / 2, 2 * k)) / 2 if k > 1e-9 else 0.0
-    high = float(chi2.ppf(1 - alpha / 2, 2 * k + 2)) / 2
+    low = chi2_ppf(alpha / 2, 2 * k) / 2 if k > 1e-9 else 0.0
+    high = chi2_ppf(1 - alpha / 2, 2 * k + 2) / 2
     return phi * low, phi * high
 
 

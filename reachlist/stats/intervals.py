@@ -45,9 +45,9 @@ class Interval(NamedTuple):
 
 
 def _z(level: float) -> float:
-    from scipy.stats import norm
+    from reachlist.stats.tails import norm_ppf  # here: command help starts without scipy
 
-    return float(norm.ppf(0.5 + _check.level(level) / 2.0))
+    return norm_ppf(0.5 + _check.level(level) / 2.0)
 
 
 def _pair(

@@ -95,9 +95,9 @@ def _crude(t: npt.NDArray[np.float64], measure: str) -> float:
 
 
 def _interval(log_est: float, se: float, level: float) -> tuple[float, float]:
-    from scipy.stats import norm
+    from reachlist.stats.tails import norm_ppf  # here: command help starts without scipy
 
-    z = float(norm.ppf(0.5 + level / 2.0))
+    z = norm_ppf(0.5 + level / 2.0)
     return float(np.exp(log_est - z * se)), float(np.exp(log_est + z * se))
 
 
