@@ -5,7 +5,8 @@ started buying the target after a cutoff, who bought after a send) is a sum over
 customer, SKU and day (``sql/holdings.sql``). Without a built table each query derives those rows
 from the order lines itself; ``build`` writes them once into a DuckDB file beside the warehouse
 (``garden.duckdb`` -> ``garden.holdings.duckdb``), sorted by day, with the watermark of the
-history they came from, and beside them the customer x SKU pairs held in the default mining
+history they came from, and beside them each customer's first order time (any estimate's
+population at any cutoff, ``sql/first_orders.sql``) and the customer x SKU pairs held in the default mining
 window (the year up to the latest order: what ``rules`` and ``sizes`` read unless told otherwise),
 so a default run reads its pairs instead of summing a year of days. ``prepare`` attaches that
 file when its watermark still matches the warehouse and rebuilds it when the history has changed,
@@ -34,7 +35,7 @@ from typing import Literal
 from reachlist import statements
 from reachlist.errors import InputError, brief
 from reachlist.estimate import BREADTH_DAYS, DEFAULT_HORIZON, MAX_CUTOFFS, breadth_query
-from reachlist.query import HOLDINGS, BuiltWindow, Query
+from reachlist.query import FIRST_ORDERS, HOLDINGS, BuiltWindow, Query
 from reachlist.targets import (
     Window,
     day_of,
@@ -47,7 +48,7 @@ from reachlist.warehouse import Warehouse
 __all__ = ["ALIAS", "Built", "Prepared", "Watermark", "build", "holdings_path", "prepare"]
 
 ALIAS = "reachlist_holdings"  # the attached file's name inside the warehouse connection
-FORMAT = 3  # bumped when the table's layout or meaning changes: older files are rebuilt
+FORMAT = 4  # bumped when the table's layout or meaning changes: older files are rebuilt
 BATCH_ROWS = 500_000  # rows moved from the warehouse to the file at a time
 
 Progress = Callable[[str], None]
@@ -175,6 +176,8 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
         reader = wh.stream_arrow(Query.from_template("holdings_rows"), BATCH_ROWS)
         with Warehouse.open(tmp, create=True) as side:
             side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)
+            first = wh.fetch(Query.from_template("first_orders_rows")).to_arrow()
+            side.create_from_arrow(FIRST_ORDERS, first, statements.ALL_FROM_SRC)
             side.run_statement(statements.CREATE_WINDOW)
             if window is not None:
                 say(

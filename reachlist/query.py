@@ -192,6 +192,12 @@ _LEADING_WITH = re.compile(r"^(\s*(?:--[^\n]*\n\s*)*)WITH\s", re.IGNORECASE)
 
 
 HOLDINGS = "holdings"  # the logical table of sql/holdings.sql: customer x SKU x day
+FIRST_ORDERS = "first_orders"  # of sql/first_orders.sql: each customer's first order time
+KEPT_TABLES = {
+    # logical table -> the columns the holdings file keeps of it (the same as the derivation's)
+    HOLDINGS: "customer_id, sku, order_day, quantity, bought",
+    FIRST_ORDERS: "customer_id, first_at",
+}
 
 
 @dataclass(frozen=True)
@@ -224,21 +230,27 @@ class BuiltWindow:
         )
 
 
-def holdings_cte(dialect: Dialect, table: str | None) -> str:
-    """How a query reads ``holdings``: the table built by ``reachlist holdings`` when there is
-    a fresh one (``table``, already qualified), else the same rows derived from the order lines
-    inside the query."""
+def holdings_cte(dialect: Dialect, table: str | None, name: str = HOLDINGS) -> str:
+    """How a query reads ``holdings`` (or another of ``KEPT_TABLES``): the table built by
+    ``reachlist holdings`` when there is a fresh one (``table``, already qualified), else the
+    same rows derived from the order history inside the query (``sql/<name>.sql``)."""
     spelled = dialect.cte_hint if table is None else dialect.table_cte_hint
     hint = f" {spelled}" if spelled else ""
     if table is not None:
-        body = f"SELECT customer_id, sku, order_day, quantity, bought FROM {table}"
+        body = f"SELECT {KEPT_TABLES[name]} FROM {table}"
     else:
-        body = _strip_comments(template_text(HOLDINGS)).strip()
-    return f"{HOLDINGS} AS{hint} ({body})"
+        body = _strip_comments(template_text(name)).strip()
+    return f"{name} AS{hint} ({body})"
 
 
-def _reads_holdings(sql: str) -> bool:
-    return re.search(rf"\b{HOLDINGS}\b", _strip_comments(sql)) is not None
+def kept_beside(holdings: str, name: str) -> str:
+    """The qualified name of kept table ``name`` in the file whose holdings are ``holdings``."""
+    schema, dot, _ = holdings.rpartition(".")
+    return f"{schema}{dot}{name}"
+
+
+def _reads(sql: str, name: str) -> bool:
+    return re.search(rf"\b{name}\b", _strip_comments(sql)) is not None
 
 
 def _two_argument_macro(sql: str, name: str, expand: Callable[[str, str], str]) -> str:
@@ -274,11 +286,14 @@ def render(
     query: Query, dialect: Dialect, mapping: Mapping, holdings: str | None = None
 ) -> Rendered:
     """The exact SQL text and parameters one warehouse will run. ``holdings`` names the built
-    holdings table when a fresh one is attached (see :mod:`reachlist.holdings`)."""
+    holdings table when a fresh one is attached (see :mod:`reachlist.holdings`); the other kept
+    tables lie beside it."""
     sql, params = _expand_lists(query.sql.strip() + "\n", query.params)
     extra: list[str] = []
-    if _reads_holdings(sql):
-        extra.append(holdings_cte(dialect, holdings))
+    for name in KEPT_TABLES:
+        if _reads(sql, name):
+            table = None if holdings is None else kept_beside(holdings, name)
+            extra.append(holdings_cte(dialect, table, name))
     views = views_sql(mapping, referenced_tables(sql + "\n".join(extra)), dialect) + extra
     if views:
         prelude = ",\n     ".join(views)

@@ -53,10 +53,10 @@ target AS (
     GROUP BY customer_id
 ),
 population AS (
-    SELECT customer_id, max(DAYS_BETWEEN(CAST(ordered_at AS DATE), :as_of)) AS first_age
-    FROM orders
-    WHERE ordered_at < :as_of AND customer_id IS NOT NULL
-    GROUP BY customer_id
+    -- a customer at as_of: first ordered before it (first_orders, kept by `reachlist holdings`)
+    SELECT customer_id, DAYS_BETWEEN(CAST(first_at AS DATE), :as_of) AS first_age
+    FROM first_orders
+    WHERE first_at < :as_of
 )
 -- part: breadth_derived
 {held_bits},

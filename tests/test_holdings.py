@@ -75,13 +75,18 @@ def test_every_answer_is_the_same_with_and_without_the_holdings_file(sample: Pat
 
 def test_the_file_holds_what_the_derivation_gives(sample: Path) -> None:
     rows = "SELECT customer_id, sku, order_day, quantity, bought FROM holdings ORDER BY 1, 2, 3"
+    firsts = Query.from_template("first_orders_rows")
     with Warehouse.open(sample) as wh:
         derived = wh.fetch(Query(rows))
+        derived_firsts = wh.fetch(firsts)
         built = build(wh)
         assert wh.holdings_table is not None
         attached = wh.fetch(Query(rows))
+        assert "reachlist_holdings.main.first_orders" in wh.render(firsts).sql
+        attached_firsts = wh.fetch(firsts)
     assert built.rows == derived.height == attached.height
     assert attached.equals(derived)
+    assert derived_firsts.height > 0 and attached_firsts.equals(derived_firsts)
     # the sample has lines of one SKU bought twice on a day, returns and exact duplicates: the
     # day's net quantity is their sum, duplicates once
     assert built.rows < built.order_lines
@@ -144,6 +149,24 @@ def test_the_breadth_kept_for_the_default_cutoffs_is_the_breadth_derived(sample:
             assert rows.height and rows.equals(
                 wh.fetch(takeup_cells_query(target, at, horizon, last, None, 1))
             )
+
+
+def test_the_population_from_kept_first_orders_is_the_population_derived(sample: Path) -> None:
+    # a customer at a cutoff is one who first ordered before it: asked at the day of some
+    # customers' first order (they are not customers yet) and a day later (they are)
+    target = parse_target(TARGET)
+    with Warehouse.open(sample) as wh:
+        first = wh.fetch(Query.from_template("first_orders_rows"))["first_at"]
+        day = first.sort()[first.len() // 2]
+        at = datetime.combine(day.date() if isinstance(day, datetime) else day, datetime.min.time())
+        asked = [(at, 30, 6), (at + timedelta(days=1), 30, 6), (at, 7, 2)]
+        derived = [wh.fetch(takeup_history_query(target, *a)) for a in asked]
+        build(wh)
+        assert wh.holdings_table is not None
+        kept = [wh.fetch(takeup_history_query(target, *a)) for a in asked]
+    for d, k in zip(derived, kept, strict=True):
+        assert d.height > 0 and k.equals(d)
+    assert derived[1].height > derived[0].height  # those who first ordered that day joined
 
 
 def test_baskets_from_the_kept_codes_are_the_baskets_derived(sample: Path) -> None:
