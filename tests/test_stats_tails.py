@@ -86,7 +86,14 @@ def test_scalars_broadcast_against_arrays() -> None:
 @pytest.mark.parametrize(
     "code",
     [
-        "from reachlist.measures import rule_measures; rule_measures(100, [10, 20], 30, [5, 9])",
+        pytest.param(
+            "from reachlist.measures import rule_measures; rule_measures(100, [10, 20], 30, [5, 9])",
+            marks=pytest.mark.skipif(
+                tails._HYPERGEOM_SF is None,
+                reason="this SciPy has no scipy.special._ufuncs._hypergeom_sf (1.14 on have it): "
+                "the exact test falls back to scipy.stats",
+            ),
+        ),
         "from reachlist.stats import wilson_interval; wilson_interval([3], [40], 0.9)",
         "from reachlist.stats import holdout_power; holdout_power(10000, 0.25, 0.02, 0.1)",
     ],
@@ -109,3 +116,14 @@ def test_every_tail_reachlist_reads_comes_from_this_module() -> None:
         or "import scipy.stats" in p.read_text(encoding="utf-8")
     )
     assert readers == ["stats/tails.py"], readers
+
+
+def test_a_scipy_without_the_tail_ufunc_falls_back_to_scipy_stats(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # Source: scipy.stats.hypergeom.sf, which the fallback calls.
+    monkeypatch.setattr(tails, "_HYPERGEOM_SF", None)
+    k = np.arange(-2, 8)
+    got = tails.hypergeom_sf(k, 20, 8, 6)
+    assert got.dtype == np.float64
+    np.testing.assert_array_equal(got, stats.hypergeom.sf(k, 20, 8, 6))

@@ -66,7 +66,7 @@ def hypergeom_sf(k: Any, total: Any, good: Any, draws: Any) -> npt.NDArray[np.fl
     k, total, good, draws = np.broadcast_arrays(
         *(np.asarray(v, dtype=np.int64) for v in (k, total, good, draws))
     )
-    if _HYPERGEOM_SF is None:  # pragma: no cover - a SciPy without the private ufunc
+    if _HYPERGEOM_SF is None:  # a SciPy without the private ufunc (before 1.14)
         from scipy.stats import hypergeom
 
         return np.asarray(hypergeom.sf(k, total, good, draws), dtype=np.float64)
