@@ -5,10 +5,10 @@ started buying the target after a cutoff, who bought after a send) is a sum over
 customer, SKU and day (``sql/holdings.sql``). Without a built table each query derives those rows
 from the order lines itself; ``build`` writes them once into a DuckDB file beside the warehouse
 (``garden.duckdb`` -> ``garden.holdings.duckdb``), sorted by day, with the watermark of the
-history they came from, and beside them each customer's first order time (any estimate's
-population at any cutoff, ``sql/first_orders.sql``) and the customer x SKU pairs held in the default mining
-window (the year up to the latest order: what ``rules`` and ``sizes`` read unless told otherwise),
-so a default run reads its pairs instead of summing a year of days. ``prepare`` attaches that
+history they came from, and beside them each customer's first order time (who was a customer
+at any cutoff, ``sql/first_orders.sql``) and the customer x SKU pairs held in the default mining
+window (the year up to the latest order: what ``rules`` and ``sizes`` read unless told
+otherwise), so a default run reads its pairs instead of summing a year of days. ``prepare`` attaches that
 file when its watermark still matches the warehouse and rebuilds it when the history has changed,
 so the answers never differ from the derived ones (the tests compare the two).
 
@@ -172,7 +172,10 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
     tmp = path.with_name(f"{path.name}.part-{os.getpid()}")
     tmp.unlink(missing_ok=True)
     try:
-        say(f"step 2 of 4: netting {mark.order_lines:,} order lines by customer, SKU and day")
+        say(
+            f"step 2 of 4: netting {mark.order_lines:,} order lines by customer, SKU and day, "
+            "and each customer's first order"
+        )
         reader = wh.stream_arrow(Query.from_template("holdings_rows"), BATCH_ROWS)
         with Warehouse.open(tmp, create=True) as side:
             side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)

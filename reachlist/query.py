@@ -230,8 +230,8 @@ class BuiltWindow:
         )
 
 
-def holdings_cte(dialect: Dialect, table: str | None, name: str = HOLDINGS) -> str:
-    """How a query reads ``holdings`` (or another of ``KEPT_TABLES``): the table built by
+def kept_cte(dialect: Dialect, table: str | None, name: str = HOLDINGS) -> str:
+    """How a query reads ``holdings`` or another of ``KEPT_TABLES``: the table built by
     ``reachlist holdings`` when there is a fresh one (``table``, already qualified), else the
     same rows derived from the order history inside the query (``sql/<name>.sql``)."""
     spelled = dialect.cte_hint if table is None else dialect.table_cte_hint
@@ -293,7 +293,7 @@ def render(
     for name in KEPT_TABLES:
         if _reads(sql, name):
             table = None if holdings is None else kept_beside(holdings, name)
-            extra.append(holdings_cte(dialect, table, name))
+            extra.append(kept_cte(dialect, table, name))
     views = views_sql(mapping, referenced_tables(sql + "\n".join(extra)), dialect) + extra
     if views:
         prelude = ",\n     ".join(views)
