@@ -90,15 +90,29 @@ class Baskets:
             key = key[fresh]
         i = (key & ((1 << shift) - 1)).astype(np.int32)
         key >>= shift  # now the basket codes, ascending
-        self.indptr = np.zeros(n + 1, dtype=np.int64)
-        np.cumsum(np.bincount(key, minlength=n), out=self.indptr[1:])
-        self.indices = i
-        self.item_counts = np.bincount(i, minlength=n_items).astype(np.int64)
+        indptr = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(np.bincount(key, minlength=n), out=indptr[1:])
+        self._fill(key, indptr, i, labels, basket_ids)
+
+    def _fill(
+        self,
+        line_baskets: np.ndarray,
+        indptr: np.ndarray,
+        items: np.ndarray,
+        labels: list[str],
+        basket_ids: np.ndarray | None,
+    ) -> None:
+        """The indexes from deduplicated lines in basket order (``line_baskets`` ascending, the
+        ``items`` of a basket ascending; ``indptr`` where each basket's lines start)."""
+        n, n_items = indptr.size - 1, len(labels)
+        self.indptr = indptr
+        self.indices = items
+        self.item_counts = np.bincount(items, minlength=n_items).astype(np.int64)
         # item-major index: the baskets of each item, ascending (a stable sort of the lines)
-        order = np.argsort(i.astype(np.uint16) if n_items <= 1 << 16 else i, kind="stable")
+        order = np.argsort(items.astype(np.uint16) if n_items <= 1 << 16 else items, kind="stable")
         # narrowed before the gather: a random gather of 4-byte values moves half the memory
         # (9.6M lines: 0.19-0.44 s -> 0.11-0.13 s)
-        self._tids = key.astype(np.int32 if n < 1 << 31 else np.int64)[order]
+        self._tids = line_baskets.astype(np.int32 if n < 1 << 31 else np.int64)[order]
         self._tid_ptr = np.zeros(n_items + 1, dtype=np.int64)
         np.cumsum(self.item_counts, out=self._tid_ptr[1:])
         self._rows: dict[int, np.ndarray] = {}
@@ -133,6 +147,39 @@ class Baskets:
         return cls(
             basket_codes, item_codes, labels, _n_checked(basket_ids.size, n_baskets), basket_ids
         )
+
+    @classmethod
+    def from_sorted(
+        cls, basket: pl.Series, item_codes: np.ndarray, labels: Sequence[str]
+    ) -> Baskets | None:
+        """Baskets from lines already deduplicated and in order: ``basket`` ascending (any key
+        type polars sorts), the ``item_codes`` (indices into ``labels``) of one basket strictly
+        ascending; the same baskets as ``from_arrays`` gives, without sorting or hashing the
+        keys (the pairs the holdings file keeps come so). None when the lines are not in that
+        order (checked: the caller then uses ``from_arrays``)."""
+        labels = [str(x) for x in labels]
+        items = np.asarray(item_codes).ravel()
+        if (
+            basket.len() != items.size
+            or items.size == 0
+            or basket.null_count()
+            or not basket.is_sorted()
+            or len(set(labels)) != len(labels)
+            or not np.issubdtype(items.dtype, np.integer)
+            or items.min() < 0
+            or items.max() >= len(labels)
+        ):
+            return None
+        line_baskets = basket.rle_id().to_numpy()  # 0, 0, 1, 2, 2, ...: the basket codes
+        same = line_baskets[1:] == line_baskets[:-1]
+        if bool(np.any(same & (items[1:] <= items[:-1]))):  # an item repeated or out of order
+            return None
+        starts = np.flatnonzero(~same) + 1
+        indptr = np.concatenate(([0], starts, [items.size])).astype(np.int64)
+        ids = basket.gather(np.concatenate(([0], starts))).to_numpy()
+        out = cls.__new__(cls)
+        out._fill(line_baskets, indptr, items.astype(np.int32, copy=False), labels, ids)
+        return out
 
     @classmethod
     def from_frame(

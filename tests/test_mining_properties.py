@@ -255,6 +255,51 @@ def test_constructors_agree_and_ignore_repeats(transactions) -> None:
         assert frequent_itemsets(b, 1).equals(frequent_itemsets(from_tx, 1))
 
 
+def _same_indexes(a: Baskets, b: Baskets) -> None:
+    for name in ("indptr", "indices", "item_counts", "_tids", "_tid_ptr", "labels"):
+        assert np.array_equal(getattr(a, name), getattr(b, name)), name
+    assert a.basket_ids is not None and b.basket_ids is not None
+    assert a.basket_ids.tolist() == b.basket_ids.tolist()
+
+
+@SETTINGS
+@given(baskets_st, st.booleans(), st.data())
+def test_sorted_lines_give_the_same_baskets(transactions, text_keys, data) -> None:
+    # the holdings file's pairs come in customer order, each customer's codes ascending:
+    # Baskets.from_sorted must index them exactly as the general constructor does, and refuse
+    # (None) any other order instead of building wrong baskets
+    keys = [f"c{3 * k:03d}" if text_keys else 3 * k - 40 for k in range(len(transactions))]
+    lines = sorted({(keys[k], ITEMS.index(x)) for k, t in enumerate(transactions) for x in t})
+    if not lines:
+        return
+    basket = pl.Series("basket", [b for b, _ in lines])
+    codes = np.array([i for _, i in lines], dtype=np.int64)
+    fast = Baskets.from_sorted(basket, codes, ITEMS)
+    assert fast is not None
+    _same_indexes(fast, Baskets.from_arrays(basket, codes, labels=ITEMS))
+    shuffled = data.draw(st.permutations(range(len(lines))))
+    if shuffled != sorted(shuffled) and [lines[k] for k in shuffled] != lines:
+        moved = Baskets.from_sorted(basket.gather(shuffled), codes[list(shuffled)], ITEMS)
+        assert moved is None
+    repeat = data.draw(st.integers(0, len(lines) - 1))
+    doubled = np.insert(codes, repeat, codes[repeat])
+    assert (
+        Baskets.from_sorted(basket.gather(sorted([*range(len(lines)), repeat])), doubled, ITEMS)
+        is None
+    )
+
+
+def test_sorted_lines_refuse_what_they_cannot_index() -> None:
+    basket = pl.Series("basket", [1, 1, 2])
+    assert Baskets.from_sorted(basket, np.array([0, 1, 7]), ["a", "b"]) is None  # code too big
+    assert Baskets.from_sorted(basket, np.array([0, -1, 1]), ["a", "b"]) is None
+    assert Baskets.from_sorted(basket, np.array([0, 1]), ["a", "b"]) is None  # lengths differ
+    assert Baskets.from_sorted(pl.Series("basket", [1, None, 2]), np.zeros(3), ["a"]) is None
+    assert Baskets.from_sorted(basket, np.array([0, 1, 0]), ["a", "a"]) is None  # labels repeat
+    ok = Baskets.from_sorted(basket, np.array([0, 1, 0]), ["a", "b"])
+    assert ok is not None and ok.count(["a", "b"]) == 1 and ok.count(["a"]) == 2
+
+
 def test_min_support_is_exact_decimal() -> None:
     # 30 baskets, min_support 0.1 -> 3 baskets (0.1 * 30 is 3.0000000000000004 in floats)
     b = Baskets.from_transactions([["a"]] * 3 + [["b"]] * 27)
