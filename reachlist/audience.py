@@ -41,6 +41,7 @@ __all__ = [
     "cutoff_bits_ctes",
     "reach_at_cutoffs_parts",
     "reach_at_cutoffs_query",
+    "reach_bits_at_cutoffs_query",
     "reach_query",
 ]
 
@@ -463,6 +464,19 @@ def reach_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query
     ctes, params = reach_at_cutoffs_parts(spec, cutoffs)
     final = template_parts("reach_at_cutoffs")["select"].format(reached_union=_reached_union(spec))
     return Query(with_parts(ctes[:-1], final), params, label="audience reach at cutoffs")
+
+
+def reach_bits_at_cutoffs_query(spec: AudienceSpec, cutoffs: list[datetime]) -> Query:
+    """(customer_id, rule_rank, bits): the answer of :func:`reach_at_cutoffs_query` one row per
+    customer and rule, bit c - 1 of ``bits`` set when the rule reaches the customer at cutoff c
+    (bits at and above ``len(cutoffs)`` are clear). A tenth of the rows at ten cutoffs and no
+    sort: the estimate reads it (at 1M customers 7.9M rows of reach became about 0.8M)."""
+    ctes, params = reach_at_cutoffs_parts(spec, cutoffs)
+    union = "\n    UNION ALL\n".join(
+        _PARTS["cutoff_bits_line"].format(k=r.rank) for r in spec.rules
+    )
+    final = template_parts("reach_at_cutoffs")["bits_select"].format(bits_union=union)
+    return Query(with_parts(ctes[:-1], final), params, label="audience reach bits at cutoffs")
 
 
 def reach_query(spec: AudienceSpec) -> Query:

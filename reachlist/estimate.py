@@ -46,7 +46,7 @@ from reachlist.audience import (
     AudienceSpec,
     cutoff_bits_ctes,
     reach_at_cutoffs_parts,
-    reach_at_cutoffs_query,
+    reach_bits_at_cutoffs_query,
     reach_query,
 )
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
@@ -331,7 +331,8 @@ def takeup_cells(
 
     ``counting="engine"`` counts in the warehouse (``takeup_cells_query``: one query whose
     result does not grow with the customers); ``"memory"`` fetches one row per customer
-    (``takeup_history``) and who the rules reach (``reach_at_cutoffs_query``) and counts here.
+    (``takeup_history``) and who the rules reach (``reach_bits_at_cutoffs_query``) and counts
+    here.
     The default follows the warehouse: in the engine on a cluster (Spark), in memory on one
     machine, where the counting query measured slower (bench/estimate_history.py)."""
     if counting is None:
@@ -407,40 +408,36 @@ def _cells_in_memory(
         )
         for f in _per_cutoff(full, horizon, one_by_one)
     ]
+    # Who each rule reaches, one row per (customer, rule) with a bit per cutoff, placed once at
+    # the customer's row of the history (in row order, so every cell adds its customers in the
+    # order the rows come); each cutoff's groups are then read from the bits.
+    row = rank = bits = np.zeros(0, np.int64)
     found = None
     if spec is not None and spec.rules:
         ats = [as_of - timedelta(days=horizon * k) for k in range(last + 1)]
-        found = ids_.normalise_frame(wh.fetch(reach_at_cutoffs_query(spec, ats))).select(
-            (pl.col("cutoff").cast(pl.Int64) - 1).alias("k"),
+        found = ids_.normalise_frame(wh.fetch(reach_bits_at_cutoffs_query(spec, ats))).select(
             "customer_id",
             pl.col("rule_rank").cast(pl.Int64),
+            pl.col("bits").cast(pl.Int64),
         )
-    # Who a rule reaches at cutoff k, as positions in the history's rows (one join for all
-    # cutoffs, millions of rows), split by cutoff once; each cutoff's cells are then counted from
-    # positions, not from one join per cutoff and group.
-    parts: dict[Any, pl.DataFrame] = {}
-    if found is not None:
         rows = full.select("customer_id").with_row_index("row")
-        placed = found.filter(pl.col("k") >= 1).join(rows, on="customer_id", how="inner")
-        parts = placed.partition_by("k", as_dict=True, include_key=False)
+        placed = found.join(rows, on="customer_id", how="inner").sort("row", "rule_rank")
+        row = placed["row"].to_numpy().astype(np.int64)
+        rank = placed["rule_rank"].to_numpy()
+        bits = placed["bits"].to_numpy()
     cells = []
     for k in range(1, last + 1):
         lacking = full.select(_lacking_at(k, horizon)).to_series().to_numpy()
         where = [np.flatnonzero(lacking)]
         groups = [np.full(where[0].size, EVERYONE, dtype=np.int64)]
         if found is not None:
-            part = parts.get((k,))
-            if part is None:
-                at, rank = np.zeros(0, np.int64), np.zeros(0, np.int64)
-            else:  # in the history's order, as a join would give them
-                order = part["row"].to_numpy().argsort(kind="stable")
-                at = part["row"].to_numpy()[order].astype(np.int64)
-                rank = part["rule_rank"].to_numpy()[order]
-            kept = lacking[at]
-            where.append(at[kept])
-            groups.append(rank[kept].astype(np.int64))
+            hit = ((bits >> k) & 1).astype(bool)
+            hit &= lacking[row]
+            at = row[hit]
+            where.append(at)
+            groups.append(rank[hit])
             anyone = np.zeros(full.height, dtype=bool)
-            anyone[at[kept]] = True
+            anyone[at] = True
             where.append(np.flatnonzero(anyone))
             groups.append(np.full(where[-1].size, COMBINED, dtype=np.int64))
         at_all = np.concatenate(where)
@@ -454,7 +451,11 @@ def _cells_in_memory(
         )
     if found is None:
         return TakeUpCells(cells, wide, None)
-    now_reached = found.filter(pl.col("k") == 0).select("customer_id", "rule_rank")
+    now_reached = (
+        found.filter((pl.col("bits") & 1) == 1)
+        .select("customer_id", "rule_rank")
+        .sort("rule_rank", "customer_id")
+    )
     reached = now_reached.join(wide[0].select("customer_id"), on="customer_id", how="semi")
     now = wide[0].join(reached.select("customer_id").unique(), on="customer_id", how="semi")
     return TakeUpCells(cells, [now.sort("customer_id")], reached)

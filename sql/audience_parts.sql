@@ -63,3 +63,7 @@ rule_{k} AS (
     SELECT ks.k + 1 AS cutoff, r.customer_id, {k} AS rule_rank
     FROM rule_{k} AS r
     JOIN cutoff_numbers AS ks ON ((r.bits >> ks.k) & 1) = 1
+
+-- part: cutoff_bits_line
+    SELECT r.customer_id, {k} AS rule_rank, r.bits
+    FROM rule_{k} AS r

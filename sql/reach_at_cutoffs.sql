@@ -37,6 +37,13 @@ FROM (
 {reached_union}
 ) AS reached
 ORDER BY cutoff, rule_rank, customer_id
+-- part: bits_select
+-- the same answer one row per (customer, rule): bit k of bits set when the rule reaches the
+-- customer at cutoff k + 1 (a tenth of the rows above, for a caller that reads bits)
+SELECT customer_id, rule_rank, bits
+FROM (
+{bits_union}
+) AS reached
 -- part: reached_cte
 reached AS (
 {reached_union}

@@ -16,7 +16,13 @@ import polars as pl
 import pytest
 
 from reachlist import ids
-from reachlist.audience import AudienceSpec, choose_rules, reach_at_cutoffs_query, reach_query
+from reachlist.audience import (
+    AudienceSpec,
+    choose_rules,
+    reach_at_cutoffs_query,
+    reach_bits_at_cutoffs_query,
+    reach_query,
+)
 from reachlist.errors import InputError
 from reachlist.estimate import (
     COMBINED,
@@ -121,6 +127,20 @@ def _reach_at_once(wh: Warehouse, spec: AudienceSpec, ats: list[datetime]) -> li
     ]
 
 
+def _reach_bits_at_once(
+    wh: Warehouse, spec: AudienceSpec, ats: list[datetime]
+) -> list[pl.DataFrame]:
+    # the one-row-per-customer-and-rule form the estimate reads, bit c - 1 for cutoff c
+    found = ids.normalise_frame(wh.fetch(reach_bits_at_cutoffs_query(spec, ats)))
+    bits = pl.col("bits").cast(pl.Int64)
+    assert found.filter(bits >= 1 << len(ats)).height == 0  # no bit beyond the last cutoff
+    assert found.filter(bits <= 0).height == 0  # a row is a rule reaching someone somewhere
+    return [
+        found.filter(bits // (1 << (c - 1)) % 2 == 1).select("customer_id", "rule_rank")
+        for c in range(1, len(ats) + 1)
+    ]
+
+
 def _same_reach(got: list[pl.DataFrame], want: list[pl.DataFrame]) -> None:
     for c, (a, b) in enumerate(zip(got, want, strict=True), start=1):
         a, b = (f.select(pl.all().cast(pl.Int64)).sort(f.columns) for f in (a, b))
@@ -132,7 +152,9 @@ def test_reach_at_every_cutoff_equals_one_query_per_cutoff(pristine: Path) -> No
         spec = plan_list(wh, ListRequest("SG04-104"), now=datetime(2026, 10, 1)).spec
         ats = [datetime(2026, 9, 1) - timedelta(days=30 * k) for k in range(13)]
         got, want = _reach_at_once(wh, spec, ats), _reach_one_by_one(wh, spec, ats)
+        as_bits = _reach_bits_at_once(wh, spec, ats)
     _same_reach(got, want)
+    _same_reach(as_bits, want)
     assert all(f.height > 0 for f in got) and len(spec.rules) > 1
 
 
@@ -148,6 +170,7 @@ def test_pairs_sharing_a_pair_key_give_the_same_rows(pristine: Path) -> None:
         for q in (
             takeup_history_query(parse_target("SG04-104"), as_of, 30, 13),
             reach_at_cutoffs_query(spec, ats),
+            reach_bits_at_cutoffs_query(spec, ats),
         ):
             want = wh.fetch(q)
             r = render(q, lumped, wh.typed_mapping, wh.holdings_table)
@@ -168,6 +191,7 @@ def test_postgres_reaches_the_same_customers(tmp_path: Path, pg_url: str, pg_sch
         on_pg = _reach_at_once(pg, spec, ats)
         _same_reach(on_pg, _reach_one_by_one(pg, spec, ats))
         _same_reach(on_pg, _reach_at_once(dk, spec, ats))
+        _same_reach(_reach_bits_at_once(pg, spec, ats), on_pg)
     assert on_pg[0].height > 0
 
 
