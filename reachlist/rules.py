@@ -165,11 +165,11 @@ def _kept_baskets(wh: Warehouse, pairs_query: Query, items_query: Query) -> Bask
     order = sorted(range(len(names)), key=names.__getitem__)  # labels in sorted order
     new_code = np.full(items.height, -1, dtype=np.int64)
     new_code[present[order]] = np.arange(len(order))
-    labels = [names[k] for k in order]
+    labels, recoded = [names[k] for k in order], new_code[codes]
     # kept in customer order with each customer's codes ascending: no sort or hash is needed
     # (checked; in any other order the general path builds the same baskets)
-    fast = Baskets.from_sorted(pairs["basket"], new_code[codes], labels)
-    return fast or Baskets.from_arrays(pairs["basket"], new_code[codes], labels=labels)
+    fast = Baskets.from_sorted(pairs["basket"], recoded, labels)
+    return fast or Baskets.from_arrays(pairs["basket"], recoded, labels=labels)
 
 
 def mine_rules(
