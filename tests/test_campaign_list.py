@@ -102,9 +102,11 @@ def test_state_file_and_warehouse_logs_are_both_listed(unlogged: Path, tmp_path:
 
 
 def test_no_log_yet_is_an_empty_listing_not_an_error(unlogged: Path) -> None:
-    result = run("campaigns", "-w", str(unlogged))
+    result = run("--width", "80", "campaigns", "-w", str(unlogged))
     assert result.exit_code == 0, result.output
-    assert "0 campaign(s)" in result.output
+    assert "0 campaign(s): no campaign log yet" in result.output
+    assert " in ." not in result.output  # no empty list of logs
+    assert max(len(line) for line in result.output.splitlines()) <= 80
     with Warehouse.open(unlogged, read_only=True) as wh, CampaignLog.open(wh) as log:
         assert list_campaigns(log, today=date.today()).campaigns.schema["built"] == pl.Datetime(
             "us"

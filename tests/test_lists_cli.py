@@ -51,6 +51,9 @@ def test_sql_prints_what_runs_and_inline_sql_runs_elsewhere(sample: Path) -> Non
     assert "$antecedent_items_0" in plain.stdout and "-- bound values" in plain.stdout
     assert "--   $regions_0 = 'North'" in plain.stdout
     assert CAUTION_START in plain.stderr and CAUTION_START not in plain.stdout
+    narrow = run("--width", "80", "sql", MAT, "-w", str(sample))
+    assert "--min-audience" in narrow.stderr  # the notes on the screen fit 80 columns
+    assert max(len(line) for line in narrow.stderr.splitlines()) <= 80, narrow.stderr
     inline = run("sql", MAT, "-w", str(sample), "--region", "North", "--inline")
     assert "$" not in inline.stdout.split("WITH", 1)[1]
     con = duckdb.connect(str(sample), read_only=True)

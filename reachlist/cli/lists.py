@@ -335,8 +335,7 @@ def sql_cmd(
     err.print(
         f"[dim]sizes and build leave out rules whose audience after the exclusions is below "
         f"--min-audience (default {DEFAULT_MIN_AUDIENCE}); if they report a rule not proposed, "
-        "pass the rules they keep with --rule for their exact SQL.[/]",
-        soft_wrap=True,
+        "pass the rules they keep with --rule for their exact SQL.[/]"
     )
     render_warnings(plan, err)
     render_caution(err)

@@ -17,6 +17,12 @@ SCHEMA_VERSION = 1
 
 def render_campaigns(console: Console, listing: CampaignListing) -> None:
     frame = listing.campaigns
+    if not listing.logs:
+        console.print(
+            "0 campaign(s): no campaign log yet. The first `reachlist build` creates it in the "
+            "warehouse (or in the --state file)."
+        )
+        return
     several_logs = frame["log"].n_unique() > 1 if frame.height else False
     table = Table(title="Campaigns, newest first", title_justify="left", expand=False)
     table.add_column("campaign", overflow="fold", max_width=20)
