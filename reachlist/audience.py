@@ -317,10 +317,20 @@ def _params(spec: AudienceSpec) -> dict[str, Any]:
     return params
 
 
+def _listed_in(cte: str) -> str:
+    """Whether the listed customer is among the ids of ``cte`` (False, never NULL, when not).
+
+    A membership test rather than a LEFT JOIN: the planner cannot misjudge it into a nested
+    loop. PostgreSQL estimates the rules' audience (``best``) at one row whatever its size and
+    rescanned each exclusion once per listed customer (the 20,000-customer sample: 8,496
+    customers, 17.6 s for the list query); DuckDB and Spark run it as a hash lookup too."""
+    return f"coalesce(b.customer_id IN (SELECT customer_id FROM {cte}), FALSE)"
+
+
 def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     params = _params(spec)
     f = spec.filters
-    ctes, joins = "", ""
+    ctes = ""
     # per row of customers (customer_facts keeps the strictest row of a duplicated id) ...
     not_adult_row = outside_region_row = "FALSE"
     # ... and per listed customer (no row in customers: age and region unknown)
@@ -335,32 +345,29 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         params["regions"] = list(f.regions)
     if f.channels:
         ctes += _PARTS["channel_cte"]
-        joins += "\nLEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id"
-        outside_channel = "ch.customer_id IS NULL"
+        outside_channel = f"NOT {_listed_in('channel_customers')}"
         params["channels"] = list(f.channels)
     if f.ordered_within_days is not None:
         ctes += _PARTS["active_cte"]
-        joins += "\nLEFT JOIN active_customers AS a ON a.customer_id = b.customer_id"
-        no_recent_order = "a.customer_id IS NULL"
+        no_recent_order = f"NOT {_listed_in('active_customers')}"
         params["active_since"] = day_of(spec.lookback.until - timedelta(days=f.ordered_within_days))
     if per_rule:
         # which rules reach whom needs neither customer facts nor filters
         ctes, final = "", _PARTS["reach_select"]
     else:
         flags = {
-            "has_target": "t.customer_id IS NOT NULL",
-            "returned_target": "r.customer_id IS NOT NULL",
+            "has_target": _listed_in("has_target"),
+            "returned_target": _listed_in("returned_target"),
             "no_consent": "coalesce(c.no_consent = 1, TRUE)",
-            "suppressed": "s.customer_id IS NOT NULL",
+            "suppressed": _listed_in("suppressed"),
             "not_adult": not_adult,
             "outside_region": outside_region,
             "outside_channel": outside_channel,
             "no_recent_order": no_recent_order,
         }
         final = _PARTS["list_select"].format(
-            flags=",\n    ".join(f"{expr:<34} AS {name}" for name, expr in flags.items()),
+            flags=",\n    ".join(f"{expr} AS {name}" for name, expr in flags.items()),
             contact=",\n    c.email" if spec.contact else "",
-            filter_joins=joins,
         )
     text = template_text("audience").format(
         level=LEVEL_COLUMN[spec.level],

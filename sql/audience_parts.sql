@@ -39,9 +39,6 @@ SELECT
     {flags}{contact}
 FROM best AS b
 LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
-LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
-LEFT JOIN returned_target AS r ON r.customer_id = b.customer_id
-LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id{filter_joins}
 ORDER BY b.score DESC, b.customer_id
 
 -- part: reach_select

@@ -142,22 +142,17 @@ SELECT
     b.customer_id,
     b.rule_id,
     b.score,
-    t.customer_id IS NOT NULL          AS has_target,
-    r.customer_id IS NOT NULL          AS returned_target,
-    coalesce(c.no_consent = 1, TRUE)   AS no_consent,
-    s.customer_id IS NOT NULL          AS suppressed,
-    coalesce(c.not_adult = 1, TRUE)    AS not_adult,
+    coalesce(b.customer_id IN (SELECT customer_id FROM has_target), FALSE) AS has_target,
+    coalesce(b.customer_id IN (SELECT customer_id FROM returned_target), FALSE) AS returned_target,
+    coalesce(c.no_consent = 1, TRUE) AS no_consent,
+    coalesce(b.customer_id IN (SELECT customer_id FROM suppressed), FALSE) AS suppressed,
+    coalesce(c.not_adult = 1, TRUE) AS not_adult,
     coalesce(c.outside_region = 1, TRUE) AS outside_region,
-    ch.customer_id IS NULL             AS outside_channel,
-    a.customer_id IS NULL              AS no_recent_order,
+    NOT coalesce(b.customer_id IN (SELECT customer_id FROM channel_customers), FALSE) AS outside_channel,
+    NOT coalesce(b.customer_id IN (SELECT customer_id FROM active_customers), FALSE) AS no_recent_order,
     c.email
 FROM best AS b
 LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
-LEFT JOIN has_target AS t ON t.customer_id = b.customer_id
-LEFT JOIN returned_target AS r ON r.customer_id = b.customer_id
-LEFT JOIN suppressed AS s ON s.customer_id = b.customer_id
-LEFT JOIN channel_customers AS ch ON ch.customer_id = b.customer_id
-LEFT JOIN active_customers AS a ON a.customer_id = b.customer_id
 ORDER BY b.score DESC, b.customer_id
 
 -- bound values (never spliced into the text above):
