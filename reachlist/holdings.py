@@ -33,7 +33,7 @@ from pathlib import Path
 from typing import Literal
 
 from reachlist import statements
-from reachlist.errors import InputError, brief
+from reachlist.errors import InputError, ReachlistError, brief
 from reachlist.estimate import BREADTH_DAYS, DEFAULT_HORIZON, MAX_CUTOFFS, breadth_query
 from reachlist.query import FIRST_ORDERS, HOLDINGS, BuiltWindow, Query
 from reachlist.targets import (
@@ -106,7 +106,7 @@ class Built:
 class Prepared:
     """What ``prepare`` found and did; ``note`` is one line for the user (empty: nothing to say)."""
 
-    state: Literal["fresh", "rebuilt", "stale", "absent", "unsupported"]
+    state: Literal["fresh", "rebuilt", "stale", "absent", "session", "unsupported"]
     path: Path | None = None
     note: str = ""
 
@@ -160,7 +160,8 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
     if path is None:
         raise InputError(
             f"Expected a DuckDB file warehouse to keep holdings beside, found {wh.display_name}.",
-            hint="a server warehouse derives the holdings inside each query; nothing to build",
+            hint="a server warehouse keeps no file: its queries derive the holdings (on "
+            "PostgreSQL, once per command, into temporary tables); nothing to build",
         )
     say = progress or (lambda _text: None)
     started = time.perf_counter()
@@ -259,13 +260,36 @@ def _use(wh: Warehouse) -> None:
         )
 
 
-def prepare(wh: Warehouse, *, refresh: bool = True, progress: Progress | None = None) -> Prepared:
+def prepare(
+    wh: Warehouse,
+    *,
+    refresh: bool = True,
+    progress: Progress | None = None,
+    session: bool = False,
+) -> Prepared:
     """Use the holdings file when it matches the history; when the history changed, rebuild it
     (``refresh``) or say that the order lines are read instead. No file: nothing changes (the
-    queries derive the rows; ``reachlist holdings`` builds the file)."""
+    queries derive the rows; ``reachlist holdings`` builds the file).
+
+    A server warehouse keeps no file. With ``session`` (a command about to read the holdings
+    several times) one that can keep temporary tables (PostgreSQL) derives them once into this
+    connection's own tables (``Warehouse.keep_session_holdings``) instead of once per query;
+    when the server refuses, the note says so and the queries derive them as before."""
     path = holdings_path(wh)
     if path is None:
-        return Prepared("unsupported")
+        if not session or wh.dialect.session_schema is None or wh.holdings_table is not None:
+            return Prepared("unsupported")
+        say = progress or (lambda _text: None)
+        say("Holdings: netting the order lines once for this command (temporary tables)")
+        try:
+            wh.keep_session_holdings()
+        except ReachlistError as exc:
+            return Prepared(
+                "unsupported",
+                note=f"{exc.message} Each query reads the order lines instead (slower); to "
+                f"avoid that, {exc.hint or 'report this'}.",
+            )
+        return Prepared("session")
     stored = _attached_mark(wh, path)
     if stored is None:
         return Prepared("absent", path)

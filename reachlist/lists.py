@@ -605,7 +605,7 @@ def build_list(
     staged = _stage_delivery(wh, outcome, out, force)
     try:
         stage(1)
-        ran = plan.sql(wh)
+        ran = wh.render_lasting(plan.query())  # what ran, without a connection's own tables
         record = CampaignRecord(
             campaign_id=plan.campaign_id,
             created_at=plan.built_at or plan.now,

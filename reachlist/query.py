@@ -58,6 +58,10 @@ class Dialect:
     # pairs may share a value: the templates that use it stay exact when they do (see
     # sql/cutoff_runs.sql)
     pair_key: str = "(CAST({a} AS VARCHAR) || ':' || CAST({b} AS VARCHAR))"
+    # where a connection keeps its own temporary tables, named in queries (None: reachlist keeps
+    # none there). A server warehouse has no holdings file: a command that reads the holdings
+    # several times keeps them there once (reachlist.holdings.prepare, session=True)
+    session_schema: str | None = None
 
 
 DUCKDB = Dialect(
@@ -70,6 +74,7 @@ POSTGRES = Dialect(
     table_cte_hint="NOT MATERIALIZED",
     text_type="TEXT",
     pair_key="hashtextextended(CAST({a} AS TEXT) || ':' || CAST({b} AS TEXT), 0)",
+    session_schema="pg_temp",
 )
 GENERIC = Dialect("generic", placeholder="colon")
 
@@ -244,9 +249,12 @@ def kept_cte(dialect: Dialect, table: str | None, name: str = HOLDINGS) -> str:
 
 
 def kept_beside(holdings: str, name: str) -> str:
-    """The qualified name of kept table ``name`` in the file whose holdings are ``holdings``."""
-    schema, dot, _ = holdings.rpartition(".")
-    return f"{schema}{dot}{name}"
+    """The qualified name of kept table ``name`` beside the holdings table ``holdings``, with
+    the same prefix (``f.main.holdings`` -> ``f.main.first_orders``;
+    ``pg_temp.reachlist_holdings`` -> ``pg_temp.reachlist_first_orders``)."""
+    schema, dot, last = holdings.rpartition(".")
+    prefix = last[: -len(HOLDINGS)] if last.endswith(HOLDINGS) else ""
+    return f"{schema}{dot}{prefix}{name}"
 
 
 def _reads(sql: str, name: str) -> bool:

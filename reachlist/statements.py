@@ -201,6 +201,18 @@ def drop_temp(table: str) -> str:
     return f"DROP TABLE IF EXISTS {quote_ident(table)}"
 
 
+def create_session_table(schema: str, table: str, select_sql: str) -> list[str]:
+    """A server connection's own table (``schema`` is where the engine keeps temporary tables,
+    e.g. PostgreSQL's ``pg_temp``) holding a query's rows, with statistics for the planner; gone
+    when the connection closes."""
+    name = f"{quote_ident(schema)}.{quote_ident(table)}"
+    return [
+        f"DROP TABLE IF EXISTS {name}",
+        f"CREATE TEMPORARY TABLE {quote_ident(table)} AS {select_sql}",
+        f"ANALYZE {name}",
+    ]
+
+
 # -- DuckDB session and attached files -------------------------------------------------------
 def set_option(name: str, value: str) -> str:
     """SET one of reachlist's DuckDB settings (``name`` is reachlist's own, never user text)."""

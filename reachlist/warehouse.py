@@ -27,6 +27,7 @@ if TYPE_CHECKING:
     from reachlist.engines.base import Engine
 
 SPARK_SCHEMES = ("spark://", "sc://")
+SESSION_PREFIX = "reachlist_"  # the holdings kept in a server connection's temporary tables
 
 
 def _is_url(target: str) -> bool:
@@ -55,6 +56,48 @@ class Warehouse:
         self.holdings_table: str | None = None
         # the pairs held in the default mining window, kept in that file (None: not attached)
         self.built_window: BuiltWindow | None = None
+
+    def keep_session_holdings(self) -> bool:
+        """On a server warehouse whose dialect has a schema for a connection's own tables
+        (PostgreSQL): derive the holdings and first orders from the order history once into
+        temporary tables of this connection, and read them from then on (False: this warehouse
+        keeps none; a DuckDB file keeps its holdings in a file instead). The rows are those of
+        the moment: for one command, not a connection kept open while the history changes.
+        Raises ``WarehouseError`` when the server refuses (no right to create temporary
+        tables, a read-only standby); the queries then derive the rows as before."""
+        schema = self.dialect.session_schema
+        if schema is None or self.holdings_table is not None:
+            return False
+        from reachlist.query import FIRST_ORDERS, HOLDINGS
+
+        try:
+            for name, template in (
+                (HOLDINGS, "holdings_rows"),
+                (FIRST_ORDERS, "first_orders_rows"),
+            ):
+                r = self.render(Query.from_template(template))
+                for stmt in statements.create_session_table(
+                    schema, f"{SESSION_PREFIX}{name}", r.sql
+                ):
+                    self.engine.execute(stmt, r.params if stmt.startswith("CREATE") else {})
+            self.engine.end_read()
+        except Exception as exc:
+            self.engine.rollback()
+            raise WarehouseError(
+                f"Could not keep the holdings in temporary tables on {self.display_name}: "
+                f"{_first_line(exc)}.",
+                hint="grant TEMPORARY on the database to this user, or run on a primary server",
+            ) from None
+        self.holdings_table = f"{schema}.{SESSION_PREFIX}{HOLDINGS}"
+        return True
+
+    def render_lasting(self, query: Query) -> Rendered:
+        """As ``render``, but never naming this connection's temporary tables (they end with
+        it): the SQL a campaign log keeps, to read or run again later."""
+        schema = self.dialect.session_schema
+        if schema is None or not (self.holdings_table or "").startswith(f"{schema}."):
+            return self.render(query)
+        return render(query, self.dialect, self.typed_mapping, None)
 
     def derive_holdings(self) -> None:
         """Stop reading an attached holdings file: queries derive the same rows from the order

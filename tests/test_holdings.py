@@ -286,7 +286,7 @@ def test_where_the_file_lives(tmp_path: Path) -> None:
     with Warehouse.open(":memory:") as wh:
         assert holdings_path(wh) is None
         assert prepare(wh).state == "unsupported"
-        with pytest.raises(InputError, match="server warehouse derives the holdings"):
+        with pytest.raises(InputError, match="server warehouse keeps no file"):
             build(wh)
     db = tmp_path / "shop.db"
     with Warehouse.open(db, create=True) as wh:
@@ -296,7 +296,7 @@ def test_where_the_file_lives(tmp_path: Path) -> None:
 def test_holdings_on_postgresql_is_one_clear_line(pg_url: str) -> None:
     result = CliRunner().invoke(main, ["holdings", "-w", pg_url])
     assert result.exit_code != 0
-    assert "server warehouse derives the holdings inside each query" in result.output
+    assert "server warehouse keeps no file: its queries derive the holdings" in result.output
 
 
 def test_a_file_from_elsewhere_is_not_trusted(sample: Path) -> None:

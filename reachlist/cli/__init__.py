@@ -77,6 +77,11 @@ READ_ONLY_COMMANDS = frozenset(
 """Commands that never write to the warehouse: they open a DuckDB file read-only, so several can
 run at once and a read-only file works. ``build`` joins them when the log goes to --state."""
 
+SESSION_COMMANDS = frozenset({"sizes", "estimate", "backtest", "build", "results"})
+"""History commands that read the holdings several times (the list, who each rule reaches, the
+estimate's history): on a server warehouse they keep them in temporary tables once
+(`reachlist.holdings.prepare`, ``session``); `rules` and `overlap` read them once."""
+
 HISTORY_COMMANDS = frozenset(
     {"rules", "overlap", "sizes", "estimate", "backtest", "build", "results", "brief"}
 )
@@ -177,7 +182,7 @@ def warehouse_options(fn: Callable[..., Any]) -> Callable[..., Any]:
                 from reachlist.holdings import prepare
 
                 with delayed_status(err, "Holdings: checking the history's watermark") as step:
-                    prepared = prepare(wh, progress=step)
+                    prepared = prepare(wh, progress=step, session=name in SESSION_COMMANDS)
                 if prepared.note:
                     err.print(Text(prepared.note), soft_wrap=False)
             return fn(*args, wh=wh, **kwargs)
