@@ -331,17 +331,17 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
     params = _params(spec)
     f = spec.filters
     ctes = ""
-    # per row of customers (customer_facts keeps the strictest row of a duplicated id) ...
+    # per row of customers (listed keeps the strictest row of a duplicated id) ...
     not_adult_row = outside_region_row = "FALSE"
     # ... and per listed customer (no row in customers: age and region unknown)
     not_adult = outside_region = outside_channel = no_recent_order = "FALSE"
     if spec.age_restricted:
         not_adult_row = "birth_date IS NULL OR birth_date > :adult_born_by"
-        not_adult = "coalesce(c.not_adult = 1, TRUE)"
+        not_adult = "coalesce(b.not_adult = 1, TRUE)"
         params["adult_born_by"] = spec.adult_born_by
     if f.regions:
         outside_region_row = "NOT coalesce(region IN (:regions), FALSE)"
-        outside_region = "coalesce(c.outside_region = 1, TRUE)"
+        outside_region = "coalesce(b.outside_region = 1, TRUE)"
         params["regions"] = list(f.regions)
     if f.channels:
         ctes += _PARTS["channel_cte"]
@@ -358,7 +358,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         flags = {
             "has_target": _listed_in("has_target"),
             "returned_target": _listed_in("returned_target"),
-            "no_consent": "coalesce(c.no_consent = 1, TRUE)",
+            "no_consent": "coalesce(b.no_consent = 1, TRUE)",
             "suppressed": _listed_in("suppressed"),
             "not_adult": not_adult,
             "outside_region": outside_region,
@@ -367,7 +367,7 @@ def _build(spec: AudienceSpec, *, per_rule: bool) -> Query:
         }
         final = _PARTS["list_select"].format(
             flags=",\n    ".join(f"{expr} AS {name}" for name, expr in flags.items()),
-            contact=",\n    c.email" if spec.contact else "",
+            contact=",\n    b.email" if spec.contact else "",
         )
     text = template_text("audience").format(
         level=LEVEL_COLUMN[spec.level],

@@ -68,19 +68,34 @@ best AS (
     ) AS ranked
     WHERE pick = 1
 ),
-customer_facts AS (
-    -- one row per reached customer. A customer id on several rows of customers (a warehouse
-    -- quirk; reachlist refuses it unless the user asks to merge them) reads as strictly as its
-    -- strictest row: consent only if every row gives it, an adult only if every row says so, in
-    -- a chosen region only if every row is. A customer missing from customers matches no row
-    -- here and counts as no consent, age unknown, region unknown.
+listed AS (
+    -- each reached customer once: the best rule, and the facts of the customer's rows in
+    -- customers. A customer id on several rows of customers (a warehouse quirk; reachlist
+    -- refuses it unless the user asks to merge them) reads as strictly as its strictest row:
+    -- consent only if every row gives it, an adult only if every row says so, in a chosen region
+    -- only if every row is. A customer missing from customers has no facts here and counts as no
+    -- consent, age unknown, region unknown. Gathered by one grouping, not a join: a planner that
+    -- misjudges the list's size (PostgreSQL takes it for one row) cannot loop over it.
     SELECT customer_id,
-           max(CASE WHEN marketing_consent IS NOT TRUE THEN 1 ELSE 0 END) AS no_consent,
-           max(CASE WHEN {not_adult_row} THEN 1 ELSE 0 END) AS not_adult,
-           max(CASE WHEN {outside_region_row} THEN 1 ELSE 0 END) AS outside_region,
-           min(email) AS email
-    FROM customers
-    WHERE customer_id IN (SELECT customer_id FROM best)
+           max(rule_id)        AS rule_id,
+           max(score)          AS score,
+           max(no_consent)     AS no_consent,
+           max(not_adult)      AS not_adult,
+           max(outside_region) AS outside_region,
+           min(email)          AS email
+    FROM (
+        SELECT customer_id, rule_id, score,
+               NULL AS no_consent, NULL AS not_adult, NULL AS outside_region, NULL AS email
+        FROM best
+        UNION ALL
+        SELECT customer_id, NULL, NULL,
+               CASE WHEN marketing_consent IS NOT TRUE THEN 1 ELSE 0 END,
+               CASE WHEN {not_adult_row} THEN 1 ELSE 0 END,
+               CASE WHEN {outside_region_row} THEN 1 ELSE 0 END,
+               email
+        FROM customers
+        WHERE customer_id IN (SELECT customer_id FROM best)
+    ) AS rule_and_facts
     GROUP BY customer_id
 ),
 suppressed AS (

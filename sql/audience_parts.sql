@@ -37,8 +37,7 @@ SELECT
     b.rule_id,
     b.score,
     {flags}{contact}
-FROM best AS b
-LEFT JOIN customer_facts AS c ON c.customer_id = b.customer_id
+FROM listed AS b
 ORDER BY b.score DESC, b.customer_id
 
 -- part: reach_select
