@@ -89,3 +89,35 @@ def test_postgres_preview_and_build_match_duckdb(
     assert results["duckdb"][2].equals(results["postgresql"][2])
     assert results["duckdb"][3] == results["postgresql"][3]
     assert results["duckdb"][4] == results["postgresql"][4]
+
+
+def _join_filter_work(node: dict) -> int:
+    """Rows a plan's joins read and threw away (``Rows Removed by Join Filter``), summed."""
+    own = int(node.get("Rows Removed by Join Filter", 0)) * int(node.get("Actual Loops", 1))
+    return own + sum(_join_filter_work(child) for child in node.get("Plans", []))
+
+
+def test_the_list_query_does_work_in_proportion_to_the_list(
+    pristine: Path, pg_url: str, pg_schema: str
+) -> None:
+    """Counted work, not time: PostgreSQL takes the rules' audience for one row, and a LEFT JOIN
+    from it became a nested loop comparing every listed customer with every excluded one (the
+    sample: 8,496 listed, 37M rows compared and thrown away, 12-18 s)."""
+    import sqlalchemy as sa
+
+    from reachlist.sample import KEY_SKUS
+
+    copy_warehouse(str(pristine), pg_url, schema=pg_schema)
+    with Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as wh:
+        plan = plan_list(wh, ListRequest(KEY_SKUS["heated_mat"]))
+        rendered = wh.render(plan.query())
+    engine = sa.create_engine(pg_url)
+    with engine.connect() as conn:
+        explained = conn.execute(
+            sa.text("EXPLAIN (ANALYZE, FORMAT JSON) " + rendered.sql), rendered.params
+        ).scalar()
+    engine.dispose()
+    top = explained[0]["Plan"]
+    listed = int(top["Actual Rows"])
+    assert listed > 5_000
+    assert _join_filter_work(top) <= 2 * listed
