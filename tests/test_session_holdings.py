@@ -39,6 +39,14 @@ def test_a_duckdb_warehouse_keeps_no_session_tables(tmp_path: Path) -> None:
         assert prepare(wh, session=True).state == "absent" and wh.holdings_table is None
 
 
+@pytest.fixture
+def pg_world(tmp_path: Path, pg_url: str, pg_schema: str) -> tuple[str, Mapping]:
+    """The hand-made world copied to a fresh PostgreSQL schema, and the mapping that reads it."""
+    world = cases.build_world(tmp_path / "world.duckdb")
+    copy_warehouse(str(world), pg_url, schema=pg_schema)
+    return pg_url, Mapping.from_dict({"schema": pg_schema})
+
+
 def _preview(wh: Warehouse) -> tuple[object, ...]:
     """The list, its counts and estimate, and the take-up history the estimate reads (every
     customer of the history at each cutoff: the first orders too)."""
@@ -57,11 +65,9 @@ def _preview(wh: Warehouse) -> tuple[object, ...]:
 
 @pytest.mark.postgres
 def test_postgresql_session_holdings_give_the_same_list(
-    tmp_path: Path, pg_url: str, pg_schema: str
+    pg_world: tuple[str, Mapping],
 ) -> None:
-    world = cases.build_world(tmp_path / "world.duckdb")
-    copy_warehouse(str(world), pg_url, schema=pg_schema)
-    mapping = Mapping.from_dict({"schema": pg_schema})
+    pg_url, mapping = pg_world
     with Warehouse.open(pg_url, mapping) as wh:
         derived = _preview(wh)
         count = Query("SELECT count(*) AS n FROM holdings")
@@ -88,11 +94,9 @@ def test_postgresql_session_holdings_give_the_same_list(
 
 @pytest.mark.postgres
 def test_a_server_that_refuses_temporary_tables_gets_a_note_and_derived_rows(
-    tmp_path: Path, pg_url: str, pg_schema: str
+    pg_world: tuple[str, Mapping],
 ) -> None:
-    world = cases.build_world(tmp_path / "world.duckdb")
-    copy_warehouse(str(world), pg_url, schema=pg_schema)
-    mapping = Mapping.from_dict({"schema": pg_schema})
+    pg_url, mapping = pg_world
     with Warehouse.open(pg_url, mapping) as wh:
         derived = _preview(wh)
         wh.engine.run("SET default_transaction_read_only = on")  # as on a read-only standby
@@ -108,11 +112,9 @@ def test_a_server_that_refuses_temporary_tables_gets_a_note_and_derived_rows(
 
 @pytest.mark.postgres
 def test_the_log_keeps_sql_that_runs_after_the_session(
-    tmp_path: Path, pg_url: str, pg_schema: str
+    pg_world: tuple[str, Mapping], tmp_path: Path
 ) -> None:
-    world = cases.build_world(tmp_path / "world.duckdb")
-    copy_warehouse(str(world), pg_url, schema=pg_schema)
-    mapping = Mapping.from_dict({"schema": pg_schema})
+    pg_url, mapping = pg_world
     ruleset = ref.make_ruleset(cases.TARGET, cases.RULES, window=cases.WINDOW)
     with Warehouse.open(pg_url, mapping) as wh:
         assert prepare(wh, session=True).state == "session"
