@@ -40,6 +40,7 @@ from reachlist.targets import (
     Window,
     day_of,
     held_codes_rows_query,
+    held_tids_rows_query,
     mining_window,
     window_items_query,
 )
@@ -48,7 +49,7 @@ from reachlist.warehouse import Warehouse
 __all__ = ["ALIAS", "Built", "Prepared", "Watermark", "build", "holdings_path", "prepare"]
 
 ALIAS = "reachlist_holdings"  # the attached file's name inside the warehouse connection
-FORMAT = 4  # bumped when the table's layout or meaning changes: older files are rebuilt
+FORMAT = 5  # bumped when the table's layout or meaning changes: older files are rebuilt
 BATCH_ROWS = 500_000  # rows moved from the warehouse to the file at a time
 
 Progress = Callable[[str], None]
@@ -204,9 +205,10 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
 
 def _keep_defaults(wh: Warehouse, side: Warehouse, window: Window) -> None:
     """Into the file being built (``side``, its holdings written): the pairs held in the default
-    mining window (SKUs as codes), and every customer's breadth at the default estimate's
-    cutoffs (as_of the window's end). Both read products (which SKUs count, their categories),
-    so its SKUs and categories are copied in while they are worked out."""
+    mining window (SKUs as codes, and the same pairs item by item), and every customer's breadth
+    at the default estimate's cutoffs (as_of the window's end). Both read products (which SKUs
+    count, their categories), so its SKUs and categories are copied in while they are worked
+    out."""
     side.holdings_table = f"main.{HOLDINGS}"
     categories = wh.fetch(Query.from_template("item_hierarchy")).to_arrow()
     side.create_from_arrow(statements.CATEGORIES, categories, statements.ALL_FROM_SRC)
@@ -214,6 +216,7 @@ def _keep_defaults(wh: Warehouse, side: Warehouse, window: Window) -> None:
     side.create_from_query(
         statements.WINDOW_PAIRS, held_codes_rows_query(window, statements.WINDOW_ITEMS)
     )
+    side.create_from_query(statements.WINDOW_TIDS, held_tids_rows_query(statements.WINDOW_PAIRS))
     side.create_from_query(
         statements.WINDOW_BREADTH, breadth_query(window.until, DEFAULT_HORIZON, MAX_CUTOFFS)
     )
@@ -253,6 +256,7 @@ def _use(wh: Warehouse) -> None:
             until=row["until"],
             table=f"{ALIAS}.main.{statements.WINDOW_PAIRS}",
             items=f"{ALIAS}.main.{statements.WINDOW_ITEMS}",
+            tids=f"{ALIAS}.main.{statements.WINDOW_TIDS}",
             breadth_table=f"{ALIAS}.main.{statements.WINDOW_BREADTH}",
             horizon=int(row["horizon"]),
             breadth_days=int(row["breadth_days"]),

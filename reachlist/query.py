@@ -209,7 +209,7 @@ KEPT_TABLES = {
 class BuiltWindow:
     """What the holdings file keeps for the default arguments (``reachlist holdings`` writes it):
     the customer x SKU pairs held in the default mining window [since, until) (``table``, SKUs
-    coded by ``items``), and
+    coded by ``items``; ``tids`` the same pairs item by item), and
     every customer's shopping breadth at the default estimate's cutoffs ``until - k * horizon``,
     k = 0 .. ``last``, over ``breadth_days`` (``breadth_table``); both qualified names of attached
     tables. A query with exactly those arguments reads them instead of working them out from the
@@ -219,6 +219,7 @@ class BuiltWindow:
     until: date
     table: str  # customer_id, code: the pairs, each SKU as its code in ``items``
     items: str  # code, sku: every SKU in products (sorted by sku, codes from 0)
+    tids: str  # code, basket_no: the pairs by code, each customer as its place in ``table``
     breadth_table: str
     horizon: int
     breadth_days: int

@@ -242,6 +242,7 @@ ALL_FROM_SRC = "SELECT * FROM src"
 WINDOW_TABLE = "default_window"  # the default arguments the kept pairs and breadth answer for
 WINDOW_PAIRS = "default_window_pairs"  # customer x SKU pairs held in the default mining window
 WINDOW_ITEMS = "default_window_items"  # each SKU of products and its code in WINDOW_PAIRS
+WINDOW_TIDS = "default_window_tids"  # WINDOW_PAIRS by code, customers as their place in it
 WINDOW_BREADTH = "default_breadth"  # each customer's breadth at the default estimate's cutoffs
 CATEGORIES = "products"  # each SKU's category, copied in while the defaults are worked out
 CREATE_WINDOW = (

@@ -321,15 +321,28 @@ def held_codes_rows_query(window: Window, items: str) -> Query:
     )
 
 
-def held_codes_queries(window: Window, built: BuiltWindow | None) -> tuple[Query, Query] | None:
-    """The pairs the holdings file keeps for exactly this window, as (customer, code) rows, and
-    the code -> SKU rows: SKU-level customer baskets without encoding text (None: not kept)."""
+def held_tids_rows_query(pairs: str) -> Query:
+    """The kept pairs (``pairs``) item by item: each code's customers as their position in the
+    pairs' customer order, ascending (the item-major index mining reads)."""
+    return Query(
+        template_parts("held_items")["held_tids_rows"].format(built_table=pairs),
+        label="held_tids",
+    )
+
+
+def held_codes_queries(
+    window: Window, built: BuiltWindow | None
+) -> tuple[Query, Query, Query] | None:
+    """The pairs the holdings file keeps for exactly this window, as (customer, code) rows, the
+    code -> SKU rows, and the same pairs item by item (``held_tids_rows_query``): SKU-level
+    customer baskets without encoding text or sorting (None: not kept)."""
     if built is None or not built.has_pairs(day_of(window.since), day_of(window.until)):
         return None
     parts = template_parts("held_items")
     return (
         Query(parts["held_codes_built"].format(built_table=built.table), label="held_codes"),
         Query(parts["held_items_built"].format(built_items=built.items), label="held_codes_items"),
+        Query(parts["held_tids_built"].format(built_tids=built.tids), label="held_tids"),
     )
 
 

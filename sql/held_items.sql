@@ -35,9 +35,23 @@ SELECT h.basket AS customer_id, i.code
 FROM held_skus AS h
 JOIN {built_items} AS i ON i.sku = h.sku
 ORDER BY h.basket, i.code
+-- part: held_tids_rows
+-- The same pairs item by item: each code's customers as their position in the pairs' customer
+-- order (0, 1, ...), ascending; mining reads it as the baskets of each item instead of sorting
+-- the pairs by code in memory
+SELECT p.code, c.basket_no
+FROM {built_table} AS p
+JOIN (
+    SELECT customer_id, CAST(row_number() OVER (ORDER BY customer_id) - 1 AS INTEGER) AS basket_no
+    FROM (SELECT DISTINCT customer_id FROM {built_table}) AS d
+) AS c ON c.customer_id = p.customer_id
+ORDER BY p.code, c.basket_no
 -- part: held_codes_built
 SELECT customer_id AS basket, code
 FROM {built_table}
+-- part: held_tids_built
+SELECT code, basket_no
+FROM {built_tids}
 -- part: held_items_built
 SELECT code, sku AS item
 FROM {built_items}

@@ -11,12 +11,14 @@ import json
 import os
 from datetime import datetime, timedelta
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import polars as pl
 import pytest
 from click.testing import CliRunner
 
+from reachlist import baskets as baskets_module
 from reachlist.baskets import Baskets
 from reachlist.cli import main
 from reachlist.errors import InputError
@@ -180,12 +182,22 @@ def _kept_and_derived(db: Path, mapping: Mapping | None, target: str) -> tuple[B
         derived = load_baskets(wh, item, "sku", "customer", default)
         build(wh)
         assert held_codes_queries(default, wh.built_window) is not None
-        general = Baskets.from_arrays
-        try:  # the kept pairs must take the sorted path
+        general, agreeing = Baskets.from_arrays, baskets_module._agreeing_item_major
+        used: list[bool] = []
+
+        def spy(*args: Any) -> Any:
+            out = agreeing(*args)
+            used.append(out is not None)
+            return out
+
+        try:  # the kept pairs must take the sorted path, with the kept item-major index
             Baskets.from_arrays = None  # type: ignore[assignment]
+            baskets_module._agreeing_item_major = spy
             kept = load_baskets(wh, item, "sku", "customer", default)
         finally:
             Baskets.from_arrays = general  # type: ignore[method-assign]
+            baskets_module._agreeing_item_major = agreeing
+        assert used == [True]
         later = f"{default.since + timedelta(days=1):%Y-%m-%d}"  # another window: not kept
         assert held_codes_queries(mining_window(wh, since=later), wh.built_window) is None
     return kept, derived

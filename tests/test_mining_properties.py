@@ -289,6 +289,44 @@ def test_sorted_lines_give_the_same_baskets(transactions, text_keys, data) -> No
     )
 
 
+@SETTINGS
+@given(baskets_st, st.data())
+def test_a_kept_item_major_index_is_used_only_when_it_agrees(transactions, data) -> None:
+    # the holdings file also keeps the pairs item by item, (item, basket) rows with each basket
+    # as its place in the customer order: given to from_sorted they must give the indexes the
+    # sort gives, and rows read out of order or numbered another way must be refused, not used
+    lines = sorted({(3 * k, ITEMS.index(x)) for k, t in enumerate(transactions) for x in t})
+    if not lines:
+        return
+    basket = pl.Series("basket", [b for b, _ in lines])
+    codes = np.array([i for _, i in lines], dtype=np.int64)
+    general = Baskets.from_arrays(basket, codes, labels=ITEMS)
+    place = {b: n for n, b in enumerate(sorted({b for b, _ in lines}))}
+    by_item = sorted(lines, key=lambda line: (line[1], line[0]))
+    kept_items = np.array([i for _, i in by_item])
+    kept = np.array([place[b] for b, _ in by_item])
+    line_baskets = np.array([place[b] for b, _ in lines])
+
+    def agrees(rows: tuple[np.ndarray, np.ndarray]) -> bool:
+        got = baskets._agreeing_item_major(rows, codes, line_baskets, general._tid_ptr, len(place))
+        fast = Baskets.from_sorted(basket, codes, ITEMS, rows)
+        assert fast is not None
+        _same_indexes(fast, general)  # used or refused, the indexes are the sort's
+        return got is not None
+
+    assert agrees((kept_items, kept))
+    moved = list(data.draw(st.permutations(range(kept.size))))
+    if [by_item[k] for k in moved] != by_item:  # rows read in another order
+        assert not agrees((kept_items[moved], kept[moved]))
+    assert not agrees((kept_items, kept + 1))  # numbered from 1
+    if len(place) > 1 and len(set(kept.tolist())) > 1:  # baskets numbered in reverse order
+        reverse = len(place) - 1 - kept
+        if int(reverse.sum()) != int(kept.sum()):
+            assert not agrees((kept_items, reverse))
+    assert not agrees((kept_items[:-1], kept[:-1]))  # a row short
+    assert not agrees((kept_items, kept.astype(np.float64)))
+
+
 def test_sorted_lines_refuse_what_they_cannot_index() -> None:
     basket = pl.Series("basket", [1, 1, 2])
     assert Baskets.from_sorted(basket, np.array([0, 1, 7]), ["a", "b"]) is None  # code too big
