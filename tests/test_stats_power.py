@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+import subprocess
+import sys
 
 import pytest
 from hypothesis import given, settings
@@ -188,3 +190,47 @@ def test_detectable_uplift_shrinks_with_the_list(size: int, share: float, base: 
     assert bigger.relative <= m.relative
     if math.isfinite(m.relative):
         assert holdout_power(size, share, base, m.relative) == pytest.approx(0.8, abs=1e-6)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.integers(20, 5_000_000),
+    st.sampled_from([0.02, 0.05, 0.1, 0.3, 0.5]),
+    st.floats(0.001, 0.6),
+    st.sampled_from(["two-sided", "larger"]),
+)
+def test_the_detectable_uplift_is_brents_root(
+    size: int, share: float, base: float, alternative: str
+) -> None:
+    # Reference: scipy.optimize.brentq on the same power curve (the library reachlist used
+    # before; a test-only import now). reachlist halves the bracket to the last float, brentq
+    # stops within 1e-12 of the root: they agree to that.
+    m = minimum_detectable_uplift(size, share, base, alternative=alternative)  # type: ignore[arg-type]
+    if not math.isfinite(m.relative):
+        return
+    phi0 = 2 * math.asin(math.sqrt(base))
+
+    def gap(h: float) -> float:
+        return (
+            holdout_power(
+                size, share, base, math.sin((phi0 + h) / 2) ** 2 / base - 1, alternative=alternative
+            )
+            - 0.8
+        )  # type: ignore[arg-type]
+
+    ref = brentq(gap, 0.0, math.pi - phi0, xtol=1e-12)
+    assert cohens_h(m.treated_rate, base) == pytest.approx(ref, abs=5e-12)
+
+
+@pytest.mark.parametrize(
+    "code",
+    [
+        "from reachlist.stats import minimum_detectable_uplift as f; f(1000, 0.1, 0.03)",
+        "from reachlist.stats import holdout_share_needed as f; f(20000, 0.03, 0.5)",
+    ],
+)
+def test_planning_a_holdout_does_not_import_scipy_optimize(code: str) -> None:
+    # scipy.optimize took 0.13-0.24 s to import in every command that plans a holdout
+    probe = f"{code}\nimport sys\nprint('scipy.optimize' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
