@@ -49,8 +49,8 @@ from reachlist.warehouse import Warehouse
 __all__ = ["ALIAS", "Built", "Prepared", "Watermark", "build", "holdings_path", "prepare"]
 
 ALIAS = "reachlist_holdings"  # the attached file's name inside the warehouse connection
+WRITING = "reachlist_holdings_new"  # the file being built, attached while its rows are written
 FORMAT = 5  # bumped when the table's layout or meaning changes: older files are rebuilt
-BATCH_ROWS = 500_000  # rows moved from the warehouse to the file at a time
 
 Progress = Callable[[str], None]
 
@@ -178,11 +178,15 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             f"step 2 of 4: netting {mark.order_lines:,} order lines by customer, SKU and day, "
             "and each customer's first order"
         )
-        reader = wh.stream_arrow(Query.from_template("holdings_rows"), BATCH_ROWS)
-        with Warehouse.open(tmp, create=True) as side:
-            side.create_from_arrow(HOLDINGS, reader, statements.HOLDINGS_ORDERED)
-            first = wh.fetch(Query.from_template("first_orders_rows")).to_arrow()
-            side.create_from_arrow(FIRST_ORDERS, first, statements.ALL_FROM_SRC)
+        wh.write_beside(
+            tmp,
+            WRITING,
+            [
+                (HOLDINGS, Query.from_template("holdings_rows"), statements.HOLDINGS_ORDER),
+                (FIRST_ORDERS, Query.from_template("first_orders_rows"), ""),
+            ],
+        )
+        with Warehouse.open(tmp) as side:
             side.run_statement(statements.CREATE_WINDOW)
             if window is not None:
                 say(

@@ -223,6 +223,20 @@ def attach_read_only(path: str, alias: str) -> str:
     return f"ATTACH {literal(path)} AS {quote_ident(alias)} (READ_ONLY)"
 
 
+def attach_writable(path: str, alias: str) -> str:
+    return f"ATTACH {literal(path)} AS {quote_ident(alias)} (READ_WRITE)"
+
+
+def create_in(alias: str, table: str, select_sql: str, order_by: str = "") -> str:
+    """A table of the database attached as ``alias`` holding a query's rows (``order_by``: the
+    columns to store them sorted by, reachlist's own)."""
+    tail = f" ORDER BY {order_by}" if order_by else ""
+    return (
+        f"CREATE TABLE {quote_ident(alias)}.main.{quote_ident(table)} AS "
+        f"SELECT * FROM ({select_sql}) AS src{tail}"
+    )
+
+
 def detach(alias: str) -> str:
     return f"DETACH DATABASE IF EXISTS {quote_ident(alias)}"
 
@@ -237,7 +251,7 @@ INSERT_MARK = (
     f"INSERT INTO {MARK_TABLE} VALUES (:order_lines, :quantity_sum, :orders, :last_order, "
     ":source, :catalogue, :format)"
 )
-HOLDINGS_ORDERED = "SELECT * FROM src ORDER BY order_day"
+HOLDINGS_ORDER = "order_day"  # the holdings are stored by day: window queries skip row groups
 ALL_FROM_SRC = "SELECT * FROM src"
 WINDOW_TABLE = "default_window"  # the default arguments the kept pairs and breadth answer for
 WINDOW_PAIRS = "default_window_pairs"  # customer x SKU pairs held in the default mining window

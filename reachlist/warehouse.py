@@ -14,6 +14,7 @@ import contextlib
 import os
 from collections.abc import Iterator
 from dataclasses import dataclass
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import polars as pl
@@ -350,20 +351,37 @@ class Warehouse:
         except Exception as exc:
             raise self._translate(exc, query) from None
 
-    def stream_arrow(self, query: Query, batch_rows: int = 500_000) -> Any:
-        """The rows of a query as a pyarrow RecordBatchReader: read in batches of ``batch_rows``,
-        never all at once (DuckDB only)."""
+    def write_beside(
+        self, path: str | os.PathLike[str], alias: str, tables: list[tuple[str, Query, str]]
+    ) -> None:
+        """Create tables in another DuckDB file from this warehouse's queries, without the rows
+        passing through Python: the file is attached read-write as ``alias`` (the warehouse
+        itself may be read-only), each (table, query, order_by) written, and detached again.
+        DuckDB only: how the holdings file is written."""
         if not self.is_duckdb:
             raise WarehouseError(
-                f"Expected a DuckDB warehouse to stream {query.label or 'a query'} from, found "
-                f"{self.display_name}.",
+                f"Expected a DuckDB warehouse to write a file beside, found {self.display_name}.",
                 hint="report this",
             )
-        r = self.render(query)
+        where = Path(path).name
         try:
-            return self.engine.stream_arrow(r.sql, r.params, batch_rows)
+            self.engine.run(statements.attach_writable(str(path), alias))
         except Exception as exc:
-            raise self._translate(exc, query) from None
+            raise WarehouseError(
+                f"Could not open {where} for writing: {_first_line(exc)}.",
+                hint="check the free space and that the warehouse's folder is writable",
+            ) from None
+        try:
+            for table, query, order_by in tables:
+                r = self.render(query)
+                try:
+                    self.engine.execute(
+                        statements.create_in(alias, table, r.sql, order_by), r.params
+                    )
+                except Exception as exc:
+                    raise self._translate(exc, query) from None
+        finally:
+            self.engine.detach(alias)
 
     def attach_read_only(self, path: str | os.PathLike[str], alias: str) -> bool:
         """Attach another DuckDB file read-only under ``alias`` (False: it cannot be opened,

@@ -21,7 +21,7 @@ from click.testing import CliRunner
 from reachlist import baskets as baskets_module
 from reachlist.baskets import Baskets
 from reachlist.cli import main
-from reachlist.errors import InputError
+from reachlist.errors import InputError, ReachlistError
 from reachlist.estimate import (
     DEFAULT_HORIZON,
     MAX_CUTOFFS,
@@ -94,6 +94,37 @@ def test_the_file_holds_what_the_derivation_gives(sample: Path) -> None:
     # the sample has lines of one SKU bought twice on a day, returns and exact duplicates: the
     # day's net quantity is their sum, duplicates once
     assert built.rows < built.order_lines
+
+
+def test_a_read_only_warehouse_builds_the_file_and_a_failed_build_keeps_the_old_one(
+    sample: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # the rows go from the warehouse's connection straight into the new file (attached
+    # read-write beside a warehouse opened read-only); a query failing half way leaves no part
+    # file and the file that was there
+    rows = "SELECT customer_id, sku, order_day, quantity, bought FROM holdings ORDER BY 1, 2, 3"
+    with Warehouse.open(sample) as wh:
+        derived = wh.fetch(Query(rows))
+    with Warehouse.open(sample, read_only=True) as wh:
+        built = build(wh)
+        assert built.rows == derived.height and wh.fetch(Query(rows)).equals(derived)
+        path = holdings_path(wh)
+    assert path is not None
+    before = path.read_bytes()
+    template = Query.from_template
+
+    def failing(name: str, *args: Any, **kwargs: Any) -> Query:
+        if name == "first_orders_rows":  # written second, after the holdings
+            return Query("SELECT customer_id, no_such_column FROM orders", label=name)
+        return template(name, *args, **kwargs)
+
+    monkeypatch.setattr(Query, "from_template", failing)
+    with Warehouse.open(sample) as wh:
+        with pytest.raises(ReachlistError, match="query first_orders_rows"):
+            build(wh)
+    monkeypatch.undo()
+    assert path.read_bytes() == before
+    assert [p.name for p in path.parent.iterdir() if ".part-" in p.name] == []
 
 
 def test_the_pairs_kept_for_the_default_window_are_the_pairs_derived(sample: Path) -> None:
