@@ -81,9 +81,6 @@ class Engine:
     def from_arrow(self, statement: str, data: Any) -> None:
         self.unsupported("writing Arrow data")
 
-    def stream_arrow(self, sql: str, params: dict[str, Any], batch_rows: int) -> Any:
-        self.unsupported("streaming rows as Arrow batches")
-
     def attach_read_only(self, path: str, alias: str) -> bool:
         return False
 

@@ -137,9 +137,6 @@ class EmbeddedEngine(Engine):
         finally:
             self.conn.unregister("src")
 
-    def stream_arrow(self, sql: str, params: dict[str, Any], batch_rows: int) -> Any:
-        return self.conn.sql(sql, params=params or None).to_arrow_reader(batch_rows)
-
     def attach_read_only(self, path: str, alias: str) -> bool:
         self.detach(alias)
         try:
