@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import re
 from typing import Any
 
 import polars as pl
@@ -40,6 +41,18 @@ class ServerEngine(Engine):
                 hint="check host, port, database name and credentials, and that the server runs",
             ) from None
         self.dialect = dialect_named(self.engine.dialect.name)
+        if self.dialect.name == "postgresql" and not re.search(r"jit(=|%3d)", url.lower()):
+            self._settle(statements.PG_NO_JIT)
+
+    def _settle(self, setting: str) -> None:
+        """A session setting for speed only: kept when the server takes it (committed, so a
+        later rollback keeps it), skipped when it does not (an older server, a pooler)."""
+        try:
+            self.conn.execute(sa.text(setting))
+            self.conn.commit()
+        except Exception:
+            with contextlib.suppress(Exception):
+                self.conn.rollback()
 
     def fetch(self, sql: str, params: dict[str, Any]) -> pl.DataFrame:
         result = self.conn.execute(sa.text(sql), params)
