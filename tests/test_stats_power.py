@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import math
-import subprocess
-import sys
 
 import pytest
 from hypothesis import given, settings
@@ -20,6 +18,7 @@ from reachlist.stats import (
     holdout_share_needed,
     minimum_detectable_uplift,
 )
+from tests.fresh_imports import imported_after
 
 SM = NormalIndPower()
 CASES = [
@@ -231,6 +230,4 @@ def test_the_detectable_uplift_is_brents_root(
 )
 def test_planning_a_holdout_does_not_import_scipy_optimize(code: str) -> None:
     # scipy.optimize took 0.13-0.24 s to import in every command that plans a holdout
-    probe = f"{code}\nimport sys\nprint('scipy.optimize' in sys.modules)"
-    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
-    assert out.stdout.strip() == "False"
+    assert imported_after(code, ("scipy.optimize",)) == []

@@ -3,14 +3,12 @@ bit for bit over grids, and the commands that read them starting without scipy.s
 
 from __future__ import annotations
 
-import subprocess
-import sys
-
 import numpy as np
 import pytest
 from scipy import stats
 
 from reachlist.stats import tails
+from tests.fresh_imports import imported_after
 
 LEVELS = [1e-12, 1e-6, 0.001, 0.025, 0.05, 0.1, 0.3, 0.5, 0.7, 0.9, 0.95, 0.975, 0.999, 1 - 1e-9]
 
@@ -100,9 +98,7 @@ def test_scalars_broadcast_against_arrays() -> None:
 )
 def test_the_exact_test_and_intervals_start_without_scipy_stats(code: str) -> None:
     # scipy.stats costs about 0.45 s to import: the commands that mine and estimate must not need it.
-    probe = f"{code}\nimport sys\nprint('scipy.stats' in sys.modules)"
-    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
-    assert out.stdout.strip() == "False"
+    assert imported_after(code, ("scipy.stats",)) == []
 
 
 def test_every_tail_reachlist_reads_comes_from_this_module() -> None:
