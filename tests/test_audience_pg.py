@@ -133,3 +133,20 @@ def test_reachlists_postgres_connection_compiles_no_queries(pg_url: str) -> None
         assert wh.fetch_raw("SHOW jit")["jit"][0] == "off"
     with Warehouse.open(pg_url + "?options=-c%20jit%3Don") as wh:
         assert wh.fetch_raw("SHOW jit")["jit"][0] == "on"
+
+
+def test_an_empty_table_copies_as_an_empty_table(
+    tmp_path: Path, pg_url: str, pg_schema: str
+) -> None:
+    # a warehouse with no suppressions yet (or no customers table rows) copies: an empty table
+    # used to reach SQLAlchemy as an empty parameter list, which it refuses
+    world = cases.build_world(tmp_path / "world.duckdb")
+    import duckdb
+
+    con = duckdb.connect(str(world))
+    con.execute("DELETE FROM suppressions")
+    con.close()
+    copy_warehouse(str(world), pg_url, schema=pg_schema)
+    with Warehouse.open(pg_url, Mapping.from_dict({"schema": pg_schema})) as wh:
+        assert wh.fetch_raw(f'SELECT count(*) AS n FROM "{pg_schema}".suppressions')["n"][0] == 0
+        assert wh.fetch_raw(f'SELECT count(*) AS n FROM "{pg_schema}".orders')["n"][0] > 0

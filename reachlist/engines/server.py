@@ -82,6 +82,8 @@ class ServerEngine(Engine):
     def append_frame(
         self, physical: tuple[str, ...], columns: list[str], frame: pl.DataFrame
     ) -> None:
+        if frame.height == 0:  # nothing to add (an empty parameter list is an error to SQLAlchemy)
+            return
         if self.dialect.name == "postgresql" and frame.height > BULK_ROWS:
             cursor = self.conn.connection.driver_connection.cursor()  # type: ignore[union-attr]
             with cursor.copy(statements.copy_in(physical, columns)) as copy:
