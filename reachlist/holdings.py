@@ -178,13 +178,19 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             f"step 2 of 4: netting {mark.order_lines:,} order lines by customer, SKU and day, "
             "and each customer's first order"
         )
+        days, exact = (
+            (WRITING, "main", statements.HOLDING_DAYS),
+            (WRITING, "main", statements.HOLDING_EXACT),
+        )
         wh.write_beside(
             tmp,
             WRITING,
             [
-                (HOLDINGS, Query.from_template("holdings_rows"), statements.HOLDINGS_ORDER),
+                (days[-1], Query.from_template("holdings_rows"), statements.HOLDINGS_ORDER),
+                (exact[-1], statements.holdings_exact_query(days), ""),
                 (FIRST_ORDERS, Query.from_template("first_orders_rows"), ""),
             ],
+            after=statements.holdings_finish(days, exact, HOLDINGS),
         )
         with Warehouse.open(tmp) as side:
             side.run_statement(statements.CREATE_WINDOW)

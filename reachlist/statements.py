@@ -15,7 +15,7 @@ from typing import Any
 
 import polars as pl
 
-from reachlist.query import Query, column_sql, literal, quote_ident, quote_qualified
+from reachlist.query import Query, column_sql, literal, quote_ident, quote_qualified, template_text
 from reachlist.schema import CONTRACT, Mapping, TableMap
 
 # -- the campaign log ------------------------------------------------------------------------
@@ -201,6 +201,11 @@ def drop_temp(table: str) -> str:
     return f"DROP TABLE IF EXISTS {quote_ident(table)}"
 
 
+def analyze(physical: Sequence[str]) -> str:
+    """Fresh statistics for the planner (PostgreSQL) of a table reachlist made."""
+    return f"ANALYZE {quote_qualified(physical)}"
+
+
 def create_session_table(schema: str, table: str, select_sql: str) -> list[str]:
     """A server connection's own table (``schema`` is where the engine keeps temporary tables,
     e.g. PostgreSQL's ``pg_temp``) holding a query's rows, with statistics for the planner; gone
@@ -243,6 +248,29 @@ def create_in(alias: str, table: str, select_sql: str, order_by: str = "") -> st
         f"CREATE TABLE {quote_ident(alias)}.main.{quote_ident(table)} AS "
         f"SELECT * FROM ({select_sql}) AS src{tail}"
     )
+
+
+HOLDING_DAYS = "holding_days"  # the holdings as first written (sql/holdings_rows.sql)
+HOLDING_EXACT = "holding_exact"  # its days of several lines, summed again (holdings_exact.sql)
+
+
+def holdings_exact_query(days: Sequence[str]) -> Query:
+    """The second step of writing the holdings: sql/holdings_exact.sql over the rows the first
+    step wrote into ``days`` (a table of reachlist's own: its schema and name)."""
+    text = template_text("holdings_exact").format(days=quote_qualified(days))
+    return Query(text, label="holdings: the days of several lines")
+
+
+def holdings_finish(days: Sequence[str], exact: Sequence[str], final: str) -> list[str]:
+    """Replace the rows of ``days`` that hold more than one line with those of ``exact``, drop
+    ``exact`` and give ``days`` its name ``final``: the holdings table is then whole."""
+    d, e = quote_qualified(days), quote_qualified(exact)
+    return [
+        f"DELETE FROM {d} WHERE lines > 1",
+        f"INSERT INTO {d} SELECT customer_id, sku, order_day, quantity, bought, lines FROM {e}",
+        f"DROP TABLE {e}",
+        f"ALTER TABLE {d} RENAME TO {quote_ident(final)}",
+    ]
 
 
 def detach(alias: str) -> str:

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import contextlib
 import os
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -71,16 +71,26 @@ class Warehouse:
             return False
         from reachlist.query import FIRST_ORDERS, HOLDINGS
 
+        days = (schema, f"{SESSION_PREFIX}{statements.HOLDING_DAYS}")
+        exact = (schema, f"{SESSION_PREFIX}{statements.HOLDING_EXACT}")
+        final = f"{SESSION_PREFIX}{HOLDINGS}"
         try:
-            for name, template in (
-                (HOLDINGS, "holdings_rows"),
-                (FIRST_ORDERS, "first_orders_rows"),
+            # the holdings in two steps (sql/holdings_rows.sql, then holdings_exact.sql)
+            self.engine.execute(statements.drop_table((schema, final)), {})
+            for (_, table), query in (
+                (days, Query.from_template("holdings_rows")),
+                (exact, statements.holdings_exact_query(days)),
+                (
+                    (schema, f"{SESSION_PREFIX}{FIRST_ORDERS}"),
+                    Query.from_template("first_orders_rows"),
+                ),
             ):
-                r = self.render(Query.from_template(template))
-                for stmt in statements.create_session_table(
-                    schema, f"{SESSION_PREFIX}{name}", r.sql
-                ):
+                r = self.render(query)
+                for stmt in statements.create_session_table(schema, table, r.sql):
                     self.engine.execute(stmt, r.params if stmt.startswith("CREATE") else {})
+            for stmt in statements.holdings_finish(days, exact, final):
+                self.engine.execute(stmt, {})
+            self.engine.execute(statements.analyze((schema, final)), {})
             self.engine.end_read()
         except Exception as exc:
             self.engine.rollback()
@@ -352,12 +362,17 @@ class Warehouse:
             raise self._translate(exc, query) from None
 
     def write_beside(
-        self, path: str | os.PathLike[str], alias: str, tables: list[tuple[str, Query, str]]
+        self,
+        path: str | os.PathLike[str],
+        alias: str,
+        tables: list[tuple[str, Query, str]],
+        after: Sequence[str] = (),
     ) -> None:
         """Create tables in another DuckDB file from this warehouse's queries, without the rows
         passing through Python: the file is attached read-write as ``alias`` (the warehouse
-        itself may be read-only), each (table, query, order_by) written, and detached again.
-        DuckDB only: how the holdings file is written."""
+        itself may be read-only), each (table, query, order_by) written, then each statement of
+        ``after`` run (reachlist's own, over those tables), and detached again. DuckDB only: how
+        the holdings file is written."""
         if not self.is_duckdb:
             raise WarehouseError(
                 f"Expected a DuckDB warehouse to write a file beside, found {self.display_name}.",
@@ -380,6 +395,11 @@ class Warehouse:
                     )
                 except Exception as exc:
                     raise self._translate(exc, query) from None
+            for statement in after:
+                try:
+                    self.engine.execute(statement, {})
+                except Exception as exc:
+                    raise self._translate(exc, Query(statement, label="writing " + where)) from None
         finally:
             self.engine.detach(alias)
 
