@@ -12,8 +12,15 @@ otherwise), so a default run reads its pairs instead of summing a year of days. 
 file when its watermark still matches the warehouse and rebuilds it when the history has changed,
 so the answers never differ from the derived ones (the tests compare the two).
 
+Written whole, the rows take one grouping of the order lines (``sql/holdings_rows.sql``), then
+the few days of more than one line are summed again from their distinct lines
+(``sql/holdings_exact.sql``); a query deriving them uses ``sql/holdings.sql``, whose two
+groupings its own filters reach into.
+
 Only DuckDB file warehouses keep a holdings file; a server warehouse derives the rows inside
-each query (its own engine does the work there).
+each query (its own engine does the work there), or, for a command that reads them several
+times on PostgreSQL, keeps them once in the connection's temporary tables
+(``Warehouse.keep_session_holdings``, the same two steps).
 
 >>> built = build(wh)                     # doctest: +SKIP
 >>> prepare(wh).state                     # doctest: +SKIP
