@@ -133,7 +133,7 @@ def current_mark(wh: Warehouse) -> Watermark:
     last = row["last_order"]
     saved, wh.holdings_table = wh.holdings_table, None  # digest the derivation, not the file
     try:
-        derived = wh.render(Query.from_template("holdings_rows"))
+        derived = wh.render(statements.holdings_rows_query())
     finally:
         wh.holdings_table = saved
     return Watermark(
@@ -193,7 +193,7 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             tmp,
             WRITING,
             [
-                (days[-1], Query.from_template("holdings_rows"), statements.HOLDINGS_ORDER),
+                (days[-1], statements.holdings_rows_query(), statements.HOLDINGS_ORDER),
                 (exact[-1], statements.holdings_exact_query(days), ""),
                 (FIRST_ORDERS, Query.from_template("first_orders_rows"), ""),
             ],

@@ -15,7 +15,15 @@ from typing import Any
 
 import polars as pl
 
-from reachlist.query import Query, column_sql, literal, quote_ident, quote_qualified, template_text
+from reachlist.query import (
+    Query,
+    column_sql,
+    literal,
+    quote_ident,
+    quote_qualified,
+    template_parts,
+    template_text,
+)
 from reachlist.schema import CONTRACT, Mapping, TableMap
 
 # -- the campaign log ------------------------------------------------------------------------
@@ -254,10 +262,21 @@ HOLDING_DAYS = "holding_days"  # the holdings as first written (sql/holdings_row
 HOLDING_EXACT = "holding_exact"  # its days of several lines, summed again (holdings_exact.sql)
 
 
+def _day_sums(lines: str) -> str:
+    return template_parts("holdings_rows")["day_sums"].format(lines=lines)
+
+
+def holdings_rows_query() -> Query:
+    """The first step of writing the holdings whole: sql/holdings_rows.sql over the order lines."""
+    return Query(_day_sums("order_lines"), label="holdings_rows")
+
+
 def holdings_exact_query(days: Sequence[str]) -> Query:
     """The second step of writing the holdings: sql/holdings_exact.sql over the rows the first
     step wrote into ``days`` (a table of reachlist's own: its schema and name)."""
-    text = template_text("holdings_exact").format(days=quote_qualified(days))
+    text = template_text("holdings_exact").format(
+        days=quote_qualified(days), day_sums=_day_sums("distinct_lines")
+    )
     return Query(text, label="holdings: the days of several lines")
 
 

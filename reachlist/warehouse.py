@@ -78,7 +78,7 @@ class Warehouse:
             # the holdings in two steps (sql/holdings_rows.sql, then holdings_exact.sql)
             self.engine.execute(statements.drop_table((schema, final)), {})
             for (_, table), query in (
-                (days, Query.from_template("holdings_rows")),
+                (days, statements.holdings_rows_query()),
                 (exact, statements.holdings_exact_query(days)),
                 (
                     (schema, f"{SESSION_PREFIX}{FIRST_ORDERS}"),

@@ -1,10 +1,11 @@
 -- The second step of holdings_rows.sql: the days of more than one line in the rows it wrote
--- ({days}, a table of reachlist's own), summed again from their distinct lines: exact duplicate
+-- (the table named below, reachlist's own), summed again from their distinct lines: exact duplicate
 -- lines once, as holdings.sql counts them. These rows replace those days' rows.
 --
 -- The orders behind each such day are found by equal values, with a null day or SKU (a value of
 -- its own in a grouping) in a branch of its own, so that no join compares rows it then throws
--- away; UNION drops the duplicate lines.
+-- away; UNION drops the duplicate lines. The sums at the end are holdings_rows.sql's grouping,
+-- of these lines.
 WITH
 shared_orders AS (
     SELECT o.order_id, d.sku
@@ -33,12 +34,4 @@ distinct_lines AS (
       AND l.sku IS NULL
       AND s.sku IS NULL
 )
-SELECT o.customer_id,
-       l.sku,
-       CAST(o.ordered_at AS DATE)                        AS order_day,
-       sum(l.quantity)                                   AS quantity,
-       max(CASE WHEN l.quantity > 0 THEN 1 ELSE 0 END)   AS bought,
-       count(*)                                          AS lines
-FROM distinct_lines AS l
-JOIN orders AS o ON o.order_id = l.order_id
-GROUP BY o.customer_id, l.sku, CAST(o.ordered_at AS DATE)
+{day_sums}
