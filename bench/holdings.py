@@ -39,6 +39,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
+from pycache import compile_package  # noqa: E402
 from rules_speed import MAX_ANTECEDENT, MIN_SUPPORT, OWN_PEAK, TARGET, warehouse  # noqa: E402
 
 REACHLIST = str(Path(sys.executable).with_name("reachlist"))
@@ -124,6 +125,7 @@ def main() -> None:
         "always runs, as every ratio needs it",
     )
     args = ap.parse_args()
+    compile_package()
     chosen = {"scan", *args.steps.split(",")}
     path = warehouse(args.customers)
     side = path.with_name(path.name.removesuffix(".duckdb") + ".holdings.duckdb")

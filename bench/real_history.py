@@ -25,6 +25,7 @@ import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+from pycache import compile_package  # noqa: E402
 from rules_speed import OWN_PEAK  # noqa: E402
 
 MAPPING = """
@@ -120,6 +121,7 @@ def main() -> None:
     ap.add_argument("--dir", default="/tmp/reachlist-cj")
     ap.add_argument("--repeat", type=int, default=3)
     a = ap.parse_args()
+    compile_package()
     folder = Path(a.dir)
     folder.mkdir(parents=True, exist_ok=True)
     db, mapping = load(folder)

@@ -25,6 +25,7 @@ import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+from pycache import compile_package  # noqa: E402
 from real_history import MAPPING, load  # noqa: E402
 
 URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"
@@ -92,6 +93,7 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--data", default="sample,cj")
     a = ap.parse_args()
+    compile_package()
     folder = Path(tempfile.mkdtemp(prefix="reachlist-server-bench-"))
     cases = []
     if "sample" in a.data:
