@@ -33,7 +33,7 @@ from reachlist.estimate import (
 from reachlist.stats import gains_chart_points, gains_table
 from reachlist.targets import Target, Window, _as_datetime, parse_target, resolve_target
 from reachlist.warehouse import Warehouse
-from reachlist.wording import option
+from reachlist.wording import option, spelled_as
 
 __all__ = ["Backtest", "BacktestRow", "backtest"]
 
@@ -155,15 +155,16 @@ def backtest(
     )
     chosen = choose_rules(rules, top=top, rank_by=rank_by)
     spec = AudienceSpec(target=tgt, rules=chosen, level=rules.level, lookback=window)
-    cal = calibrate_audience(
-        wh,
-        tgt,
-        spec=spec,
-        horizon_days=horizon_days,
-        as_of=at,
-        level=interval_level,
-        max_cutoffs=max_cutoffs,
-    )
+    with spelled_as("as_of", "cutoff"):  # the estimate's as_of is this cutoff
+        cal = calibrate_audience(
+            wh,
+            tgt,
+            spec=spec,
+            horizon_days=horizon_days,
+            as_of=at,
+            level=interval_level,
+            max_cutoffs=max_cutoffs,
+        )
     # The observation: the only read after the cutoff.
     outcome = ids.normalise_frame(
         wh.fetch(forward_query(tgt, at, at + timedelta(days=horizon_days)))

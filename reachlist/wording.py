@@ -27,6 +27,15 @@ def spelling(words: Mapping[str, str]) -> Iterator[None]:
         _SPELLING.update(saved)
 
 
+@contextmanager
+def spelled_as(name: str, caller: str) -> Iterator[None]:
+    """Inside the block, messages that name the option ``name`` name the caller's option
+    ``caller`` instead, as the front end in use spells it: a function that passes its own
+    ``cutoff`` on as another's ``as_of`` points its user at the option they can change."""
+    with spelling({**_SPELLING, name: option(caller)}):
+        yield
+
+
 def option(name: str) -> str:
     """An option as the front end in use spells it (the library's name when none is in use)."""
     return _SPELLING.get(name, name)

@@ -127,6 +127,19 @@ def test_backtest_cli_bad_cutoff(pristine: Path) -> None:
     assert res.exit_code != 0 and "Expected --cutoff as a date" in res.output
 
 
+def test_backtest_too_early_names_its_own_option(pristine: Path) -> None:
+    """A cutoff with too little history before it: the hint names --cutoff, the option this
+    command has (it named --until, which backtest does not take)."""
+    res = CliRunner().invoke(
+        main,
+        ["--width", "200", "backtest", "SG04-104", "--cutoff", "2025-06-15", "-w", str(pristine)],
+    )
+    assert res.exit_code != 0
+    line = res.output.strip()
+    assert "order history before 2025-06-15" in line and "choose a later --cutoff" in line
+    assert "--until" not in line
+
+
 def test_backtest_takes_the_options_that_shape_a_list(pristine: Path) -> None:
     """--max-antecedent, --min-support, --basket and --cutoffs reach the rebuilt audiences, so
     a backtest can rebuild the lists `build` made."""

@@ -20,7 +20,7 @@ from reachlist.errors import InputError
 from reachlist.planning import ListRequest, plan_list
 from reachlist.sample import KEY_SKUS
 from reachlist.warehouse import Warehouse
-from reachlist.wording import option, spelling
+from reachlist.wording import option, spelled_as, spelling
 
 PACKAGE = Path(__file__).parents[1] / "reachlist"
 CORE = sorted(
@@ -110,3 +110,13 @@ def test_a_library_error_names_the_parameter_and_the_cli_the_flag(pristine: Path
     result = CliRunner().invoke(main, ["sizes", mat, "-w", str(pristine), "--horizon", "0"])
     assert result.exit_code == 2
     assert "--horizon" in result.output and "horizon_days" not in result.output
+
+
+def test_a_caller_can_name_its_own_option_for_one_it_passes_on() -> None:
+    with spelled_as("as_of", "cutoff"):
+        assert option("as_of") == "cutoff"  # from Python: the caller's parameter
+    with spelling(CLI_SPELLING), spelled_as("as_of", "cutoff"):
+        assert option("as_of") == "--cutoff" and option("horizon_days") == "--horizon"
+    with spelling(CLI_SPELLING):
+        assert option("as_of") == "--until"  # and back after the block
+    assert option("as_of") == "as_of"
