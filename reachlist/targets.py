@@ -41,7 +41,8 @@ def parse_target(text: str) -> Target:
     if not text:
         raise InputError(
             "Expected a target (a SKU, category:NAME or department:NAME), found an empty string.",
-            hint="run `reachlist rules` without a target to see the strongest rules and their items",
+            hint="find one by code or name with `reachlist items TEXT`, or run `reachlist rules` "
+            "without a target to see the strongest rules and their items",
         )
     prefix, sep, rest = text.partition(":")
     if sep and prefix.lower() in ("category", "department", "sku"):
@@ -100,7 +101,7 @@ def resolve_target(wh: Warehouse, target: Target) -> Target:
     hint = (
         f"did you mean {', '.join(repr(c) for c in close[:3])}?"
         if close
-        else f"list them with `reachlist rules {option('level')} {target.level}`"
+        else "find it by code or name with `reachlist items TEXT`"
     )
     raise InputError(
         f"Target {str(target)!r} is not a {target.level} in products ({len(known)} known).",

@@ -166,6 +166,10 @@ def test_unknown_target_suggests_close_names(garden: Path) -> None:
             mine_rules(wh, "heated seedling mats")  # close to a product name
         with pytest.raises(InputError, match="Bird Food"):
             mine_rules(wh, "category:Bird Fod", level="category")
+        # nothing close: the hint points at the command that finds items by code or name
+        with pytest.raises(InputError, match=r"not a sku.*reachlist items TEXT") as nothing:
+            mine_rules(wh, "ZZ99-999-QQQ")
+        assert "reachlist rules" not in str(nothing.value)
 
 
 def test_no_rule_names_the_threshold_to_relax(garden: Path) -> None:
