@@ -114,3 +114,43 @@ def test_results_cli(pristine: Path, state: Path) -> None:
     data = json.loads(res.output)
     assert data["treatment"]["customers"] + data["holdout"]["customers"] > 100
     assert data["verdict"]
+
+
+def test_results_without_a_holdout_say_so_at_80_columns(pristine: Path, tmp_path: Path) -> None:
+    """A list too small to hold anyone out (seen on Complete Journey: 2 customers, 10%): the
+    screen says no one was held out, where it printed the holdout's rate as "nan of 2"."""
+    con = duckdb.connect(str(pristine), read_only=True)
+    ids = con.sql(
+        "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
+        "AND antecedent_held_at < TIMESTAMP '2026-06-01' "
+        "AND (target_bought_at IS NULL OR target_bought_at >= TIMESTAMP '2026-06-01') "
+        "ORDER BY customer_id LIMIT 30"
+    ).pl()["customer_id"]
+    con.close()
+    contacts = pl.DataFrame(
+        {"customer_id": ids, "contact_group": "treatment", "score": 0.5, "rule_id": "x"}
+    )
+    path = tmp_path / "state.duckdb"
+    with (
+        Warehouse.open(pristine, read_only=True) as wh,
+        CampaignLog.open(wh, str(path)) as log,
+    ):
+        rule = ChosenRule(1, "hand", ("SG04-101",), "SG04-104", 0.5, 2.9, 100, 50, True)
+        record = CampaignRecord(
+            "mats-all-treated",
+            SENT,
+            "SG04-104",
+            "introduce",
+            parameters={"window": [datetime(2025, 6, 1), SENT], "level": "sku"},
+            rules=[asdict(rule)],
+        )
+        log.record(record, contacts)
+    res = CliRunner().invoke(
+        main,
+        ["--width", "80", "results", "mats-all-treated", "-w", str(pristine), "--state", str(path)],
+    )
+    assert res.exit_code == 0, res.output
+    screen = " ".join(res.output.split())
+    assert "Predicted buyers" in screen and "no one was held out to compare" in screen
+    assert "nan" not in screen.lower()
+    assert max(len(line) for line in res.output.splitlines()) <= 80

@@ -235,11 +235,16 @@ def render_results(r: CampaignResults, console: Console) -> None:
             else f"among the {n:,} of {r.treatment.customers:,} treated customers it covers"
         )
         observed = r.treatment.buyers if r.observed_about is None else r.observed_about
+        held = (
+            f"and {r.holdout.buyers:,} of {r.holdout.customers:,} held out (at the holdout's "
+            f"rate: {r.holdout.rate.estimate * n:,.0f} of {n:,})"
+            if r.holdout.customers
+            else "and no one was held out to compare"  # no rate to scale (it was printed as nan)
+        )
         console.print(
             f"Predicted buyers {who} without the offer: {p.expected:,.0f} "
             f"({p.level:.0%} interval {p.low:,.0f}-{p.high:,.0f}); observed {observed:,} of "
-            f"those {n:,}, and {r.holdout.buyers:,} of {r.holdout.customers:,} held out "
-            f"(at the holdout's rate: {r.holdout.rate.estimate * n:,.0f} of {n:,}).",
+            f"those {n:,}, {held}.",
             soft_wrap=False,
         )
     if r.promised is not None:
