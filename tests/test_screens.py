@@ -5,6 +5,7 @@ at word boundaries, `--ascii` is plain ASCII for logs and email, and `sizes`, `b
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -148,3 +149,23 @@ def test_backtest_fits_80_columns_without_cutting_numbers(pristine: Path) -> Non
     table = lines[: next(i for i, ln in enumerate(lines) if ln.startswith("pred.:"))]
     assert not any("\u2026" in ln for ln in table)  # no number cut with an ellipsis
     assert any(ln.startswith("combined") for ln in table)
+
+
+def test_small_expected_counts_keep_a_decimal(pristine: Path) -> None:
+    """A small list's expected buyers and units read as the brief writes them (one decimal
+    below 10): rounded to whole numbers, a list expecting 0.4 buyers and 0.7 units read
+    "0 buyers ... 1 unit" (seen on a Complete Journey list of 58 customers)."""
+    res = run(
+        "--width", "80", "sizes", MAT, "-w", str(pristine), "--top", "1",
+        "--ordered-within", "7", "--min-audience", "0", "--campaign", "small",
+    )  # fmt: skip
+    assert res.exit_code == 0, res.output
+    assert max(len(line) for line in res.output.splitlines()) <= 80, res.output
+    screen = " ".join(res.output.split())
+    baseline = re.search(r"expected without the offer\): (\S+) \((\S+)-(\S+), 90% interval", screen)
+    units = re.search(r"Expected units: (\S+) \((\S+)-(\S+)\) at", screen)
+    assert baseline and units, screen
+    expected, low, high = (float(x.replace(",", "")) for x in baseline.groups())
+    assert 0 < expected < 10 and "." in baseline.group(1)  # a small list, with its decimal
+    assert low <= expected <= high
+    assert all(float(x) < 10 or "." not in x for x in (*baseline.groups(), *units.groups()))

@@ -14,6 +14,16 @@ CAUTION = (
 )
 
 
+def fmt_expected(value: float) -> str:
+    """An expected number of buyers or units, or an interval's end: whole below 10 only when it
+    is whole, so a list expecting 0.4 buyers and 0.7 units does not read "0 buyers, 1 unit"
+    (the brief writes them the same way)."""
+    if abs(value) >= 9.95:
+        return f"{value:,.0f}"
+    text = f"{value:.1f}"
+    return text.removesuffix(".0")
+
+
 def fmt_count(value: Any) -> str:
     """Counts with thousands separators; dates as ISO; None as a dash."""
     if value is None:

@@ -10,6 +10,8 @@ import io
 import json
 from typing import Any
 
+from reachlist.render import fmt_expected
+
 CSS = """
 body { font-family: system-ui, sans-serif; max-width: 60rem; margin: 2rem auto; padding: 0 1rem;
        color: #1d1d1d; line-height: 1.45; }
@@ -30,7 +32,7 @@ def _n(value: Any) -> str:
     if value is None:
         return "-"
     if isinstance(value, float):
-        return f"{value:,.0f}" if abs(value) >= 10 else f"{value:,.1f}"
+        return fmt_expected(value)
     return f"{value:,}"
 
 

@@ -11,7 +11,7 @@ from reachlist.overlap import ADVICE, OverlapReport
 from reachlist.planning import Plan
 from reachlist.query import Dialect, Rendered, literal
 from reachlist.query import inline as inline_values
-from reachlist.render import CAUTION, fmt_count
+from reachlist.render import CAUTION, fmt_count, fmt_expected
 from reachlist.render.takeup import estimate_lines, few_cutoffs_line, render_holdout_planning
 from reachlist.wording import option
 
@@ -203,14 +203,14 @@ def render_response(outcome: ListOutcome, console: Console) -> None:
     resp, low, high = u.with_offer(e.expected, e.low, e.high)
     inc, inc_low, inc_high = u.incremental(e.expected)
     console.print(
-        f"[bold]Response with the offer:[/] {resp:,.0f} ({low:,.0f}-{high:,.0f}) buyers of "
+        f"[bold]Response with the offer:[/] {fmt_expected(resp)} ({fmt_expected(low)}-{fmt_expected(high)}) buyers of "
         f"{r.audience:,}: the baseline x{u.ratio:.2f} ({u.low:.2f}-{u.high:.2f}, "
         f"{u.level:.0%}), the uplift {escape(u.note)}.",
         soft_wrap=False,
     )
     console.print(
-        f"[bold]Incremental buyers[/] (the offer's own): {inc:,.0f} ({inc_low:,.0f} to "
-        f"{inc_high:,.0f}) at the expected baseline.",
+        f"[bold]Incremental buyers[/] (the offer's own): {fmt_expected(inc)} ({fmt_expected(inc_low)} to "
+        f"{fmt_expected(inc_high)}) at the expected baseline.",
         soft_wrap=False,
     )
 
@@ -268,8 +268,8 @@ def render_takeup(outcome: ListOutcome, console: Console) -> None:
             who = f"of the {r.audience:,} of {contacted:,} contacted customers who lack {r.target}"
         console.print(
             f"[bold]Baseline buyers within {r.horizon_days} days[/] (expected without the offer): "
-            f"{e.expected:,.0f} "
-            f"({e.low:,.0f}-{e.high:,.0f}, {e.level:.0%} interval) {escape(who)} "
+            f"{fmt_expected(e.expected)} "
+            f"({fmt_expected(e.low)}-{fmt_expected(e.high)}, {e.level:.0%} interval) {escape(who)} "
             f"({100 * r.rate:.2f}%), {escape(e.method)}.",
             soft_wrap=False,
         )

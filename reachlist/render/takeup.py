@@ -20,6 +20,7 @@ from rich.table import Table
 from reachlist.backtest import Backtest
 from reachlist.errors import InputError
 from reachlist.estimate import HoldoutPlanning, TakeUpReport
+from reachlist.render import fmt_expected
 from reachlist.results import CampaignResults, GroupTakeUp
 from reachlist.stats.calibration import TakeUpEstimate
 
@@ -47,14 +48,15 @@ def estimate_lines(r: TakeUpReport) -> list[str]:
     av = r.added_value
     lines = [
         (
-            f"[bold]Baseline take-up (without the offer):[/] {e.expected:,.0f} of {r.audience:,} "
+            f"[bold]Baseline take-up (without the offer):[/] {fmt_expected(e.expected)} of {r.audience:,} "
             "customers buy "
             f"{escape(str(r.target))} within {r.horizon_days} days ({_pct(r.rate)}); "
-            f"{e.level:.0%} interval {e.low:,.0f}-{e.high:,.0f}, from the spread of "
+            f"{e.level:.0%} interval {fmt_expected(e.low)}-{fmt_expected(e.high)}, from the spread of "
             f"{e.n_backtests} past backtests ({escape(e.method)})."
         ),
         (
-            f"Expected units: {units[0]:,.0f} ({units[1]:,.0f}-{units[2]:,.0f}) at "
+            f"Expected units: {fmt_expected(units[0])} ({fmt_expected(units[1])}-"
+            f"{fmt_expected(units[2])}) at "
             f"{r.units_per_buyer:.2f} units per new buyer."
         ),
         (
@@ -201,6 +203,10 @@ def _num0(x: object) -> str:
     return f"{float(x):,.0f}" if isinstance(x, int | float) else "?"
 
 
+def _expected0(x: object) -> str:
+    return fmt_expected(float(x)) if isinstance(x, int | float) else "?"
+
+
 def render_results(r: CampaignResults, console: Console) -> None:
     t = Table(
         title=f"Campaign {escape(r.campaign_id)}: {escape(str(r.target))}, sent "
@@ -242,16 +248,16 @@ def render_results(r: CampaignResults, console: Console) -> None:
             else "and no one was held out to compare"  # no rate to scale (it was printed as nan)
         )
         console.print(
-            f"Predicted buyers {who} without the offer: {p.expected:,.0f} "
-            f"({p.level:.0%} interval {p.low:,.0f}-{p.high:,.0f}); observed {observed:,} of "
+            f"Predicted buyers {who} without the offer: {fmt_expected(p.expected)} "
+            f"({p.level:.0%} interval {fmt_expected(p.low)}-{fmt_expected(p.high)}); observed {observed:,} of "
             f"those {n:,}, {held}.",
             soft_wrap=False,
         )
     if r.promised is not None:
         b = r.promised
         console.print(
-            f"At build: {_num0(b.get('expected'))} ({_num0(b.get('low'))}-"
-            f"{_num0(b.get('high'))}) baseline buyers expected of {_num0(b.get('audience'))} "
+            f"At build: {_expected0(b.get('expected'))} ({_expected0(b.get('low'))}-"
+            f"{_expected0(b.get('high'))}) baseline buyers expected of {_num0(b.get('audience'))} "
             f"customers, from {_num0(b.get('n_backtests'))} backtests "
             f"(learnt from {escape(str(b.get('for_target', '?')))}; campaign log).",
             soft_wrap=False,
