@@ -28,6 +28,9 @@ from reachlist.wording import option
 
 Severity = Literal["error", "warning"]
 
+MINED_TABLES = ("orders", "order_lines", "products")
+"""The tables mining and the holdings read (lists read every source table)."""
+
 GAP_MONTHS = 12
 """Orders in months separated from the bulk of the history by at least this many empty months,
 and fewer than a quarter of the bulk's orders, are reported as far from the rest."""
@@ -109,13 +112,20 @@ def contract_problems(
                 continue
             to = cast_for(col.kind, pc.data_type, text_type)
             if to is INCOMPATIBLE:
+                # a cast of codes to true/false makes every non-zero code true (2 = "withdrawn"
+                # would read as consent): name the values instead
+                how = (
+                    f"{pc.name} IN (...the values that mean yes...)"
+                    if col.kind == "boolean"
+                    else f"CAST({pc.name} AS ...)"
+                )
                 problems.append(
                     Problem(
                         "wrong type",
                         _where(name, col.name, tmap.physical_name, pc.name),
                         f"type {pc.data_type}; expected {_kind_words(col.kind)}",
-                        f'{_key(wh, name, col.name)} = {{ sql = "CAST({pc.name} AS ...)" }} or '
-                        "another column of that type",
+                        f'{_key(wh, name, col.name)} = {{ sql = "{how}" }} or another column of '
+                        "that type",
                     )
                 )
             elif to is not None:
@@ -277,9 +287,18 @@ def check_warehouse(wh: Warehouse, *, today: date | None = None) -> CheckReport:
 
 
 def require_contract(wh: Warehouse, tables: tuple[str, ...] = SOURCE_TABLES) -> None:
-    """Raise one ContractError line for the first contract problem, pointing to ``check``."""
-    problems, _ = contract_problems(wh, tables)
-    if problems:
+    """Raise one ContractError line for the first contract problem of ``tables``, pointing to
+    ``check``: what check marks as stopping lists stops them (and mining) before any query. A
+    type the database would convert by itself is still refused: DuckDB reads an integer consent
+    column as true for every non-zero code, and 'yes'/'no' text as true/false. Tables checked
+    clean are not checked again on the same connection."""
+    todo = tuple(t for t in tables if t not in wh.contract_checked)
+    if not todo:
+        return
+    problems, _ = contract_problems(wh, todo)
+    if not problems:
+        wh.contract_checked.update(todo)
+    else:
         first = problems[0]
         more = f" and {len(problems) - 1} more" if len(problems) > 1 else ""
         raise ContractError(

@@ -40,6 +40,7 @@ from pathlib import Path
 from typing import Literal
 
 from reachlist import statements
+from reachlist.check import MINED_TABLES, require_contract
 from reachlist.errors import InputError, ReachlistError, brief
 from reachlist.estimate import BREADTH_DAYS, DEFAULT_HORIZON, MAX_CUTOFFS, breadth_query
 from reachlist.query import FIRST_ORDERS, HOLDINGS, BuiltWindow, Query
@@ -171,6 +172,7 @@ def build(wh: Warehouse, *, progress: Progress | None = None) -> Built:
             hint="a server warehouse keeps no file: its queries derive the holdings (on "
             "PostgreSQL, once per command, into temporary tables); nothing to build",
         )
+    require_contract(wh, MINED_TABLES)
     say = progress or (lambda _text: None)
     started = time.perf_counter()
     wh.derive_holdings()

@@ -27,6 +27,7 @@ from reachlist.audience import (
     skipped_below_breadth,
 )
 from reachlist.campaigns import check_campaign_id
+from reachlist.check import require_contract
 from reachlist.economics import check_offer_terms
 from reachlist.errors import ContractError, InputError
 from reachlist.estimate import (
@@ -224,6 +225,7 @@ def plan_list(
             hint="leave it out to use products.stock_on_hand",
         )
     check_offer_terms(request.discount, request.margin, request.price)
+    require_contract(wh)  # what `check` marks as stopping lists stops this one, before any query
     if request.offer_code is not None and not OFFER_CODE.fullmatch(request.offer_code):
         raise InputError(
             f"Expected {option('offer_code')} of 1 to 64 letters, digits or - _ . / (a coupon or promotion "

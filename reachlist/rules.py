@@ -24,6 +24,7 @@ import polars as pl
 
 from reachlist import mining
 from reachlist.baskets import Baskets
+from reachlist.check import MINED_TABLES, require_contract
 from reachlist.engine_mining import EngineCounts
 from reachlist.errors import EmptyResultError, InputError, ReachlistError
 from reachlist.measures import MEASURES
@@ -217,6 +218,7 @@ def mine_rules(
             f"Expected breadth to be now or later, found {breadth!r}.",
             hint="pass breadth='now' (every rule that can be shown) or breadth='later'",
         )
+    require_contract(wh, MINED_TABLES)
     tgt = resolve_target(wh, parse_target(target) if isinstance(target, str) else target)
     lvl, kind = check_level(level), check_basket(basket)
     window = mining_window(wh, since, until)

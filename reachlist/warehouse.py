@@ -51,6 +51,9 @@ class Warehouse:
         self.mapping = mapping
         self._in_transaction = False
         self._typed: Mapping | None = None  # the mapping with the casts physical types need
+        # source tables whose contract (tables, columns, types) was checked clean on this
+        # connection (reachlist.check.require_contract), so a command checks each once
+        self.contract_checked: set[str] = set()
         self._text_ids = False
         # the qualified name of a fresh holdings table when one is attached (reachlist.holdings);
         # None: queries derive the same rows from the order lines

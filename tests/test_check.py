@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import io
+import json
+import shutil
 from datetime import date
 from pathlib import Path
 
@@ -265,3 +267,55 @@ def test_the_readme_lists_every_column_of_the_contract() -> None:
                 assert any(
                     r[:2] == (table.name, col.name) and r[2].startswith(col.kind) for r in rows
                 ), (table.name, col.name, col.kind)
+
+
+def _sizes(path: Path, *more: str) -> tuple[int, str]:
+    res = CliRunner().invoke(
+        main, ["--width", "200", "sizes", "SG04-104", "-w", str(path), "--no-estimate", *more]
+    )
+    return res.exit_code, res.output
+
+
+def test_lists_refuse_what_check_marks_as_stopping_them(pristine: Path, tmp_path: Path) -> None:
+    """Consent held as integer codes (1 yes, 0 no, 2 withdrawn): DuckDB would read every
+    non-zero code as consent, so the 2s were listed. Lists now refuse it in one line, as check
+    does, naming the values-that-mean-yes fix; with that mapping line the list is the one of the
+    boolean column. Mining does not read customers, so `rules` still runs."""
+    coded = tmp_path / "coded.duckdb"
+    shutil.copy(pristine, coded)
+    con = duckdb.connect(str(coded))
+    con.execute("ALTER TABLE customers ALTER marketing_consent TYPE INTEGER")
+    con.execute("UPDATE customers SET marketing_consent = 2 WHERE marketing_consent = 0")
+    ((withdrawn,),) = con.sql(
+        "SELECT count(*) FROM customers WHERE marketing_consent = 2"
+    ).fetchall()
+    con.close()
+    assert withdrawn > 0
+    code, out = _sizes(coded)
+    assert code != 0
+    (line,) = out.strip().splitlines()
+    assert "customers.marketing_consent" in line and "type INTEGER; expected true/false" in line
+    assert "values that mean yes" in line and "reachlist check" in line
+    fixed = tmp_path / "consent.toml"
+    fixed.write_text('[customers]\nmarketing_consent = { sql = "marketing_consent = 1" }\n')
+    code, mapped = _sizes(coded, "-m", str(fixed), "--json")
+    code0, plain = _sizes(pristine, "--json")
+    assert code == 0 and code0 == 0, mapped + plain
+    assert json.loads(mapped)["waterfall"] == json.loads(plain)["waterfall"]
+    rules = CliRunner().invoke(main, ["rules", "SG04-104", "-w", str(coded), "--top", "3"])
+    assert rules.exit_code == 0, rules.output
+
+
+def test_mining_refuses_order_times_held_as_text(pristine: Path, tmp_path: Path) -> None:
+    """Order times as text: `rules` failed inside a query with the database's binder error; it
+    now says in one line which column, what it holds and the mapping line that casts it."""
+    texty = tmp_path / "texty.duckdb"
+    shutil.copy(pristine, texty)
+    con = duckdb.connect(str(texty))
+    con.execute("ALTER TABLE orders ALTER ordered_at TYPE VARCHAR")
+    con.close()
+    res = CliRunner().invoke(main, ["--width", "200", "rules", "SG04-104", "-w", str(texty)])
+    assert res.exit_code != 0
+    (line,) = res.output.strip().splitlines()
+    assert "orders.ordered_at: type VARCHAR; expected timestamps" in line
+    assert 'ordered_at = { sql = "CAST(ordered_at AS ...)" }' in line and "Binder" not in line
