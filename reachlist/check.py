@@ -14,9 +14,12 @@ being built; warnings are handled (and reported) by the commands.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import UTC, date, datetime, timedelta
 from typing import Any, Literal
+
+import polars as pl
 
 from reachlist import statements
 from reachlist.errors import ContractError, ReachlistError
@@ -163,7 +166,7 @@ def _source_problem(
     """A mapped expression or constant must run against its table (checked with LIMIT 0)."""
     tmap = wh.typed_mapping.table(table)
     try:
-        wh.fetch_raw(statements.column_probe(tmap, column))
+        probe = wh.fetch_raw(statements.column_probe(tmap, column))
     except ReachlistError as exc:
         return Problem(
             "expression fails",
@@ -173,7 +176,30 @@ def _source_problem(
             f"fix {_key(wh, table, column)} so it is one {_kind_words(kind)} expression over "
             f"{tmap.physical_name}",
         )
+    dtype = probe.schema["probe"]
+    if dtype != pl.Null and not _SERVES[kind](dtype):  # (a server's empty probe has no type)
+        return Problem(
+            "wrong type",
+            f"{table}.{column}",
+            f"{tmap.source(column).describe()} gives {dtype}; "  # type: ignore[union-attr]
+            f"expected {_kind_words(kind)}",
+            f"fix {_key(wh, table, column)} so it gives {_kind_words(kind)}"
+            + (" (true exactly for the values that mean yes)" if kind == "boolean" else ""),
+        )
     return None
+
+
+# What an expression's result type must be to serve a kind (the database would convert others
+# by itself, some wrongly: DuckDB takes every non-zero integer as true).
+_SERVES: dict[Kind, Callable[[pl.DataType], bool]] = {
+    "id": lambda t: t.is_integer() or t == pl.String,
+    "integer": lambda t: t.is_integer(),
+    "number": lambda t: t.is_numeric(),
+    "text": lambda t: t == pl.String,
+    "boolean": lambda t: t == pl.Boolean,
+    "date": lambda t: t.is_temporal(),
+    "timestamp": lambda t: t.is_temporal(),
+}
 
 
 def _data_problems(wh: Warehouse, counts: dict[str, Any], today: date) -> list[Problem]:

@@ -296,6 +296,12 @@ def test_lists_refuse_what_check_marks_as_stopping_them(pristine: Path, tmp_path
     (line,) = out.strip().splitlines()
     assert "customers.marketing_consent" in line and "type INTEGER; expected true/false" in line
     assert "values that mean yes" in line and "reachlist check" in line
+    # the same codes through a mapped expression (no column type to read): refused too
+    passed_on = tmp_path / "passed_on.toml"
+    passed_on.write_text('[customers]\nmarketing_consent = { sql = "marketing_consent + 0" }\n')
+    code, out = _sizes(coded, "-m", str(passed_on))
+    assert code != 0 and "customers.marketing_consent" in out and "expected true/false" in out
+    assert "values that mean yes" in out
     fixed = tmp_path / "consent.toml"
     fixed.write_text('[customers]\nmarketing_consent = { sql = "marketing_consent = 1" }\n')
     code, mapped = _sizes(coded, "-m", str(fixed), "--json")
