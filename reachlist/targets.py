@@ -296,10 +296,10 @@ def held_items_query(
         else:
             final = parts["held_pairs"].format(
                 level=LEVEL_COLUMN[level],
-                only_item="" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item",
+                only_item="" if only is None else f"\n  AND p.{LEVEL_COLUMN[level]} = :only_item",
             )
         return Query(with_parts([held], final), params, label="held_items")
-    only_item = "" if only is None else f"\nWHERE p.{LEVEL_COLUMN[level]} = :only_item"
+    only_item = "" if only is None else f"\n  AND p.{LEVEL_COLUMN[level]} = :only_item"
     return Query.from_template(
         "held_order_items", params, level=LEVEL_COLUMN[level], only_item=only_item
     )

@@ -11,6 +11,7 @@ level_pairs AS (
     SELECT DISTINCT h.basket, p.{level} AS item
     FROM held_skus AS h
     JOIN products AS p ON p.sku = h.sku
+    WHERE p.{level} IS NOT NULL  -- a SKU with no category or department is no item there
 )
 -- part: target_pairs
 target_pairs AS (

@@ -3,7 +3,8 @@
 -- An order holds a SKU when its net quantity of that SKU in the window is positive:
 -- returns (negative quantity) cancel purchases, zero-quantity lines count for nothing,
 -- exact duplicate lines count once, and SKUs missing from products are left out.
--- At category or department level, a basket holds the group when it holds any SKU in it.
+-- At category or department level, a basket holds the group when it holds any SKU in it (a
+-- SKU with none there is left out).
 WITH window_orders AS (
     SELECT o.order_id, o.customer_id
     FROM orders AS o
@@ -26,4 +27,5 @@ held_skus AS (
 )
 SELECT DISTINCT h.basket, p.{level} AS item
 FROM held_skus AS h
-JOIN products AS p ON p.sku = h.sku{only_item}
+JOIN products AS p ON p.sku = h.sku
+WHERE p.{level} IS NOT NULL{only_item}

@@ -1,2 +1,3 @@
--- Every item at one level (the level slot: sku, category or department, named by reachlist).
-SELECT DISTINCT {level} AS item FROM products ORDER BY 1
+-- Every item at one level (the level slot: sku, category or department, named by reachlist); a
+-- product with none there names no item.
+SELECT DISTINCT {level} AS item FROM products WHERE {level} IS NOT NULL ORDER BY 1
