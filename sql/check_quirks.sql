@@ -37,6 +37,8 @@ SELECT
     -- products that need care
     (SELECT count(*) FROM products WHERE age_restricted)               AS age_restricted_products,
     (SELECT count(DISTINCT category) FROM products WHERE sensitive)    AS sensitive_categories,
+    (SELECT count(*) FROM products
+      WHERE category IS NULL OR department IS NULL)                    AS products_ungrouped,
     (SELECT count(*) FROM products AS p
       WHERE NOT EXISTS (SELECT 1 FROM order_lines AS l WHERE l.sku = p.sku))
                                                                        AS products_never_sold

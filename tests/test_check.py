@@ -55,6 +55,7 @@ def test_check_counts_rows_and_quirks(tiny: Path) -> None:
     assert c["customers_suppressed"] == 1
     assert c["age_restricted_products"] == 1
     assert c["products_never_sold"] == 1  # C
+    assert c["products_ungrouped"] == 0
     assert str(c["first_order_at"]).startswith("2025-01-05")
 
 

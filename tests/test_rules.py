@@ -12,6 +12,7 @@ import polars as pl
 import pytest
 from click.testing import CliRunner
 
+from reachlist.check import check_warehouse
 from reachlist.cli import main
 from reachlist.errors import EmptyResultError, InputError
 from reachlist.rules import mine_rules
@@ -285,6 +286,10 @@ def test_products_without_a_category_are_left_out_at_that_level(
             mine_rules(a, "category:Propagation", counting="engine", **options)  # type: ignore[arg-type]
             if basket == "customer"
             else got
+        )
+    with Warehouse.open(nulled, read_only=True) as a:  # and `check` counts them
+        assert check_warehouse(a).counts["products_ungrouped"] == len(
+            [s for s in a.fetch_raw("SELECT sku FROM products")["sku"] if s.startswith("PC06")]
         )
     assert got.frame.height > 0
     assert got.frame.equals(want.frame)

@@ -24,6 +24,7 @@ _QUIRKS = [
     ("age_restricted_products", "age-restricted products", ""),
     ("sensitive_categories", "sensitive categories", "need an explicit flag"),
     ("products_never_sold", "products with no order lines", "need a stand-in to target"),
+    ("products_ungrouped", "products without category/dept.", "left out at that level"),
 ]
 
 
