@@ -224,10 +224,22 @@ def _data_problems(wh: Warehouse, counts: dict[str, Any], today: date) -> list[P
         ),
         ("orders_without_id", "orders.order_id", "their lines cannot be joined; fill them"),
         ("lines_without_sku", "order_lines.sku", "they are ignored; fill them"),
+        (
+            "orders_without_time",
+            "orders.ordered_at",
+            "they fall in no window, so every command leaves them out; fill them",
+        ),
+        ("lines_without_quantity", "order_lines.quantity", "they count for nothing; fill them"),
     ):
         if nulls[key]:
             problems.append(
-                Problem("missing ids", where, f"{nulls[key]:,} rows without one", fix, "warning")
+                Problem(
+                    "missing ids" if "_id" in key or "sku" in key else "missing values",
+                    where,
+                    f"{nulls[key]:,} rows without one",
+                    fix,
+                    "warning",
+                )
             )
     tomorrow = datetime(today.year, today.month, today.day) + timedelta(days=1)
     history = wh.fetch(Query.from_template("order_history", {"tomorrow": tomorrow})).row(

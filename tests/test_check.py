@@ -231,6 +231,8 @@ def test_check_finds_what_the_lists_would_trip_on(tiny: Path) -> None:
     con.execute("INSERT INTO orders VALUES (900, 1, TIMESTAMP '2062-05-01 10:00', 'web')")
     con.execute("INSERT INTO orders VALUES (901, 1, TIMESTAMP '1970-01-01 00:00', 'web')")
     con.execute("INSERT INTO orders VALUES (902, NULL, TIMESTAMP '2025-03-03 00:00', 'web')")
+    con.execute("INSERT INTO orders VALUES (903, 1, NULL, 'web')")
+    con.execute("INSERT INTO order_lines VALUES (903, 'A', NULL, 1.0)")
     con.close()
     with Warehouse.open(tiny) as wh:
         report = check_warehouse(wh, today=date(2026, 12, 3))
@@ -238,6 +240,9 @@ def test_check_finds_what_the_lists_would_trip_on(tiny: Path) -> None:
     assert found["duplicate customer ids"].severity == "error" and not report.ok
     assert found["duplicate customer ids"].found == "1 ids on 2 rows"
     assert found["missing ids"].found == "1 rows without one"
+    gaps = {p.where: p for p in report.problems if p.what == "missing values"}
+    assert set(gaps) == {"orders.ordered_at", "order_lines.quantity"}
+    assert all(p.severity == "warning" and p.found == "1 rows without one" for p in gaps.values())
     assert found["orders without a customer"].found == "1 orders"
     assert "1 after 2026-12-03, the latest 2062-05-01" in found["orders in the future"].found
     far = [p for p in report.problems if p.what == "orders far from the rest"]
