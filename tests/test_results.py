@@ -23,18 +23,50 @@ from reachlist.warehouse import Warehouse
 SENT = datetime(2026, 6, 1)
 
 
-@pytest.fixture(scope="module")
-def state(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A campaign log in a local state file: heated-mat holders lacking the mat on 2026-06-01,
-    every fourth one held out."""
+def _planted_lacking(pristine: Path, limit: int | None = None) -> pl.Series:
+    """Heated-mat holders lacking the mat on 2026-06-01 (the sample's planted rule)."""
     con = duckdb.connect(str(pristine), read_only=True)
     ids = con.sql(
         "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
         "AND antecedent_held_at < TIMESTAMP '2026-06-01' "
         "AND (target_bought_at IS NULL OR target_bought_at >= TIMESTAMP '2026-06-01') "
-        "ORDER BY customer_id"
+        "ORDER BY customer_id" + ("" if limit is None else f" LIMIT {int(limit)}")
     ).pl()["customer_id"]
     con.close()
+    return ids
+
+
+def _log_campaign(
+    pristine: Path,
+    path: Path,
+    campaign_id: str,
+    antecedent: tuple[str, ...],
+    contacts: pl.DataFrame,
+) -> None:
+    """Log a hand-made SG04-104 campaign sent on SENT in the state file at ``path``. The record
+    carries the rules and window, as build_list logs them, so the estimate can rebuild the
+    audience at past cutoffs."""
+    with (
+        Warehouse.open(pristine, read_only=True) as wh,
+        CampaignLog.open(wh, str(path)) as log,
+    ):
+        rule = ChosenRule(1, "hand", antecedent, "SG04-104", 0.5, 2.9, 100, 50, True)
+        record = CampaignRecord(
+            campaign_id,
+            SENT,
+            "SG04-104",
+            "introduce",
+            parameters={"window": [datetime(2025, 6, 1), SENT], "level": "sku"},
+            rules=[asdict(rule)],
+        )
+        log.record(record, contacts)
+
+
+@pytest.fixture(scope="module")
+def state(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A campaign log in a local state file: heated-mat holders lacking the mat on 2026-06-01,
+    every fourth one held out."""
+    ids = _planted_lacking(pristine)
     contacts = pl.DataFrame(
         {
             "customer_id": ids,
@@ -44,22 +76,7 @@ def state(pristine: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
         }
     )
     path = tmp_path_factory.mktemp("state") / "state.duckdb"
-    with (
-        Warehouse.open(pristine, read_only=True) as wh,
-        CampaignLog.open(wh, str(path)) as log,
-    ):
-        # The record carries the rules and window, as build_list logs them, so the estimate can
-        # rebuild the audience at past cutoffs.
-        rule = ChosenRule(1, "hand", ("SG04-101", "PC06-101"), "SG04-104", 0.5, 2.9, 100, 50, True)
-        record = CampaignRecord(
-            "mats-hand",
-            SENT,
-            "SG04-104",
-            "introduce",
-            parameters={"window": [datetime(2025, 6, 1), SENT], "level": "sku"},
-            rules=[asdict(rule)],
-        )
-        log.record(record, contacts)
+    _log_campaign(pristine, path, "mats-hand", ("SG04-101", "PC06-101"), contacts)
     return path
 
 
@@ -119,32 +136,16 @@ def test_results_cli(pristine: Path, state: Path) -> None:
 def test_results_without_a_holdout_say_so_at_80_columns(pristine: Path, tmp_path: Path) -> None:
     """A list too small to hold anyone out (seen on Complete Journey: 2 customers, 10%): the
     screen says no one was held out, where it printed the holdout's rate as "nan of 2"."""
-    con = duckdb.connect(str(pristine), read_only=True)
-    ids = con.sql(
-        "SELECT customer_id FROM sample_planted WHERE rule_id = 'heated-mat' "
-        "AND antecedent_held_at < TIMESTAMP '2026-06-01' "
-        "AND (target_bought_at IS NULL OR target_bought_at >= TIMESTAMP '2026-06-01') "
-        "ORDER BY customer_id LIMIT 30"
-    ).pl()["customer_id"]
-    con.close()
     contacts = pl.DataFrame(
-        {"customer_id": ids, "contact_group": "treatment", "score": 0.5, "rule_id": "x"}
+        {
+            "customer_id": _planted_lacking(pristine, limit=30),
+            "contact_group": "treatment",
+            "score": 0.5,
+            "rule_id": "x",
+        }
     )
     path = tmp_path / "state.duckdb"
-    with (
-        Warehouse.open(pristine, read_only=True) as wh,
-        CampaignLog.open(wh, str(path)) as log,
-    ):
-        rule = ChosenRule(1, "hand", ("SG04-101",), "SG04-104", 0.5, 2.9, 100, 50, True)
-        record = CampaignRecord(
-            "mats-all-treated",
-            SENT,
-            "SG04-104",
-            "introduce",
-            parameters={"window": [datetime(2025, 6, 1), SENT], "level": "sku"},
-            rules=[asdict(rule)],
-        )
-        log.record(record, contacts)
+    _log_campaign(pristine, path, "mats-all-treated", ("SG04-101",), contacts)
     res = CliRunner().invoke(
         main,
         ["--width", "80", "results", "mats-all-treated", "-w", str(pristine), "--state", str(path)],
